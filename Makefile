@@ -1,0 +1,29 @@
+# Every target does its own set-up on a fresh machine: it creates .venv and installs the project
+# with its test extra before running.
+PY ?= python3
+VENV := .venv
+BIN := $(VENV)/bin
+STAMP := $(VENV)/.installed
+
+.PHONY: demo test bench clean lint
+
+$(STAMP): pyproject.toml
+	$(PY) -m venv $(VENV)
+	$(BIN)/python -m pip install --quiet --upgrade pip
+	$(BIN)/python -m pip install --quiet -e '.[test]'
+	touch $(STAMP)
+
+demo: $(STAMP)
+	$(BIN)/python worked_examples/run_demo.py
+
+test: $(STAMP)
+	$(BIN)/python -m pytest
+
+lint: $(STAMP)
+	$(BIN)/ruff check budget tests benchmarks worked_examples
+
+bench: $(STAMP)
+	$(BIN)/python benchmarks/run_all.py
+
+clean:
+	rm -rf $(VENV) demo-output .pytest_cache build *.egg-info

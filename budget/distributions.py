@@ -1,0 +1,255 @@
+"""Probability distributions assigned to input quantities (JCGM 100 §4.3, JCGM 101 §6.4).
+
+Each distribution knows its expectation, its standard deviation (the standard uncertainty it
+implies), how to draw samples for the Monte Carlo method and its inverse distribution function
+(used to correlate non-Gaussian inputs through a Gaussian copula).
+
+Standard deviations (JCGM 101 Table 1 / §6.4):
+
+* rectangular on [a, b]: (b − a)/√12
+* symmetric triangular on [a, b]: (b − a)/√24; general triangular with mode c:
+  √((a² + b² + c² − ab − ac − bc)/18)
+* arcsine (U-shaped) on [a, b]: (b − a)/√8
+* trapezoidal on [a, b] with top-to-base ratio β: (b − a)·√((1 + β²)/24)
+* scaled and shifted Student t with ν > 2 and scale s: s·√(ν/(ν − 2))
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass
+from typing import Any
+
+import numpy as np
+from scipy import special, stats
+
+from .errors import BudgetError
+
+__all__ = ["Distribution", "KINDS"]
+
+KINDS = ("normal", "rectangular", "triangular", "arcsine", "trapezoidal", "student-t")
+
+
+@dataclass(frozen=True)
+class Distribution:
+    """A named distribution with its parameters.
+
+    Use the constructors (:meth:`normal`, :meth:`rectangular`, ...) rather than the fields.
+
+    Parameters
+    ----------
+    kind : str
+        One of :data:`KINDS`.
+    loc : float
+        Expectation (normal, student-t) — for bounded kinds, the mode or centre.
+    scale : float
+        Standard deviation (normal) or scale s (student-t); 0 for bounded kinds.
+    low, high : float
+        Bounds of the bounded kinds (NaN otherwise).
+    beta : float
+        Trapezoid top-to-base ratio, 0 ≤ β ≤ 1 (NaN otherwise).
+    dof : float
+        Degrees of freedom of the Student t (NaN otherwise).
+    """
+
+    kind: str
+    loc: float = 0.0
+    scale: float = 0.0
+    low: float = math.nan
+    high: float = math.nan
+    beta: float = math.nan
+    dof: float = math.nan
+
+    # ----------------------------------------------------------------- constructors
+    @classmethod
+    def normal(cls, mean: float, sd: float) -> Distribution:
+        """Gaussian with expectation ``mean`` and standard deviation ``sd`` (≥ 0)."""
+        if not sd >= 0:
+            raise BudgetError(f"standard uncertainty must be >= 0; got {sd!r}",
+                              field="standard_uncertainty")
+        return cls("normal", loc=float(mean), scale=float(sd))
+
+    @classmethod
+    def rectangular(cls, low: float, high: float) -> Distribution:
+        """Uniform on [low, high]."""
+        cls._check_bounds(low, high)
+        return cls("rectangular", loc=(low + high) / 2, low=float(low), high=float(high))
+
+    @classmethod
+    def triangular(cls, low: float, high: float, mode: float | None = None) -> Distribution:
+        """Triangular on [low, high] with the given mode (default: the midpoint)."""
+        cls._check_bounds(low, high)
+        c = (low + high) / 2 if mode is None else float(mode)
+        if not low <= c <= high:
+            raise BudgetError(f"mode must lie within [low, high]; got {c!r}", field="mode")
+        return cls("triangular", loc=c, low=float(low), high=float(high))
+
+    @classmethod
+    def arcsine(cls, low: float, high: float) -> Distribution:
+        """U-shaped (arcsine) on [low, high], e.g. a sinusoidally varying quantity."""
+        cls._check_bounds(low, high)
+        return cls("arcsine", loc=(low + high) / 2, low=float(low), high=float(high))
+
+    @classmethod
+    def trapezoidal(cls, low: float, high: float, beta: float) -> Distribution:
+        """Symmetric trapezoid on [low, high]; ``beta`` = top width / base width (0..1)."""
+        cls._check_bounds(low, high)
+        if not 0.0 <= beta <= 1.0:
+            raise BudgetError(f"beta must lie in [0, 1]; got {beta!r}", field="beta")
+        return cls("trapezoidal", loc=(low + high) / 2, low=float(low), high=float(high),
+                   beta=float(beta))
+
+    @classmethod
+    def student_t(cls, loc: float, scale: float, dof: float) -> Distribution:
+        """Scaled and shifted t: ``loc + scale * T_dof`` (JCGM 101 §6.4.9)."""
+        if not scale >= 0:
+            raise BudgetError(f"scale must be >= 0; got {scale!r}", field="standard_uncertainty")
+        if not (dof > 0 and math.isfinite(dof)):
+            raise BudgetError(f"a Student t needs finite dof > 0; got {dof!r}", field="dof")
+        return cls("student-t", loc=float(loc), scale=float(scale), dof=float(dof))
+
+    @staticmethod
+    def _check_bounds(low: float, high: float) -> None:
+        if not (math.isfinite(low) and math.isfinite(high)):
+            raise BudgetError(f"bounds must be finite; got low={low!r}, high={high!r}", field="low")
+        if not low < high:
+            raise BudgetError(f"low must be smaller than high; got low={low!r}, high={high!r}",
+                              field="low")
+
+    # ----------------------------------------------------------------- moments
+    @property
+    def mean(self) -> float:
+        """Expectation of the distribution (the estimate it implies)."""
+        if self.kind == "triangular":
+            return (self.low + self.high + self.loc) / 3
+        return self.loc
+
+    @property
+    def std(self) -> float:
+        """Standard deviation = the standard uncertainty the distribution implies."""
+        a, b = self.low, self.high
+        if self.kind == "normal":
+            return self.scale
+        if self.kind == "rectangular":
+            return (b - a) / math.sqrt(12)
+        if self.kind == "triangular":
+            c = self.loc
+            return math.sqrt((a * a + b * b + c * c - a * b - a * c - b * c) / 18)
+        if self.kind == "arcsine":
+            return (b - a) / math.sqrt(8)
+        if self.kind == "trapezoidal":
+            return (b - a) * math.sqrt((1 + self.beta ** 2) / 24)
+        if self.kind == "student-t":
+            if self.dof <= 2:
+                return math.inf
+            return self.scale * math.sqrt(self.dof / (self.dof - 2))
+        raise BudgetError(f"unknown distribution {self.kind!r}", field="distribution")
+
+    @property
+    def half_width(self) -> float:
+        """Half the width of a bounded distribution (NaN for unbounded ones)."""
+        return (self.high - self.low) / 2
+
+    # ----------------------------------------------------------------- sampling
+    def sample(self, rng: np.random.Generator, n: int) -> np.ndarray:
+        """Draw ``n`` independent samples with ``rng`` (float64 array)."""
+        a, b = self.low, self.high
+        if self.kind == "normal":
+            if self.scale == 0:
+                return np.full(n, self.loc)
+            return rng.normal(self.loc, self.scale, n)
+        if self.kind == "rectangular":
+            return rng.uniform(a, b, n)
+        if self.kind == "triangular":
+            return rng.triangular(a, self.loc, b, n)
+        if self.kind == "arcsine":
+            # JCGM 101 §6.4.6.4: x = (a + b)/2 + (b − a)/2 · sin(2πr), r uniform on [0, 1]
+            return (a + b) / 2 + (b - a) / 2 * np.sin(2 * np.pi * rng.random(n))
+        if self.kind == "trapezoidal":
+            # JCGM 101 §6.4.4.4: x = a + (b − a)/2 · [(1 + β) r1 + (1 − β) r2]
+            r1, r2 = rng.random(n), rng.random(n)
+            return a + (b - a) / 2 * ((1 + self.beta) * r1 + (1 - self.beta) * r2)
+        if self.kind == "student-t":
+            return self.loc + self.scale * rng.standard_t(self.dof, n)
+        raise BudgetError(f"unknown distribution {self.kind!r}", field="distribution")
+
+    def ppf(self, p: np.ndarray) -> np.ndarray:
+        """Inverse distribution function at probabilities ``p`` (0 < p < 1)."""
+        a, b = self.low, self.high
+        if self.kind == "normal":
+            return self.loc + self.scale * special.ndtri(p)
+        if self.kind == "rectangular":
+            return a + (b - a) * p
+        if self.kind == "triangular":
+            c = self.loc
+            fc = (c - a) / (b - a)
+            left = a + np.sqrt(p * (b - a) * (c - a))
+            right = b - np.sqrt((1 - p) * (b - a) * (b - c))
+            return np.where(p < fc, left, right)
+        if self.kind == "arcsine":
+            return (a + b) / 2 - (b - a) / 2 * np.cos(np.pi * p)
+        if self.kind == "student-t":
+            return self.loc + self.scale * stats.t.ppf(p, self.dof)
+        if self.kind == "trapezoidal":
+            return self._trapezoid_ppf(np.asarray(p, dtype=float))
+        raise BudgetError(f"unknown distribution {self.kind!r}", field="distribution")
+
+    def _trapezoid_ppf(self, p: np.ndarray) -> np.ndarray:
+        # Symmetric trapezoid on [-1, 1] (half-widths: base 1, top β), inverted piecewise.
+        beta = self.beta
+        if beta == 1.0:
+            z = 2 * p - 1
+        else:
+            h = 1.0 / (1 + beta)          # density on the top
+            ramp = (1 - beta) / 2 * h     # probability in each ramp
+            q = np.minimum(p, 1 - p)
+            in_ramp = q < ramp
+            # ramp: F(z) = h (z + 1)^2 / (2 (1 − β)), z in [−1, −β]
+            z_ramp = -1 + np.sqrt(2 * (1 - beta) * q / h)
+            z_top = -beta + (q - ramp) / h
+            zl = np.where(in_ramp, z_ramp, z_top)
+            z = np.where(p <= 0.5, zl, -zl)
+        return (self.low + self.high) / 2 + (self.high - self.low) / 2 * z
+
+    # ----------------------------------------------------------------- text and records
+    def describe(self) -> str:
+        """Short human-readable form, e.g. ``"rectangular [9.99, 10.01]"``."""
+        if self.kind == "normal":
+            return "normal"
+        if self.kind == "student-t":
+            return f"Student t (ν = {self.dof:g})"
+        if self.kind == "trapezoidal":
+            return f"trapezoidal (β = {self.beta:g})"
+        return self.kind
+
+    def to_dict(self) -> dict[str, Any]:
+        """JSON-ready form: the kind plus only the parameters it uses."""
+        d: dict[str, Any] = {"kind": self.kind}
+        if self.kind in ("normal", "student-t"):
+            d.update(loc=self.loc, scale=self.scale)
+            if self.kind == "student-t":
+                d["dof"] = self.dof
+        else:
+            d.update(low=self.low, high=self.high)
+            if self.kind == "triangular":
+                d["mode"] = self.loc
+            if self.kind == "trapezoidal":
+                d["beta"] = self.beta
+        return d
+
+    @classmethod
+    def from_dict(cls, d: dict[str, Any]) -> Distribution:
+        kind = d["kind"]
+        if kind == "normal":
+            return cls.normal(d["loc"], d["scale"])
+        if kind == "student-t":
+            return cls.student_t(d["loc"], d["scale"], d["dof"])
+        if kind == "rectangular":
+            return cls.rectangular(d["low"], d["high"])
+        if kind == "triangular":
+            return cls.triangular(d["low"], d["high"], d.get("mode"))
+        if kind == "arcsine":
+            return cls.arcsine(d["low"], d["high"])
+        if kind == "trapezoidal":
+            return cls.trapezoidal(d["low"], d["high"], d["beta"])
+        raise BudgetError(f"unknown distribution {kind!r}", field="distribution")

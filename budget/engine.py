@@ -1,0 +1,289 @@
+"""Evaluate a spec: inputs → quantities → model → LPU and Monte Carlo → Budget."""
+
+from __future__ import annotations
+
+import math
+from collections.abc import Callable
+from pathlib import Path
+from typing import Any
+
+import numpy as np
+
+from . import __version__
+from . import expression as ex
+from .errors import BudgetError, ComputationError, SpecError, did_you_mean
+from .inputs import InputContext, run_module
+from .inputs.direct import evaluate_direct, observations_of
+from .model import Model, build_model
+from .propagate import McmSettings, compare_lpu_mcm, monte_carlo, propagate_linear
+from .quantity import Quantity
+from .result import Budget, Measurand, MonteCarlo, Term
+from .spec import Spec, check_trials
+
+__all__ = ["evaluate", "resolve_inputs", "ResolvedInputs"]
+
+_MAX_DERIVATIVE_TEXT = 4000  # characters; longer derivatives are left out of the record
+
+
+class ResolvedInputs:
+    """The quantities of a spec, their correlation matrix and the module expressions."""
+
+    def __init__(self, quantities: list[Quantity], corr: np.ndarray,
+                 inlined: dict[str, ex.Node], modules: dict[str, dict[str, Any]],
+                 pairs: list[tuple[str, str, float]], notes: list[str]):
+        self.quantities, self.corr, self.inlined = quantities, corr, inlined
+        self.modules, self.pairs, self.notes = modules, pairs, notes
+
+
+def resolve_inputs(spec: Spec) -> ResolvedInputs:
+    """Evaluate every ``[inputs.NAME]`` (typed in or through its module) and the correlations."""
+    quantities: list[Quantity] = []
+    inlined: dict[str, ex.Node] = {}
+    modules: dict[str, dict[str, Any]] = {}
+    module_pairs: list[tuple[str, str, float]] = []
+    owner: dict[str, str] = {}
+    for name, table in spec.inputs.items():
+        ctx = InputContext(name=name, table=table, folder=spec.folder, spec_file=spec.path,
+                           lines=spec.lines.get(("inputs", name), {}))
+        if "module" in table:
+            res = run_module(ctx)
+            qs = list(res.quantities)
+            if res.expression is None:
+                if len(qs) != 1 or qs[0].name != name:  # pragma: no cover - module contract
+                    raise SpecError(f"module returned {[q.name for q in qs]} without an "
+                                    "expression", file=spec.path, field=f"inputs.{name}")
+            else:
+                tree = ex.parse(res.expression, field=f"inputs.{name}", file=spec.path)
+                missing = ex.names(tree) - {q.name for q in qs} - set(spec.constants)
+                if missing:  # pragma: no cover - module contract
+                    raise SpecError(f"module expression uses unknown {sorted(missing)}",
+                                    file=spec.path, field=f"inputs.{name}")
+                inlined[name] = tree
+            module_pairs.extend(res.correlations)
+            modules[name] = {"module": table["module"], "expression": res.expression,
+                             "quantities": [q.name for q in qs],
+                             "diagnostics": res.diagnostics}
+        else:
+            qs = [evaluate_direct(ctx)]
+        for q in qs:
+            if q.name in owner or q.name in spec.constants or q.name in spec.outputs:
+                raise SpecError(f"the name '{q.name}' is defined twice (by [inputs.{name}] and "
+                                f"{owner.get(q.name, 'another section')})", file=spec.path,
+                                line=ctx.line, field=f"inputs.{name}")
+            owner[q.name] = f"[inputs.{name}]"
+            quantities.append(q)
+
+    index = {q.name: i for i, q in enumerate(quantities)}
+    n = len(quantities)
+    corr = np.eye(n)
+    set_by: dict[tuple[int, int], float] = {}
+    pairs: list[tuple[str, str, float]] = []
+    line = spec.line_of(("correlations",), "pairs")
+
+    def put(a: str, b: str, r: float, fld: str, ln: int | None) -> None:
+        for x in (a, b):
+            if x not in index:
+                raise SpecError(f"'{x}' is not an input{did_you_mean(x, index)}",
+                                file=spec.path, line=ln, field=fld)
+        if a == b:
+            raise SpecError(f"a correlation of '{a}' with itself is always 1", file=spec.path,
+                            line=ln, field=fld)
+        if not (math.isfinite(r) and -1 <= r <= 1):
+            raise SpecError(f"r('{a}', '{b}') must lie in [-1, 1]; got {r!r}", file=spec.path,
+                            line=ln, field=fld)
+        i, j = sorted((index[a], index[b]))
+        if (i, j) in set_by and set_by[(i, j)] != r:
+            raise SpecError(f"r('{a}', '{b}') is given twice with different values "
+                            f"({set_by[(i, j)]!r} and {r!r})", file=spec.path, line=ln, field=fld)
+        set_by[(i, j)] = r
+        corr[i, j] = corr[j, i] = r
+        if r != 0:
+            pairs.append((a, b, r))
+
+    for a, b, r in spec.correlation_pairs:
+        put(a, b, r, "correlations.pairs", line)
+    for a, b, r in module_pairs:
+        put(a, b, r, "inputs", None)
+    obs_line = spec.line_of(("correlations",), "from_observations")
+    for group in spec.from_observations:
+        series = []
+        for name in group:
+            table = spec.inputs.get(name)
+            if table is None:
+                raise SpecError(f"'{name}' is not an input{did_you_mean(name, spec.inputs)}",
+                                file=spec.path, line=obs_line, field="correlations.from_observations")
+            ctx = InputContext(name=name, table=table, folder=spec.folder, spec_file=spec.path)
+            obs = observations_of(ctx)
+            if obs is None:
+                raise SpecError(f"'{name}' has no observations to correlate", file=spec.path,
+                                line=obs_line, field="correlations.from_observations")
+            series.append(obs)
+        sizes = {s.size for s in series}
+        if len(sizes) != 1:
+            raise SpecError(f"simultaneous observations must be equally many; got "
+                            f"{[s.size for s in series]} for {list(group)}", file=spec.path,
+                            line=obs_line, field="correlations.from_observations")
+        # JCGM 100 eq. (17): r(q̄, r̄) = s(q̄, r̄) / (s(q̄) s(r̄)), the same as r of the series
+        r_obs = np.corrcoef(np.vstack(series))
+        for i in range(len(group)):
+            for j in range(i + 1, len(group)):
+                put(group[i], group[j], float(r_obs[i, j]), "correlations.from_observations",
+                    obs_line)
+    _check_psd(corr, [q.name for q in quantities], spec)
+    return ResolvedInputs(quantities, corr, inlined, modules, pairs, [])
+
+
+def _check_psd(corr: np.ndarray, names: list[str], spec: Spec) -> None:
+    if corr.shape[0] < 2:
+        return
+    w, v = np.linalg.eigh(corr)
+    if w[0] < -1e-9:
+        comp = np.abs(v[:, 0])
+        worst = [names[i] for i in np.argsort(comp)[::-1][:3] if comp[i] > 0.1]
+        raise SpecError("the correlation matrix is not positive semi-definite (smallest "
+                        f"eigenvalue {w[0]:.3g}); the inconsistent coefficients involve "
+                        f"{', '.join(repr(x) for x in worst)}", file=spec.path,
+                        line=spec.line_of(("correlations",)), field="correlations")
+
+
+def evaluate(spec: Spec, *, trials: int | None | str = "spec", seed: int | None = None,
+             monte_carlo_enabled: bool | None = None,
+             progress: Callable[[int, int], None] | None = None) -> Budget:
+    """Evaluate a loaded spec into a Budget.
+
+    Parameters
+    ----------
+    spec : Spec
+    trials : int, None or "spec"
+        Monte Carlo trials: an integer, None for adaptive, or "spec" (default) for the spec's
+        own setting.
+    seed : int, optional
+        Overrides the spec's seed. When neither gives one, a fresh seed is drawn and recorded.
+    monte_carlo_enabled : bool, optional
+        Overrides ``[monte_carlo] enabled``.
+    progress : callable, optional
+        ``progress(done, total)`` during Monte Carlo.
+    """
+    resolved = resolve_inputs(spec)
+    qs = resolved.quantities
+    qnames = {q.name for q in qs}
+    model = build_model(spec.outputs, quantities=qnames, constants=spec.constants,
+                        inlined=resolved.inlined, file=spec.path,
+                        lines=spec.lines.get(("model",), {}))
+    notes = list(resolved.notes)
+    used = set().union(*(model.uses(o) for o in model.outputs))
+    unused = [q.name for q in qs if q.name not in used]
+    if unused:
+        notes.append("inputs not used by any output: " + ", ".join(unused))
+    lin, cov = propagate_linear(model, qs, resolved.corr,
+                                coverage_probability=spec.coverage_probability,
+                                order=spec.propagation_order, dof_rounding=spec.dof_rounding,
+                                fixed_k=spec.coverage_factor)
+    measurands = tuple(_measurand(spec, model, lin[o], qs) for o in model.outputs)
+    sd = np.sqrt(np.clip(np.diag(cov), 0, None))
+    with np.errstate(divide="ignore", invalid="ignore"):
+        cm = np.where(np.outer(sd, sd) > 0, cov / np.outer(sd, sd), 0.0)
+    np.fill_diagonal(cm, 1.0)
+
+    enabled = spec.monte_carlo_enabled if monte_carlo_enabled is None else monte_carlo_enabled
+    n_trials = spec.trials if trials == "spec" else trials
+    if isinstance(n_trials, int):
+        check_trials(n_trials, field="--trials")
+    if seed is None:
+        seed = spec.seed
+    if seed is None:
+        seed = int(np.random.SeedSequence().entropy % (2 ** 63))
+    mcs: tuple[MonteCarlo, ...] = ()
+    if enabled:
+        settings = McmSettings(trials=n_trials, seed=seed,
+                               coverage_probability=spec.coverage_probability,
+                               significant_digits=spec.significant_digits,
+                               max_trials=spec.max_trials)
+        mres = monte_carlo(model, qs, resolved.corr, settings, progress=progress)
+        out = []
+        for m in measurands:
+            r = mres[m.name]
+            lo, hi = r.symmetric if spec.interval == "symmetric" else r.shortest
+            v = compare_lpu_mcm(m.value, m.expanded_uncertainty, m.standard_uncertainty, lo, hi,
+                                spec.significant_digits)
+            out.append(MonteCarlo(measurand=m.name, trials=r.trials, value=r.value,
+                                  standard_uncertainty=r.standard_uncertainty, interval_low=lo,
+                                  interval_high=hi, interval_kind=spec.interval,
+                                  validated=v.validated, tolerance=v.tolerance, d_low=v.d_low,
+                                  d_high=v.d_high, symmetric_interval=r.symmetric,
+                                  shortest_interval=r.shortest,
+                                  histogram_counts=r.histogram_counts,
+                                  histogram_edges=r.histogram_edges, adaptive=r.adaptive,
+                                  stabilised=r.stabilised))
+            if not r.stabilised:
+                notes.append(f"{m.name}: the adaptive Monte Carlo procedure stopped at "
+                             f"max_trials = {spec.max_trials:,} before stabilising")
+        mcs = tuple(out)
+        if any(q.distribution.kind != "normal" for q in qs if not q.is_constant and any(
+                q.name in p[:2] for p in resolved.pairs)):
+            notes.append("correlated non-Gaussian inputs were sampled through a Gaussian copula")
+
+    files = {}
+    for q in qs:
+        for f in q.provenance.files:
+            files[f.path] = f.sha256
+    run = {
+        "description": spec.description,
+        "spec_file": Path(spec.path).name,
+        "spec_sha256": spec.sha256,
+        "software": f"qcs-budget {__version__}",
+        "seed": seed,
+        "trials_setting": "adaptive" if n_trials is None else n_trials,
+        "monte_carlo_enabled": enabled,
+        "coverage_probability": spec.coverage_probability,
+        "propagation_order": spec.propagation_order,
+        "dof_rounding": spec.dof_rounding,
+        "coverage_factor_fixed": spec.coverage_factor,
+        "significant_digits": spec.significant_digits,
+        "chain": spec.chain,
+        "model": dict(spec.outputs),
+        "constants": dict(model.constants),
+        "report": dict(spec.report),
+        "input_correlations": [[a, b, r] for a, b, r in resolved.pairs],
+        "modules": resolved.modules,
+        "files": [{"path": p, "sha256": h} for p, h in sorted(files.items())],
+        "notes": notes,
+    }
+    return Budget(title=spec.title, measurands=measurands,
+                  correlation_names=model.outputs,
+                  correlation_matrix=tuple(tuple(float(x) for x in row) for row in cm),
+                  monte_carlo=mcs, inputs=tuple(qs), run=run)
+
+
+def _measurand(spec: Spec, model: Model, lr, qs: list[Quantity]) -> Measurand:
+    tree = model.trees[lr.name]
+    used = ex.names(tree)
+    by_name = {q.name: q for q in qs}
+    terms = []
+    for i, name in enumerate(lr.names):
+        if name not in used:
+            continue
+        q = by_name[name]
+        try:
+            d = ex.to_text(ex.diff(tree, name))
+        except RecursionError:  # pragma: no cover - enormous models
+            d = ""
+        terms.append(Term(name=name, value=q.value, standard_uncertainty=q.standard_uncertainty,
+                          unit=q.unit, distribution=q.distribution.kind, dof=q.dof,
+                          sensitivity=float(lr.sensitivities[i]),
+                          contribution=float(abs(lr.contributions[i])),
+                          variance_share=float(lr.variance_shares[i]),
+                          evaluation=q.evaluation,
+                          derivative=d if len(d) <= _MAX_DERIVATIVE_TEXT else ""))
+    if not math.isfinite(lr.standard_uncertainty):  # pragma: no cover - guarded upstream
+        raise ComputationError("combined standard uncertainty is not finite",
+                               field=f"model.{lr.name}")
+    return Measurand(name=lr.name, unit=spec.units.get(lr.name, ""), value=lr.value,
+                     standard_uncertainty=lr.standard_uncertainty,
+                     effective_dof=lr.effective_dof, coverage_factor=lr.coverage_factor,
+                     coverage_probability=lr.coverage_probability,
+                     expanded_uncertainty=lr.expanded_uncertainty, terms=tuple(terms),
+                     expression=spec.outputs[lr.name],
+                     second_order_variance=lr.second_order_variance)
+
+

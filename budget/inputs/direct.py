@@ -1,0 +1,203 @@
+"""Inputs typed into the spec: Type B values from a certificate or specification, and Type A
+from repeated ``observations``.
+
+Keys of a typed-in ``[inputs.NAME]`` table:
+
+* ``value`` and ``standard_uncertainty`` (normal by default), or ``expanded_uncertainty`` with
+  ``coverage_factor`` (u = U/k, as a certificate states it);
+* ``distribution`` = normal, rectangular, triangular, arcsine, trapezoidal or student-t;
+  bounded ones take ``low``/``high`` or ``value`` + ``half_width``; triangular may take ``mode``;
+  trapezoidal needs ``beta`` (top width / base width); student-t takes ``value``,
+  ``standard_uncertainty`` (its scale) and ``dof``;
+* ``observations = [...]``: mean, u = s/√n, ν = n − 1, Type A (JCGM 100 §4.2);
+* optional ``dof``, ``unit``, ``description``, ``reason`` (why this distribution),
+  ``source`` (certificate or document reference), ``evaluation`` ("A" or "B").
+
+A zero standard uncertainty makes the input a constant (it appears in the model, not the budget).
+"""
+
+from __future__ import annotations
+
+import math
+from typing import Any
+
+import numpy as np
+
+from ..distributions import KINDS, Distribution
+from ..errors import BudgetError, SpecError, did_you_mean
+from ..quantity import Provenance, Quantity
+from .context import InputContext
+
+__all__ = ["KEYS", "evaluate_direct", "observations_of"]
+
+KEYS = frozenset({"value", "standard_uncertainty", "expanded_uncertainty", "coverage_factor",
+                  "distribution", "low", "high", "half_width", "mode", "beta", "dof", "unit",
+                  "description", "reason", "source", "evaluation", "observations"})
+
+_REASONS = {
+    "normal": "normal: stated as a standard uncertainty (or U with k), as from a calibration "
+              "certificate (JCGM 100 §4.3.3-4.3.4)",
+    "rectangular": "rectangular: only bounds are known, any value between them equally likely "
+                   "(JCGM 100 §4.3.7)",
+    "triangular": "triangular: bounds known and values near the centre more likely "
+                  "(JCGM 100 §4.3.9)",
+    "arcsine": "arcsine (U-shaped): a quantity varying sinusoidally between its bounds "
+               "(JCGM 101 §6.4.6)",
+    "trapezoidal": "trapezoidal: bounds themselves inexactly known (JCGM 101 §6.4.4)",
+    "student-t": "scaled and shifted Student t: a Type A result with few degrees of freedom "
+                 "(JCGM 101 §6.4.9)",
+}
+
+
+def observations_of(ctx: InputContext) -> np.ndarray | None:
+    """The ``observations`` list as a float array (None when absent)."""
+    if "observations" not in ctx.table:
+        return None
+    obs = ctx.table["observations"]
+    if not isinstance(obs, list):
+        raise ctx.spec_error("observations", "must be a list of numbers")
+    for i, v in enumerate(obs):
+        if isinstance(v, bool) or not isinstance(v, (int, float)) or not math.isfinite(v):
+            raise ctx.spec_error("observations", f"entry {i + 1} is not a finite number: {v!r}")
+    if len(obs) < 2:
+        raise ctx.spec_error("observations", f"needs at least 2 readings; got {len(obs)}")
+    return np.asarray(obs, dtype=float)
+
+
+def evaluate_direct(ctx: InputContext) -> Quantity:
+    """Turn a typed-in table into a Quantity (see module docstring for the keys)."""
+    t = ctx.table
+    for key in t:
+        if key not in KEYS:
+            raise ctx.spec_error(key, f"unknown key{did_you_mean(key, KEYS | {'module', 'file'})}")
+    unit = ctx.option("unit", str, "1")
+    description = ctx.option("description", str, "")
+    source = ctx.option("source", str, "")
+    reason = ctx.option("reason", str, "")
+    evaluation = ctx.option("evaluation", str, None)
+    if evaluation is not None and evaluation not in ("A", "B"):
+        raise ctx.spec_error("evaluation", f"must be \"A\" or \"B\"; got {evaluation!r}")
+    obs = observations_of(ctx)
+    if obs is not None:
+        clash = [k for k in ("value", "standard_uncertainty", "expanded_uncertainty", "low",
+                             "high", "half_width") if k in t]
+        if clash:
+            raise ctx.spec_error(clash[0], "give either observations or a value, not both")
+        kind = ctx.choice("distribution", ("normal", "student-t"), "normal")
+        n = obs.size
+        mean = float(obs.mean())
+        u = float(obs.std(ddof=1) / math.sqrt(n))
+        dof = float(n - 1)
+        if "dof" in t:
+            raise ctx.spec_error("dof", "is n − 1 for observations; do not set it")
+        dist = Distribution.normal(mean, u) if kind == "normal" else Distribution.student_t(
+            mean, u, dof)
+        prov = Provenance(
+            origin="observations",
+            method=f"arithmetic mean of {n} observations; u = s/√n (JCGM 100 §4.2.3)",
+            distribution_reason=reason or _REASONS[kind],
+            dof_reason=f"ν = n − 1 = {n - 1} (JCGM 100 §4.2.6)",
+            notes=(source,) if source else ())
+        return _quantity(ctx, mean, u, dist, unit, dof, evaluation or "A", description, prov)
+
+    kind = ctx.option("distribution", str, "normal")
+    if kind not in KINDS:
+        raise ctx.spec_error("distribution", f"unknown distribution {kind!r}"
+                                             f"{did_you_mean(kind, KINDS)} (known: {', '.join(KINDS)})")
+    dof = ctx.option("dof", float, math.inf, check=lambda x: x > 0, must="> 0")
+    try:
+        dist = _distribution(ctx, kind, dof)
+    except SpecError:
+        raise
+    except BudgetError as exc:
+        raise ctx.spec_error(exc.field or "distribution", exc.message) from None
+    value = dist.mean
+    u = dist.std if kind != "student-t" else dist.scale
+    if kind == "student-t":
+        dof = dist.dof
+    dof_reason = (f"ν = {dof:g}, as stated" if math.isfinite(dof) else
+                  "ν = ∞: the uncertainty is taken as exactly known (no reliability stated)")
+    how = f"typed in ({source})" if source else "typed in"
+    prov = Provenance(origin="spec" if u > 0 else "constant",
+                      method=f"{how}; u from the {kind} distribution's standard deviation"
+                      if kind != "normal" else how,
+                      distribution_reason=reason or _REASONS[kind], dof_reason=dof_reason,
+                      notes=())
+    return _quantity(ctx, value, u, dist, unit, dof, evaluation or "B", description, prov)
+
+
+def _distribution(ctx: InputContext, kind: str, dof: float) -> Distribution:
+    t = ctx.table
+    if kind in ("normal", "student-t"):
+        for k in ("low", "high", "half_width", "beta", "mode"):
+            if k in t:
+                raise ctx.spec_error(k, f"does not apply to a {kind} distribution")
+        value = ctx.number("value")
+        if "standard_uncertainty" in t and "expanded_uncertainty" in t:
+            raise ctx.spec_error("expanded_uncertainty",
+                                 "give standard_uncertainty or expanded_uncertainty, not both")
+        if "expanded_uncertainty" in t:
+            big_u = ctx.number("expanded_uncertainty", nonnegative=True)
+            k = ctx.number("coverage_factor", positive=True)
+            u = big_u / k
+        else:
+            if "coverage_factor" in t:
+                raise ctx.spec_error("coverage_factor", "only goes with expanded_uncertainty")
+            u = ctx.number("standard_uncertainty", nonnegative=True)
+        if kind == "normal":
+            return Distribution.normal(value, u)
+        if not math.isfinite(dof):
+            raise ctx.spec_error("dof", "a student-t distribution needs finite dof")
+        return Distribution.student_t(value, u, dof)
+    # bounded kinds
+    for k in ("standard_uncertainty", "expanded_uncertainty", "coverage_factor"):
+        if k in t:
+            raise ctx.spec_error(k, f"a {kind} distribution is given by its bounds "
+                                    "(low/high or value + half_width)")
+    if "half_width" in t:
+        if "low" in t or "high" in t:
+            raise ctx.spec_error("half_width", "give low/high or value + half_width, not both")
+        centre = ctx.number("value")
+        hw = ctx.number("half_width", nonnegative=True)
+        if hw == 0:
+            raise ctx.spec_error("half_width", "must be > 0 (use standard_uncertainty = 0 for "
+                                               "a constant)")
+        low, high = centre - hw, centre + hw
+    else:
+        if "low" not in t or "high" not in t:
+            raise ctx.spec_error("low", f"a {kind} distribution needs low and high "
+                                        "(or value + half_width)")
+        low, high = ctx.number("low"), ctx.number("high")
+        if not low < high:
+            raise ctx.spec_error("low", f"must be smaller than high; got low={low!r}, "
+                                        f"high={high!r}")
+        if "value" in t:
+            v = ctx.number("value")
+            mid = (low + high) / 2
+            if kind != "triangular" and abs(v - mid) > 1e-12 * max(abs(mid), abs(high - low)):
+                raise ctx.spec_error("value", f"must be the midpoint {mid!r} of low and high "
+                                              f"(or leave it out); got {v!r}")
+    if kind == "rectangular":
+        return Distribution.rectangular(low, high)
+    if kind == "triangular":
+        mode = ctx.number("mode") if "mode" in t else None
+        return Distribution.triangular(low, high, mode)
+    if kind == "arcsine":
+        return Distribution.arcsine(low, high)
+    beta = ctx.number("beta")
+    return Distribution.trapezoidal(low, high, beta)
+
+
+def _quantity(ctx: InputContext, value: float, u: float, dist: Distribution, unit: str,
+              dof: float, evaluation: str, description: str, prov: Provenance) -> Quantity:
+    try:
+        return Quantity(name=ctx.name, value=value, standard_uncertainty=u, distribution=dist,
+                        unit=unit, dof=dof, evaluation=evaluation, description=description,
+                        provenance=prov)
+    except BudgetError as exc:
+        raise ctx.spec_error("value", exc.message) from None
+
+
+def table_kind(table: dict[str, Any]) -> str:
+    """"module" when the table names an input module, else "direct"."""
+    return "module" if "module" in table else "direct"

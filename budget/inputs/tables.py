@@ -1,0 +1,128 @@
+"""Reading the CSV tables of input modules, with errors that name file, row and column.
+
+Row numbers in messages are 1-based *data* rows (the header is not counted), so "row 3" is the
+third line after the header — the same numbering as the ``rows`` field of a FileRef.
+"""
+
+from __future__ import annotations
+
+import io
+from collections.abc import Iterable
+from pathlib import Path
+
+import numpy as np
+import pandas as pd
+
+from ..errors import DataError, did_you_mean
+
+__all__ = ["read_table", "numeric_column", "date_column", "row_ranges"]
+
+
+def read_table(path: Path, required: Iterable[str], optional: Iterable[str] = (), *,
+               shown: str | None = None, min_rows: int = 1) -> pd.DataFrame:
+    """Read a UTF-8 CSV file with a header row into a DataFrame of strings.
+
+    Parameters
+    ----------
+    path : Path
+        The file.
+    required, optional : iterable of str
+        Column names; a missing required column is an error with a did-you-mean, and columns
+        outside both lists are refused (a misspelt optional column must not be ignored).
+    shown : str, optional
+        File name for messages (default ``str(path)``).
+    min_rows : int
+        Fewest data rows accepted. Default 1.
+    """
+    shown = shown or str(path)
+    raw = path.read_bytes()
+    if b"\x00" in raw[:65536]:
+        raise DataError("not a text file (contains NUL bytes)", file=shown)
+    try:
+        text = raw.decode("utf-8-sig")
+    except UnicodeDecodeError as exc:
+        line = raw[: exc.start].count(b"\n") + 1
+        raise DataError(f"not UTF-8 text (bad byte at offset {exc.start}, line {line})",
+                        file=shown) from None
+    lines = [ln for ln in text.splitlines() if ln.strip() and not ln.lstrip().startswith("#")]
+    if not lines:
+        raise DataError("file is empty (no header row)", file=shown)
+    try:
+        df = pd.read_csv(io.StringIO("\n".join(lines)), dtype=str, keep_default_na=False,
+                         skipinitialspace=True)
+    except (pd.errors.ParserError, ValueError) as exc:
+        msg = " ".join(str(exc).split())
+        raise DataError(f"cannot read as CSV: {msg}", file=shown) from None
+    df.columns = [str(c).strip() for c in df.columns]
+    required, optional = list(required), list(optional)
+    known = required + optional
+    seen = set()
+    for c in df.columns:
+        if c in seen:
+            raise DataError("column appears twice in the header", file=shown, field=c)
+        seen.add(c)
+        if c not in known:
+            raise DataError(f"unknown column{did_you_mean(c, known)} (expected: "
+                            f"{', '.join(known)})", file=shown, field=c)
+    for c in required:
+        if c not in df.columns:
+            raise DataError(f"missing column{did_you_mean(c, df.columns)}", file=shown, field=c)
+    if len(df) < min_rows:
+        raise DataError(f"has {len(df)} data rows; at least {min_rows} needed", file=shown)
+    return df
+
+
+def numeric_column(df: pd.DataFrame, column: str, *, shown: str, allow_blank: bool = False,
+                   positive: bool = False, nonnegative: bool = False) -> np.ndarray:
+    """Convert a string column to float64, refusing text, NaN and infinities by row."""
+    s = df[column].str.strip()
+    values = pd.to_numeric(s, errors="coerce").to_numpy(dtype=float)
+    bad = ~np.isfinite(values)
+    if allow_blank:
+        bad &= (s != "").to_numpy()
+    if bad.any():
+        i = int(np.flatnonzero(bad)[0])
+        raise DataError(f"not a finite number: {df[column].iloc[i]!r}", file=shown, row=i + 1,
+                        field=column)
+    if positive or nonnegative:
+        viol = ~(values > 0) if positive else ~(values >= 0)
+        if allow_blank:
+            viol &= (s != "").to_numpy()
+        if viol.any():
+            i = int(np.flatnonzero(viol)[0])
+            need = "> 0" if positive else ">= 0"
+            raise DataError(f"must be {need}; got {df[column].iloc[i]!r}", file=shown,
+                            row=i + 1, field=column)
+    return values
+
+
+def date_column(df: pd.DataFrame, column: str, *, shown: str) -> pd.DatetimeIndex:
+    """Parse ISO 8601 dates (or date-times), refusing unparseable ones by row."""
+    out = []
+    for i, v in enumerate(df[column]):
+        try:
+            ts = pd.Timestamp(str(v).strip())
+        except (ValueError, TypeError):
+            ts = pd.NaT
+        if ts is pd.NaT or pd.isna(ts):
+            raise DataError(f"not an ISO 8601 date: {v!r}", file=shown, row=i + 1, field=column)
+        if ts.tzinfo is not None:
+            ts = ts.tz_convert("UTC").tz_localize(None)
+        out.append(ts)
+    return pd.DatetimeIndex(out)
+
+
+def row_ranges(indices: Iterable[int]) -> str:
+    """Compress 1-based row numbers into ``"1-5, 8, 10-12"``."""
+    idx = sorted(set(int(i) for i in indices))
+    if not idx:
+        return ""
+    parts, start, prev = [], idx[0], idx[0]
+    for i in idx[1:]:
+        if i == prev + 1:
+            prev = i
+            continue
+        parts.append(f"{start}-{prev}" if prev > start else f"{start}")
+        start = prev = i
+    parts.append(f"{start}-{prev}" if prev > start else f"{start}")
+    return ", ".join(parts)

@@ -1,0 +1,198 @@
+"""The law of propagation of uncertainty (JCGM 100 §5) with Welch–Satterthwaite (Annex G).
+
+For outputs Y_a = f_a(X_1 … X_N) with estimates x, standard uncertainties u and correlation
+matrix r:
+
+* sensitivity coefficients c_ai = ∂f_a/∂x_i, exact (forward-mode differentiation of the tree);
+* u_c²(y_a) = Σ_i Σ_j c_ai c_aj u_i u_j r_ij (JCGM 100 eq. 16);
+* cov(y_a, y_b) = Σ_i Σ_j c_ai c_bj u_i u_j r_ij (JCGM 100 eq. F / H.2 practice);
+* share of term i in u_c²: (c_i u_i) Σ_j r_ij (c_j u_j) / u_c². The shares sum to one; without
+  correlations each is (c_i u_i)²/u_c², and with correlations a share may fall outside [0, 1];
+* ν_eff = u_c⁴ / Σ_i (c_i u_i)⁴/ν_i (JCGM 100 eq. G.2b); a term with ν = ∞ adds nothing.
+  The formula assumes independent terms. Correlated inputs are therefore taken together: each
+  group of inputs linked by correlations contributes one variance v_g = (c·u)_gᵀ r_g (c·u)_g with
+  the smallest ν of its members (for simultaneous observations, as in JCGM 100 H.2, all members
+  share ν = n − 1, and the group behaves as one component with that ν; compare Willink,
+  Metrologia 44, 340, 2007, for the general case);
+* k = t_p(ν_eff). A fractional ν_eff is truncated to the next lower integer by default
+  (JCGM 100 G.4.1 note 1 allows truncation or interpolation); ``dof_rounding="interpolate"``
+  evaluates the t quantile at the fractional ν instead;
+* second order (``order=2``, JCGM 100 §5.1.2 note, uncorrelated inputs only):
+  u_c² += Σ_i Σ_j [½ (∂²f/∂x_i∂x_j)² + (∂f/∂x_i)(∂³f/∂x_i∂x_j²)] u_i² u_j².
+"""
+
+from __future__ import annotations
+
+import math
+from collections.abc import Sequence
+from dataclasses import dataclass
+
+import numpy as np
+from scipy import stats
+
+from .. import expression as ex
+from ..errors import ComputationError, SpecError
+from ..model import Model
+from ..quantity import Quantity
+
+__all__ = ["LinearResult", "propagate_linear", "coverage_factor", "correlation_groups"]
+
+
+@dataclass(frozen=True)
+class LinearResult:
+    """Linear-propagation result for one output.
+
+    All arrays are indexed like the ``names`` tuple of uncertain inputs.
+    """
+
+    name: str
+    value: float
+    standard_uncertainty: float
+    names: tuple[str, ...]
+    sensitivities: np.ndarray
+    contributions: np.ndarray       # c_i u_i (signed)
+    variance_shares: np.ndarray
+    second_order_variance: float
+    effective_dof: float
+    coverage_factor: float
+    coverage_probability: float
+    expanded_uncertainty: float
+
+
+def coverage_factor(p: float, dof: float, rounding: str = "floor") -> float:
+    """k = t_p(ν): the two-sided Student-t quantile for coverage probability ``p``.
+
+    ``dof`` may be ``inf`` (then the normal quantile). ``rounding`` "floor" truncates a
+    fractional ν to the next lower integer (at least 1); "interpolate" uses it as it is.
+    """
+    if not 0 < p < 1:
+        raise SpecError(f"coverage probability must lie in (0, 1); got {p!r}")
+    q = (1 + p) / 2
+    if math.isinf(dof) or dof > 1e7:
+        return float(stats.norm.ppf(q))
+    # the small allowance keeps ν = 3.9999999999 (rounding noise of an exact 4) at 4
+    nu = max(1.0, math.floor(dof + 1e-9)) if rounding == "floor" else max(dof, 1e-9)
+    return float(stats.t.ppf(q, nu))
+
+
+def propagate_linear(model: Model, quantities: Sequence[Quantity], corr: np.ndarray, *,
+                     coverage_probability: float = 0.95, order: int = 1,
+                     dof_rounding: str = "floor", fixed_k: float | None = None
+                     ) -> tuple[dict[str, LinearResult], np.ndarray]:
+    """Propagate the input uncertainties through every output of the model.
+
+    Parameters
+    ----------
+    model : Model
+    quantities : sequence of Quantity
+        All input quantities (constants included; they get no budget row).
+    corr : ndarray
+        Correlation matrix between ``quantities`` (same order).
+    coverage_probability : float
+        p for the expanded uncertainty. Default 0.95.
+    order : int
+        1, or 2 to add the second-order terms.
+    dof_rounding : str
+        "floor" (default) or "interpolate"; see :func:`coverage_factor`.
+    fixed_k : float, optional
+        Use this coverage factor instead of t_p(ν_eff).
+
+    Returns
+    -------
+    results : dict
+        Output name -> LinearResult.
+    output_covariance : ndarray
+        Covariance matrix of the outputs (first order), in ``model.outputs`` order.
+    """
+    env = {**model.constants, **{q.name: q.value for q in quantities}}
+    keep = [i for i, q in enumerate(quantities) if not q.is_constant]
+    names = tuple(quantities[i].name for i in keep)
+    u = np.array([quantities[i].standard_uncertainty for i in keep])
+    dof = np.array([quantities[i].dof for i in keep])
+    r = corr[np.ix_(keep, keep)] if keep else np.zeros((0, 0))
+    index = {n: i for i, n in enumerate(names)}
+    correlated = bool(np.any(np.abs(r - np.eye(len(keep))) > 0))
+    if order == 2 and correlated:
+        raise SpecError("propagation_order = 2 needs uncorrelated inputs (JCGM 100 §5.1.2 "
+                        "gives the second-order terms only for that case); remove the "
+                        "correlations or use order 1", field="budget.propagation_order")
+
+    groups = correlation_groups(r)
+    results: dict[str, LinearResult] = {}
+    cu_rows = []
+    for name in model.outputs:
+        value, c = ex.value_and_gradient(model.trees[name], env, index)
+        if not math.isfinite(value):
+            raise ComputationError("the model gives a non-finite value at the input estimates "
+                                   f"({value!r})", field=f"model.{name}")
+        if not np.all(np.isfinite(c)):
+            bad = names[int(np.flatnonzero(~np.isfinite(c))[0])]
+            raise ComputationError(f"the sensitivity coefficient for '{bad}' is not finite at "
+                                   "the input estimates", field=f"model.{name}")
+        cu = c * u
+        cu_rows.append(cu)
+        r_cu = r @ cu
+        var1 = float(cu @ r_cu)
+        var2 = _second_order(model.trees[name], env, names, u) if order == 2 else 0.0
+        var = var1 + var2
+        uc = math.sqrt(max(var, 0.0))
+        shares = cu * r_cu / var if var > 0 else np.zeros_like(cu)
+        denom = 0.0
+        for g in groups:
+            nu_g = float(dof[g].min())
+            if math.isfinite(nu_g):
+                v_g = float(cu[g] @ r[np.ix_(g, g)] @ cu[g])
+                denom += v_g ** 2 / nu_g
+        nu = var ** 2 / denom if denom > 0 else math.inf
+        k = fixed_k if fixed_k is not None else coverage_factor(coverage_probability, nu,
+                                                                dof_rounding)
+        results[name] = LinearResult(
+            name=name, value=float(value), standard_uncertainty=uc, names=names,
+            sensitivities=c, contributions=cu, variance_shares=shares,
+            second_order_variance=var2, effective_dof=nu, coverage_factor=k,
+            coverage_probability=coverage_probability, expanded_uncertainty=k * uc)
+    cu_m = np.array(cu_rows) if cu_rows else np.zeros((0, len(keep)))
+    cov = cu_m @ r @ cu_m.T
+    return results, cov
+
+
+def correlation_groups(r: np.ndarray) -> list[list[int]]:
+    """Connected components of the graph whose edges are the non-zero correlations."""
+    n = r.shape[0]
+    seen: set[int] = set()
+    out = []
+    for a in range(n):
+        if a in seen:
+            continue
+        comp, stack = [], [a]
+        while stack:
+            b = stack.pop()
+            if b in seen:
+                continue
+            seen.add(b)
+            comp.append(b)
+            stack.extend(int(c) for c in np.flatnonzero(r[b] != 0) if c not in seen and c != b)
+        out.append(sorted(comp))
+    return out
+
+
+def _second_order(tree: ex.Node, env: dict, names: tuple[str, ...], u: np.ndarray) -> float:
+    """Σ_i Σ_j [½ f_ij² + f_i f_ijj] u_i² u_j² (JCGM 100 §5.1.2 note)."""
+    total = 0.0
+    used = ex.names(tree)
+    first = {n: ex.diff(tree, n) for n in names if n in used}
+
+    def at(node: ex.Node) -> float:
+        return float(ex.compile_node(node)(env))
+
+    for i, ni in enumerate(names):
+        if ni not in first:
+            continue
+        fi = first[ni]
+        for j, nj in enumerate(names):
+            if nj not in used:
+                continue
+            fij = ex.diff(fi, nj)
+            fijj = ex.diff(fij, nj)
+            total += (0.5 * at(fij) ** 2 + at(fi) * at(fijj)) * u[i] ** 2 * u[j] ** 2
+    return total

@@ -1,0 +1,223 @@
+"""The Monte Carlo method of JCGM 101 (propagation of distributions).
+
+* Samples come from a numpy ``Generator`` (PCG64) seeded with a recorded seed.
+* Uncorrelated inputs are drawn from their own distributions (JCGM 101 §6.4). Correlated
+  Gaussian inputs are drawn from the multivariate Gaussian (§6.4.8). A correlated input with a
+  non-Gaussian distribution is joined to the others through a Gaussian copula (each marginal
+  keeps its own distribution; the correlation imposed is that of the underlying Gaussian, which
+  for non-Gaussian marginals differs slightly from r — stated in the result notes).
+* Work is done in chunks of :data:`CHUNK` trials, so memory grows with trials × outputs only.
+* ``trials=None`` runs the adaptive procedure of JCGM 101 §7.9: batches of
+  M = max(⌈100/(1 − p)⌉, 10⁴) trials until twice the standard deviations of the batch means of
+  y, u(y) and both interval ends are all within the numerical tolerance δ of u(y) (§7.9.2).
+* Coverage intervals: probabilistically symmetric (§7.7.1) and shortest (§7.7.2).
+"""
+
+from __future__ import annotations
+
+import math
+from collections.abc import Callable, Sequence
+from dataclasses import dataclass
+
+import numpy as np
+from scipy import special
+
+from ..errors import ComputationError
+from ..model import Model
+from ..quantity import Quantity
+from .lpu import correlation_groups
+from .validate import numerical_tolerance
+
+__all__ = ["McmSettings", "McmResult", "monte_carlo", "CHUNK", "coverage_intervals"]
+
+CHUNK = 200_000  # trials per chunk: ~1.6 MB per input, fixed so that results are reproducible
+
+
+@dataclass(frozen=True)
+class McmSettings:
+    """Settings of a Monte Carlo run.
+
+    Parameters
+    ----------
+    trials : int or None
+        Fixed number of trials, or None for the adaptive procedure.
+    seed : int
+        Seed of the random-number generator (always recorded).
+    coverage_probability : float
+        p of the coverage interval. Default 0.95.
+    significant_digits : int
+        ndig for the numerical tolerance (adaptive stopping and §8 validation). Default 2.
+    max_trials : int
+        Upper bound for the adaptive procedure. Default 10⁷.
+    """
+
+    trials: int | None
+    seed: int
+    coverage_probability: float = 0.95
+    significant_digits: int = 2
+    max_trials: int = 10_000_000
+
+
+@dataclass(frozen=True)
+class McmResult:
+    """Monte Carlo summary for one output (samples are not kept)."""
+
+    name: str
+    trials: int
+    value: float
+    standard_uncertainty: float
+    symmetric: tuple[float, float]
+    shortest: tuple[float, float]
+    histogram_counts: tuple[int, ...]
+    histogram_edges: tuple[float, ...]
+    adaptive: bool
+    stabilised: bool
+    batches: int
+
+
+def coverage_intervals(sorted_y: np.ndarray, p: float) -> tuple[tuple[float, float],
+                                                                tuple[float, float]]:
+    """Probabilistically symmetric and shortest 100p % intervals from sorted samples.
+
+    JCGM 101 §7.7: q = pM + ½ rounded down; symmetric: r = (M − q)/2 (rounded up to an integer
+    when needed), interval [y_(r), y_(r+q)] in 1-based order statistics; shortest: the r* that
+    minimises y_(r+q) − y_(r) for r = 1 … M − q.
+    """
+    m = sorted_y.size
+    q = int(p * m + 0.5)
+    q = min(max(q, 1), m - 1)
+    r = (m - q) // 2 if (m - q) % 2 == 0 else (m - q + 1) // 2
+    r = max(r, 1)
+    sym = (float(sorted_y[r - 1]), float(sorted_y[r + q - 1]))
+    widths = sorted_y[q:] - sorted_y[: m - q]
+    i = int(np.argmin(widths))
+    short = (float(sorted_y[i]), float(sorted_y[i + q]))
+    return sym, short
+
+
+class _Sampler:
+    """Draws chunks of input samples: independent inputs and correlated groups."""
+
+    def __init__(self, quantities: Sequence[Quantity], corr: np.ndarray):
+        self.fixed = {q.name: q.value for q in quantities if q.is_constant}
+        live = [i for i, q in enumerate(quantities) if not q.is_constant]
+        r = corr[np.ix_(live, live)]
+        self.independent: list[Quantity] = []
+        self.groups: list[tuple[list[Quantity], np.ndarray, bool]] = []
+        for comp in correlation_groups(r):
+            qs = [quantities[live[c]] for c in comp]
+            if len(comp) == 1:
+                self.independent.append(qs[0])
+                continue
+            sub = r[np.ix_(comp, comp)]
+            w, v = np.linalg.eigh(sub)
+            factor = v * np.sqrt(np.clip(w, 0.0, None))   # sub ≈ factor @ factor.T (PSD-safe)
+            gaussian = all(q.distribution.kind == "normal" for q in qs)
+            self.groups.append((qs, factor, gaussian))
+        self.copula_used = any(not g for _, _, g in self.groups)
+
+    def draw(self, rng: np.random.Generator, m: int) -> dict[str, np.ndarray]:
+        env: dict[str, np.ndarray] = dict(self.fixed)
+        for q in self.independent:
+            env[q.name] = q.distribution.sample(rng, m)
+        for qs, factor, gaussian in self.groups:
+            z = rng.standard_normal((m, len(qs))) @ factor.T
+            for j, q in enumerate(qs):
+                d = q.distribution
+                env[q.name] = d.loc + d.scale * z[:, j] if gaussian else d.ppf(special.ndtr(z[:, j]))
+        return env
+
+
+def monte_carlo(model: Model, quantities: Sequence[Quantity], corr: np.ndarray,
+                settings: McmSettings, *,
+                progress: Callable[[int, int], None] | None = None) -> dict[str, McmResult]:
+    """Run the Monte Carlo method for every output of the model.
+
+    Parameters
+    ----------
+    progress : callable, optional
+        Called as ``progress(done, total)`` after each chunk (total is the current target for
+        the adaptive procedure).
+    """
+    rng = np.random.default_rng(settings.seed)
+    sampler = _Sampler(quantities, corr)
+    p = settings.coverage_probability
+    outputs = model.outputs
+
+    def run(n: int, done0: int, total: int) -> dict[str, np.ndarray]:
+        out = {name: np.empty(n) for name in outputs}
+        done = 0
+        while done < n:
+            m = min(CHUNK, n - done)
+            vals = model.evaluate(sampler.draw(rng, m))
+            for name in outputs:
+                out[name][done:done + m] = vals[name]
+            done += m
+            if progress is not None:
+                progress(done0 + done, total)
+        return out
+
+    if settings.trials is not None:
+        samples = run(settings.trials, 0, settings.trials)
+        batches, stabilised = 1, True
+    else:
+        batch = max(math.ceil(100 / (1 - p)), 10_000)
+        parts: list[dict[str, np.ndarray]] = []
+        stats: list[dict[str, tuple[float, float, float, float]]] = []
+        stabilised = False
+        while True:
+            h = len(parts)
+            target = max((h + 1) * batch, 2 * batch)
+            part = run(batch, h * batch, min(target, settings.max_trials))
+            parts.append(part)
+            stats.append({n: _batch_stats(part[n], p) for n in outputs})
+            if len(parts) >= 2 and _stable(parts, stats, outputs, settings.significant_digits):
+                stabilised = True
+                break
+            if (len(parts) + 1) * batch > settings.max_trials:
+                break
+        samples = {n: np.concatenate([pt[n] for pt in parts]) for n in outputs}
+        batches = len(parts)
+
+    results = {}
+    for name in outputs:
+        y = samples[name]
+        if not np.all(np.isfinite(y)):
+            bad = int(np.count_nonzero(~np.isfinite(y)))
+            raise ComputationError(f"{bad} of {y.size} Monte Carlo trials gave a non-finite "
+                                   "value (the model is undefined somewhere inside the input "
+                                   "distributions, e.g. a division by a quantity that can be 0)",
+                                   field=f"model.{name}")
+        mean = float(y.mean())
+        sd = float(y.std(ddof=1))
+        y.sort()
+        sym, short = coverage_intervals(y, p)
+        lo, hi = np.quantile(y, [0.0005, 0.9995]) if y.size > 2000 else (y[0], y[-1])
+        if hi <= lo:
+            lo, hi = lo - 0.5, hi + 0.5
+        counts, edges = np.histogram(y, bins=80, range=(lo, hi))
+        results[name] = McmResult(
+            name=name, trials=int(y.size), value=mean, standard_uncertainty=sd, symmetric=sym,
+            shortest=short, histogram_counts=tuple(int(c) for c in counts),
+            histogram_edges=tuple(float(e) for e in edges), adaptive=settings.trials is None,
+            stabilised=stabilised, batches=batches)
+    return results
+
+
+def _batch_stats(y: np.ndarray, p: float) -> tuple[float, float, float, float]:
+    ys = np.sort(y)
+    sym, _ = coverage_intervals(ys, p)
+    return float(ys.mean()), float(ys.std(ddof=1)), sym[0], sym[1]
+
+
+def _stable(parts, stats, outputs, ndig: int) -> bool:
+    """JCGM 101 §7.9.4 e)–h): 2·s of each batch statistic within δ(u(y)) for every output."""
+    h = len(parts)
+    for name in outputs:
+        arr = np.array([s[name] for s in stats])          # h × 4
+        s = arr.std(axis=0, ddof=1) / math.sqrt(h)
+        u_all = float(np.concatenate([pt[name] for pt in parts]).std(ddof=1))
+        delta = numerical_tolerance(u_all, ndig)
+        if not np.all(2 * s <= delta):
+            return False
+    return True
