@@ -198,7 +198,8 @@ def evaluate(spec: Spec, *, trials: int | None | str = "spec", seed: int | None 
         settings = McmSettings(trials=n_trials, seed=seed,
                                coverage_probability=spec.coverage_probability,
                                significant_digits=spec.significant_digits,
-                               max_trials=spec.max_trials)
+                               max_trials=spec.max_trials,
+                               t_for_finite_dof=spec.t_for_finite_dof)
         mres = monte_carlo(model, qs, resolved.corr, settings, progress=progress)
         out = []
         for m in measurands:
@@ -240,6 +241,7 @@ def evaluate(spec: Spec, *, trials: int | None | str = "spec", seed: int | None 
         "dof_rounding": spec.dof_rounding,
         "coverage_factor_fixed": spec.coverage_factor,
         "significant_digits": spec.significant_digits,
+        "t_for_finite_dof": spec.t_for_finite_dof,
         "chain": spec.chain,
         "model": dict(spec.outputs),
         "constants": dict(model.constants),

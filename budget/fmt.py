@@ -35,6 +35,8 @@ def fmt_value(y: float, u: float, sig: int = 2) -> str:
     if u is None or not math.isfinite(u) or u == 0:
         return fmt_num(y, 10)
     last = _exp10(u) - sig + 1                     # decimal exponent of u's last digit
+    if y == 0:
+        return "0"
     ey = _exp10(y) if y != 0 else last
     digits = max(ey - last + 1, 1)
     if -4 <= ey <= 9 and -9 <= last <= 0:

@@ -10,7 +10,8 @@ Stable sections and keys (see README "The budget spec"):
 ``[units]``        ``output = "unit"``
 ``[constants]``    ``name = number``
 ``[monte_carlo]``  trials (integer or "adaptive"), seed, interval ("symmetric" or "shortest"),
-                   significant_digits (ndig, default 2), max_trials, enabled
+                   significant_digits (ndig, default 2), max_trials, enabled,
+                   t_for_finite_dof (default true: normal inputs with finite ν drawn from t_ν)
 ``[inputs.NAME]``  a typed-in quantity, ``observations``, or ``module`` + ``file``
 ``[correlations]`` pairs = [["a", "b", r], ...], from_observations = [["V", "I", "phi"], ...]
 """
@@ -38,7 +39,8 @@ REPORT_KEYS = ("laboratory", "laboratory_address", "accreditation", "report_numb
                "customer_address", "operator", "approver", "approver_role", "measurement_date",
                "issue_date", "receipt_date", "method", "procedure", "traceability", "conditions",
                "location", "remarks", "measurand")
-MC_KEYS = ("trials", "seed", "interval", "significant_digits", "max_trials", "enabled")
+MC_KEYS = ("trials", "seed", "interval", "significant_digits", "max_trials", "enabled",
+           "t_for_finite_dof")
 CORRELATION_KEYS = ("pairs", "from_observations")
 MAX_TRIALS = 100_000_000   # beyond this a run takes hours and gigabytes: certainly a mistake
 MIN_TRIALS = 1_000         # fewer cannot give a 95 % interval worth reporting (JCGM 101 §7.2)
@@ -86,6 +88,7 @@ class Spec:
     max_trials: int
     monte_carlo_enabled: bool
     report: dict[str, str]
+    t_for_finite_dof: bool = True
     chain: str | None = None
     lines: dict[tuple[str, ...], dict[str, int]] = field(default_factory=dict, repr=False)
 
@@ -237,6 +240,10 @@ def parse_spec(text: str, *, file: str = "<string>", folder: Path | None = None,
     if not isinstance(enabled, bool):
         raise chk.error(("monte_carlo",), "enabled", f"must be true or false; got {enabled!r}")
 
+    t_dof = mc.get("t_for_finite_dof", True)
+    if not isinstance(t_dof, bool):
+        raise chk.error(("monte_carlo",), "t_for_finite_dof", f"must be true or false; got {t_dof!r}")
+
     inputs = data.get("inputs", {})
     if not inputs:
         raise SpecError("the spec has no inputs ([inputs.NAME] tables)", file=file,
@@ -278,7 +285,8 @@ def parse_spec(text: str, *, file: str = "<string>", folder: Path | None = None,
                 outputs=outputs, units=units, constants=constants, inputs=dict(inputs),
                 correlation_pairs=tuple(pairs), from_observations=tuple(groups), trials=trials,
                 seed=seed, interval=interval, significant_digits=ndig, max_trials=max_trials,
-                monte_carlo_enabled=enabled, report=report, chain=chain, lines=lines)
+                monte_carlo_enabled=enabled, report=report, t_for_finite_dof=t_dof, chain=chain,
+                lines=lines)
 
 
 def check_trials(n: int, *, file: str | None = None, line: int | None = None,

@@ -1,7 +1,11 @@
 """The Monte Carlo method of JCGM 101 (propagation of distributions).
 
 * Samples come from a numpy ``Generator`` (PCG64) seeded with a recorded seed.
-* Uncorrelated inputs are drawn from their own distributions (JCGM 101 §6.4). Correlated
+* Uncorrelated inputs are drawn from their own distributions (JCGM 101 §6.4). A normal input
+  with finite degrees of freedom ν (a Type A mean, or a certificate value with stated ν) is drawn
+  from the scaled and shifted t_ν with scale u (JCGM 101 §6.4.9), so that the Monte Carlo check
+  sees the same reliability information that Welch–Satterthwaite gives the linear result
+  (``t_for_finite_dof=False`` draws it as normal instead). Correlated
   Gaussian inputs are drawn from the multivariate Gaussian (§6.4.8). A correlated input with a
   non-Gaussian distribution is joined to the others through a Gaussian copula (each marginal
   keeps its own distribution; the correlation imposed is that of the underlying Gaussian, which
@@ -49,6 +53,8 @@ class McmSettings:
         ndig for the numerical tolerance (adaptive stopping and §8 validation). Default 2.
     max_trials : int
         Upper bound for the adaptive procedure. Default 10⁷.
+    t_for_finite_dof : bool
+        Draw normal inputs with finite ν from t_ν (JCGM 101 §6.4.9). Default True.
     """
 
     trials: int | None
@@ -56,6 +62,7 @@ class McmSettings:
     coverage_probability: float = 0.95
     significant_digits: int = 2
     max_trials: int = 10_000_000
+    t_for_finite_dof: bool = True
 
 
 @dataclass(frozen=True)
@@ -98,7 +105,10 @@ def coverage_intervals(sorted_y: np.ndarray, p: float) -> tuple[tuple[float, flo
 class _Sampler:
     """Draws chunks of input samples: independent inputs and correlated groups."""
 
-    def __init__(self, quantities: Sequence[Quantity], corr: np.ndarray):
+    def __init__(self, quantities: Sequence[Quantity], corr: np.ndarray,
+                 t_for_finite_dof: bool = True):
+        if t_for_finite_dof:
+            quantities = [_as_t(q) for q in quantities]
         self.fixed = {q.name: q.value for q in quantities if q.is_constant}
         live = [i for i, q in enumerate(quantities) if not q.is_constant]
         r = corr[np.ix_(live, live)]
@@ -128,6 +138,16 @@ class _Sampler:
         return env
 
 
+def _as_t(q: Quantity) -> Quantity:
+    """A normal input with finite ν becomes a scaled, shifted t_ν with scale u (§6.4.9)."""
+    if q.distribution.kind != "normal" or math.isinf(q.dof) or q.is_constant:
+        return q
+    from dataclasses import replace
+
+    from ..distributions import Distribution
+    return replace(q, distribution=Distribution.student_t(q.value, q.standard_uncertainty, q.dof))
+
+
 def monte_carlo(model: Model, quantities: Sequence[Quantity], corr: np.ndarray,
                 settings: McmSettings, *,
                 progress: Callable[[int, int], None] | None = None) -> dict[str, McmResult]:
@@ -140,7 +160,7 @@ def monte_carlo(model: Model, quantities: Sequence[Quantity], corr: np.ndarray,
         the adaptive procedure).
     """
     rng = np.random.default_rng(settings.seed)
-    sampler = _Sampler(quantities, corr)
+    sampler = _Sampler(quantities, corr, settings.t_for_finite_dof)
     p = settings.coverage_probability
     outputs = model.outputs
 
