@@ -175,10 +175,13 @@ def evaluate(spec: Spec, *, trials: int | None | str = "spec", seed: int | None 
     unused = [q.name for q in qs if q.name not in used]
     if unused:
         notes.append("inputs not used by any output: " + ", ".join(unused))
-    lin, cov = propagate_linear(model, qs, resolved.corr,
-                                coverage_probability=spec.coverage_probability,
-                                order=spec.propagation_order, dof_rounding=spec.dof_rounding,
-                                fixed_k=spec.coverage_factor)
+    try:
+        lin, cov = propagate_linear(model, qs, resolved.corr,
+                                    coverage_probability=spec.coverage_probability,
+                                    order=spec.propagation_order, dof_rounding=spec.dof_rounding,
+                                    fixed_k=spec.coverage_factor)
+    except BudgetError as exc:
+        raise _at_spec(exc, spec) from None
     measurands = tuple(_measurand(spec, model, lin[o], qs) for o in model.outputs)
     sd = np.sqrt(np.clip(np.diag(cov), 0, None))
     with np.errstate(divide="ignore", invalid="ignore"):
@@ -200,7 +203,10 @@ def evaluate(spec: Spec, *, trials: int | None | str = "spec", seed: int | None 
                                significant_digits=spec.significant_digits,
                                max_trials=spec.max_trials,
                                t_for_finite_dof=spec.t_for_finite_dof)
-        mres = monte_carlo(model, qs, resolved.corr, settings, progress=progress)
+        try:
+            mres = monte_carlo(model, qs, resolved.corr, settings, progress=progress)
+        except BudgetError as exc:
+            raise _at_spec(exc, spec) from None
         out = []
         for m in measurands:
             r = mres[m.name]
@@ -255,6 +261,16 @@ def evaluate(spec: Spec, *, trials: int | None | str = "spec", seed: int | None 
                   correlation_names=model.outputs,
                   correlation_matrix=tuple(tuple(float(x) for x in row) for row in cm),
                   monte_carlo=mcs, inputs=tuple(qs), run=run)
+
+
+def _at_spec(exc: BudgetError, spec: Spec) -> BudgetError:
+    """Locate an error raised while propagating at the spec line of the field it names."""
+    line = None
+    if exc.field and exc.field.startswith("model."):
+        line = spec.line_of(("model",), exc.field.split(".", 1)[1])
+    elif exc.field and exc.field.startswith("budget."):
+        line = spec.line_of(("budget",), exc.field.split(".", 1)[1])
+    return exc.located(file=spec.path, line=line)
 
 
 def _measurand(spec: Spec, model: Model, lr, qs: list[Quantity]) -> Measurand:
