@@ -38,7 +38,7 @@ REPORT_KEYS = ("laboratory", "laboratory_address", "accreditation", "report_numb
                "certificate_number", "item", "item_serial", "manufacturer", "customer",
                "customer_address", "operator", "approver", "approver_role", "measurement_date",
                "issue_date", "receipt_date", "method", "procedure", "traceability", "conditions",
-               "location", "remarks", "measurand")
+               "location", "remarks", "measurand", "item_condition", "adjustment")
 MC_KEYS = ("trials", "seed", "interval", "significant_digits", "max_trials", "enabled",
            "t_for_finite_dof")
 CORRELATION_KEYS = ("pairs", "from_observations")
@@ -184,12 +184,14 @@ def parse_spec(text: str, *, file: str = "<string>", folder: Path | None = None,
                         "name = \"expression\")", file=file, field="model")
     chain = None
     units_from_chain: dict[str, str] = {}
+    chain_constants: dict[str, float] = {}
     if "chain" in model:
         chain = model["chain"]
         from .chains import build_chain  # a chain spec needs the chain models only
         built = build_chain(model, file=file, lines=lines.get(("model",), {}))
         outputs = dict(built.outputs)
         units_from_chain = dict(built.units)
+        chain_constants = {k: float(v) for k, v in built.constants.items()}
     else:
         outputs = {}
         for name, expr in model.items():
@@ -212,6 +214,14 @@ def parse_spec(text: str, *, file: str = "<string>", folder: Path | None = None,
         if isinstance(v, bool) or not isinstance(v, (int, float)) or not math.isfinite(v):
             raise chk.error(("constants",), k, f"must be a finite number; got {v!r}")
         constants[k] = float(v)
+    for k, v in chain_constants.items():
+        if k in constants and constants[k] != v:
+            raise chk.error(("constants",), k, f"conflicts with {k} = {v:g} in [model]")
+        constants[k] = v
+    if chain is not None and "n" in data.get("constants", {}):
+        from .chains import validate_n
+        validate_n(data["constants"]["n"], file=file, line=chk.line(("constants",), "n"),
+                   field="constants.n")
 
     mc = data.get("monte_carlo", {})
     chk.keys(("monte_carlo",), mc, MC_KEYS)

@@ -1,0 +1,231 @@
+"""Measurement models of the usual traceability chains of a quantized current source.
+
+``[model] chain = "..."`` replaces the free-form output expressions by one of these:
+
+==========================  =================================================================
+chain                       outputs
+==========================  =================================================================
+``resistor-voltmeter``      I = g·ΔV/R (A); dev = I/(n·e·f) − 1 in the chosen unit
+``amplifier-voltmeter``     I = g·ΔV/A_TR (A); dev as above
+``ammeter-under-test``      ε = I_read/(n·e·f·(1 + δ_pump)) − 1 (gain error of an ammeter read
+                            against the pump as reference); dev = I_read/(n·e·f) − 1
+==========================  =================================================================
+
+Input names (rename them with ``inputs_map``):
+
+* ``g`` — voltmeter gain correction factor (1); ``dV`` — on/off voltage difference (V);
+* ``R`` — reference resistor (Ω); ``A_TR`` — amplifier transresistance (Ω = V/A);
+* ``f`` — pump drive frequency (Hz); ``I_read`` — the ammeter's reading of the pump current (A);
+* ``delta_pump`` — relative error of the pump's current against n·e·f (1);
+* ``n`` (positive integer, electrons per cycle) and ``e`` (1.602176634e-19 C, exact since the
+  2019 SI) are constants the engine provides from ``[constants]``; ``n`` may also be given in
+  the ``[model]`` table, and is then returned in :attr:`ChainModel.constants`.
+
+Numerical care. The deviation is written as *one* quotient minus one, ``q − 1``, then scaled
+by an exactly representable power of ten (10^6, 10^8; never divided by 1e-6, which binary
+cannot represent). For 0.5 ≤ q ≤ 2 the subtraction is exact (Sterbenz lemma), so the only
+error is the few roundings of q, a few times 1e-16 absolute: a deviation of 1e-9 keeps six or
+more significant digits (checked against exact rational arithmetic in tests/test_chains.py).
+
+Spec keys of the ``[model]`` table with ``chain``
+-------------------------------------------------
+chain : str
+    One of :data:`CHAINS` (required).
+deviation_unit : {"ppm", "1e-8"}
+    Scale of the deviation output: parts in 10^6 (output ``dev_ppm``) or in 10^8 (``dev_1e8``).
+    Default ``"ppm"``.
+n : int
+    Electrons per cycle (positive integer); otherwise taken from ``[constants]``.
+inputs_map : table
+    Renames of the chain's input names, e.g. ``{R = "R1G", dV = "V_diff"}``.
+outputs_map : table
+    Renames of the outputs, e.g. ``{I = "I_pump"}``.
+description : str
+    Replaces the chain's description.
+"""
+
+from __future__ import annotations
+
+import keyword
+from dataclasses import dataclass, field
+from typing import Any
+
+from .errors import SpecError, did_you_mean
+from .expression import Var, names, parse, substitute, to_text
+
+__all__ = ["CHAINS", "DEVIATION_UNITS", "ChainModel", "build_chain", "validate_n"]
+
+#: Output scale of the deviation: (factor as an exact float, output suffix, unit label).
+DEVIATION_UNITS = {"ppm": (1e6, "ppm", "ppm"), "1e-8": (1e8, "1e8", "1e-8")}
+
+INPUT_UNITS = {"g": "1", "dV": "V", "R": "Ω", "A_TR": "Ω", "f": "Hz", "I_read": "A",
+               "delta_pump": "1"}
+CONSTANT_NAMES = ("n", "e")
+
+# name -> (description, [(output, expression, unit)], deviation expression with S for the scale)
+_DEFS: dict[str, tuple[str, list[tuple[str, str, str]], str]] = {
+    "resistor-voltmeter": (
+        "resistor-voltmeter chain: the pump current through a reference resistor R, the "
+        "voltage difference dV read by a voltmeter with gain correction g, I = g*dV/R",
+        [("I", "g * dV / R", "A")],
+        "(g * dV / (n * e * f * R) - 1) * S"),
+    "amplifier-voltmeter": (
+        "amplifier-voltmeter chain: a current amplifier of transresistance A_TR feeds a "
+        "voltmeter with gain correction g, I = g*dV/A_TR",
+        [("I", "g * dV / A_TR", "A")],
+        "(g * dV / (n * e * f * A_TR) - 1) * S"),
+    "ammeter-under-test": (
+        "ammeter under test against the pump as reference: gain error "
+        "eps = I_read/(n*e*f*(1 + delta_pump)) - 1",
+        [("eps", "I_read / (n * e * f * (1 + delta_pump)) - 1", "1")],
+        "(I_read / (n * e * f) - 1) * S"),
+}
+
+#: The chains :func:`build_chain` knows.
+CHAINS = tuple(_DEFS)
+
+KEYS = ("chain", "deviation_unit", "n", "inputs_map", "outputs_map", "description")
+
+
+@dataclass(frozen=True)
+class ChainModel:
+    """The measurement model a chain stands for.
+
+    Attributes
+    ----------
+    outputs : dict
+        Ordered ``output name -> expression`` over input names (and earlier outputs).
+    units : dict
+        ``output name -> unit``.
+    description : str
+        One sentence for the report.
+    chain : str
+        The chain's name.
+    inputs : tuple of str
+        Input names the expressions use (after ``inputs_map``), constants excluded.
+    input_units : dict
+        Expected unit of each input.
+    constants : dict
+        Constants fixed by the ``[model]`` table (``n`` when given there).
+    """
+
+    outputs: dict[str, str]
+    units: dict[str, str]
+    description: str
+    chain: str = ""
+    inputs: tuple[str, ...] = ()
+    input_units: dict[str, str] = field(default_factory=dict)
+    constants: dict[str, int] = field(default_factory=dict)
+
+    def to_dict(self) -> dict[str, Any]:
+        return {"chain": self.chain, "outputs": dict(self.outputs), "units": dict(self.units),
+                "description": self.description, "inputs": list(self.inputs),
+                "input_units": dict(self.input_units), "constants": dict(self.constants)}
+
+
+def validate_n(value: Any, *, file: str | None = None, line: int | None = None,
+               field: str = "n") -> int:
+    """Return ``value`` if it is a positive integer (electrons per cycle), else a SpecError."""
+    if isinstance(value, bool) or not isinstance(value, int) or value < 1:
+        raise SpecError(f"must be a positive integer (electrons per cycle); got {value!r}",
+                        file=file, line=line, field=field)
+    return value
+
+
+def _identifier(v: Any) -> bool:
+    return isinstance(v, str) and v.isidentifier() and not keyword.iskeyword(v)
+
+
+def build_chain(table: dict[str, Any], *, file: str, lines: dict[str, int]) -> ChainModel:
+    """Build the model of ``[model] chain = "..."``.
+
+    Parameters
+    ----------
+    table : dict
+        The ``[model]`` table as loaded from TOML.
+    file : str
+        The spec file, for messages.
+    lines : dict
+        ``key -> line`` inside the table and ``"" -> header line``, when known.
+
+    Raises
+    ------
+    SpecError
+        Unknown key or chain (with a did-you-mean), bad ``n``, ``deviation_unit`` or renames.
+    """
+    def err(key: str, message: str) -> SpecError:
+        return SpecError(message, file=file, line=lines.get(key, lines.get("")),
+                         field=f"model.{key}")
+
+    for key in table:
+        if key not in KEYS:
+            raise err(key, f"unknown key next to 'chain'{did_you_mean(key, KEYS)} (allowed: "
+                           f"{', '.join(KEYS)}; free-form outputs need a [model] without chain)")
+    name = table.get("chain")
+    if not isinstance(name, str) or name not in _DEFS:
+        raise err("chain", f"unknown chain {name!r}{did_you_mean(str(name), CHAINS)} "
+                           f"(known: {', '.join(CHAINS)})")
+    unit_key = table.get("deviation_unit", "ppm")
+    if not isinstance(unit_key, str) or unit_key not in DEVIATION_UNITS:
+        raise err("deviation_unit", f"must be one of {', '.join(DEVIATION_UNITS)}; got "
+                                    f"{unit_key!r}{did_you_mean(str(unit_key), DEVIATION_UNITS)}")
+    constants = {}
+    if "n" in table:
+        constants["n"] = validate_n(table["n"], file=file, line=lines.get("n", lines.get("")),
+                                    field="model.n")
+    description, base, dev_text = _DEFS[name]
+    if "description" in table:
+        if not isinstance(table["description"], str):
+            raise err("description", f"must be a string; got {table['description']!r}")
+        description = table["description"]
+    scale, suffix, unit_label = DEVIATION_UNITS[unit_key]
+
+    every = set(_names(dev_text)).union(*(_names(text) for _, text, _ in base))
+    used = sorted(every - set(CONSTANT_NAMES) - {"S"})
+    in_map = _renames(table, "inputs_map", used, err)
+    default_outputs = [o for o, _, _ in base] + [f"dev_{suffix}"]
+    out_map = _renames(table, "outputs_map", default_outputs, err)
+    final_inputs = [in_map.get(v, v) for v in used]
+    final_outputs = [out_map.get(o, o) for o in default_outputs]
+    clash = set(final_inputs) & (set(final_outputs) | set(CONSTANT_NAMES))
+    if clash or len(set(final_outputs)) != len(final_outputs):
+        key = "inputs_map" if clash else "outputs_map"
+        raise err(key, f"names must be distinct from each other, the outputs and n, e; clash: "
+                       f"{', '.join(sorted(clash) or final_outputs)}")
+
+    mapping = {old: Var(new) for old, new in in_map.items()}
+    mapping["S"] = parse(repr(scale))
+
+    def render(text: str) -> str:
+        return to_text(substitute(parse(text), mapping))
+
+    outputs: dict[str, str] = {}
+    units: dict[str, str] = {}
+    for (_, text, unit), final in zip(base, final_outputs):
+        outputs[final] = render(text)
+        units[final] = unit
+    outputs[final_outputs[-1]] = render(dev_text)
+    units[final_outputs[-1]] = unit_label
+    return ChainModel(outputs=outputs, units=units, description=description, chain=name,
+                      inputs=tuple(final_inputs),
+                      input_units={in_map.get(v, v): INPUT_UNITS[v] for v in used},
+                      constants=constants)
+
+
+def _names(text: str) -> set[str]:
+    return names(parse(text))
+
+
+def _renames(table: dict, key: str, allowed: list[str], err) -> dict[str, str]:
+    raw = table.get(key, {})
+    if not isinstance(raw, dict):
+        raise err(key, f"must be a table of old = \"new\" names; got {raw!r}")
+    out = {}
+    for old, new in raw.items():
+        if old not in allowed:
+            raise err(key, f"{old!r} is not a name of this chain{did_you_mean(old, allowed)} "
+                           f"(names: {', '.join(allowed)})")
+        if not _identifier(new):
+            raise err(key, f"the new name for {old!r} must be an identifier; got {new!r}")
+        out[old] = new
+    return out

@@ -1,0 +1,139 @@
+"""Input module ``amplifier``: a calibrated current amplifier's transresistance (or gain).
+
+The calibration history has the same columns as the resistor's (see
+:mod:`budget.inputs.history`; a ``voltage_V`` column is accepted and not used), with ``value`` the transresistance (Ω = V/A) or the dimensionless
+gain, and is fitted and predicted at the measurement date in the same way (JCGM 100 H.3 mathematics,
+shared code). Optional terms, each its own budget row: temperature coefficient, a stability bound
+between calibrations, and the residual input offset current.
+
+Spec keys (``[inputs.NAME]``, besides ``module = "amplifier"``)
+---------------------------------------------------------------
+file, at, drift, inflate, consistency_level, exclude_rows, nominal
+    As for the ``resistor`` module: history file (required), measurement date (required),
+    ``"linear"`` (default) or ``"constant"`` drift, inflation policy (default ``"chi2-test"``)
+    and its level (default 0.05), rows left out, figure reference value.
+quantity : {"transresistance", "gain"}
+    What the history holds. Default ``"transresistance"``.
+unit : str
+    Unit of the values. Default ``"Ω"`` for a transresistance (``"V/A"`` is the same unit),
+    ``"1"`` for a gain.
+alpha, beta, alpha_uncertainty, beta_uncertainty, reference_temperature_C, temperature_C,
+temperature_uncertainty_C, temperature_half_width_C
+    Temperature coefficient of the transresistance, as for the resistor: adds ``NAME_temp``.
+stability_bound : float
+    Relative half-width of the change allowed between calibrations (transport, instability not
+    captured by the drift line), e.g. 3e-7. Adds ``NAME_stab``: rectangular about 0.
+offset_current_A : float
+    Estimate of the residual input offset current that the on/off subtraction does not remove
+    (A). Default 0.
+offset_current_uncertainty_A, offset_current_bound_A : float
+    Its standard uncertainty (normal) or the half-width of a bound (rectangular), A. Giving any
+    offset key adds ``NAME_offset`` = I_os / I_signal.
+signal_current_A : float
+    The current being measured (A, e.g. n·e·f); required with an offset term, since the offset
+    matters relative to it.
+
+Quantities
+----------
+A single quantity NAME without extra terms; otherwise ``NAME_cal`` (the drift prediction, in
+``unit``), the relative terms, and the expression
+``NAME_cal * (1 + NAME_temp) * (1 + NAME_stab) * (1 + NAME_offset)``. The offset enters as a
+factor because the output is A·(I + I_os) = A·(1 + I_os/I)·I, so the effective transresistance
+seen by the current I is A·(1 + δ_os).
+"""
+
+from __future__ import annotations
+
+from ..quantity import ModuleResult, Quantity
+from .context import InputContext
+from .corrections import (
+    TEMPERATURE_KEYS,
+    assemble,
+    bounded_or_standard,
+    relative_term,
+    temperature_term,
+)
+from .history import (
+    HISTORY_KEYS,
+    drift_figure,
+    drift_quantity,
+    history_diagnostics,
+    parse_when,
+    predict_drift,
+    read_history,
+)
+
+__all__ = ["KEYS", "evaluate"]
+
+OFFSET_KEYS = frozenset({"offset_current_A", "offset_current_uncertainty_A",
+                         "offset_current_bound_A", "signal_current_A"})
+KEYS = (HISTORY_KEYS | TEMPERATURE_KEYS | OFFSET_KEYS
+        | frozenset({"quantity", "unit", "stability_bound"}))
+
+
+def _stability(ctx: InputContext, name: str) -> Quantity | None:
+    if "stability_bound" not in ctx.table:
+        return None
+    bound = ctx.number("stability_bound", positive=True)
+    return relative_term(
+        ctx, name=name, value=0.0, half_width=bound,
+        description="relative change of the amplifier between calibrations (stability bound)",
+        method=f"stated bound ±{bound:g} (relative) on the change since calibration",
+        reason=("only a bound is known, with no reason to prefer any value inside it "
+                "(JCGM 100 4.3.7)"))
+
+
+def _offset(ctx: InputContext, name: str) -> tuple[Quantity | None, dict]:
+    if not any(k in ctx.table for k in OFFSET_KEYS):
+        return None, {"offset": "no input-offset term requested"}
+    i_os = ctx.number("offset_current_A", 0.0)
+    u_os, hw_os = bounded_or_standard(ctx, "offset_current_uncertainty_A",
+                                      "offset_current_bound_A")
+    if u_os == 0 and hw_os == 0:
+        raise ctx.spec_error("offset_current_bound_A",
+                             "is required with an offset term (or give "
+                             "offset_current_uncertainty_A)")
+    i_sig = ctx.number("signal_current_A", positive=True)
+    reason = ("the residual offset is known only within a bound (JCGM 100 4.3.7)" if hw_os > 0
+              else "the residual offset carries a stated standard uncertainty")
+    q = relative_term(
+        ctx, name=name, value=i_os / i_sig, u=u_os / i_sig, half_width=hw_os / i_sig,
+        description="residual input offset current relative to the signal current",
+        method=(f"δ_os = I_os / I_signal with I_os = {i_os:g} A "
+                f"({'±' + format(hw_os, 'g') + ' A bound' if hw_os > 0 else f'u = {u_os:g} A'})"
+                f" and I_signal = {i_sig:g} A"),
+        reason=reason)
+    return q, {"offset": {"offset_current_A": i_os, "signal_current_A": i_sig,
+                          "relative_offset": q.value,
+                          "standard_uncertainty": q.standard_uncertainty}}
+
+
+def evaluate(ctx: InputContext) -> ModuleResult:
+    """Evaluate an ``amplifier`` input (see the module docstring for the keys)."""
+    kind = ctx.choice("quantity", ("transresistance", "gain"), "transresistance")
+    unit = ctx.option("unit", str, "Ω" if kind == "transresistance" else "1")
+    what = f"amplifier {kind}"
+    at = parse_when(ctx, "at")
+    hist = read_history(ctx, voltage=True)
+    q_temp, f_temp, d_temp = temperature_term(ctx, name=f"{ctx.name}_temp", what=what,
+                                              history_temperature=hist.temperature)
+    q_stab = _stability(ctx, f"{ctx.name}_stab")
+    q_off, d_off = _offset(ctx, f"{ctx.name}_offset")
+    values = hist.values if f_temp is None else hist.values / f_temp
+    pred = predict_drift(ctx, hist, values, at)
+    extra = ()
+    if hist.voltage is not None:
+        extra = ("the history's voltage_V column is not used by the amplifier module",)
+    main = drift_quantity(ctx, hist, pred, name=f"{ctx.name}_cal", unit=unit, what=what,
+                          extra_notes=extra)
+    terms = [(s, q) for s, q in (("temp", q_temp), ("stab", q_stab), ("offset", q_off))
+             if q is not None]
+    reference = ctx.number("nominal", pred.value, positive=True)
+    diagnostics = history_diagnostics(hist, values, pred, unit=unit)
+    diagnostics.update(d_temp)
+    diagnostics.update(d_off)
+    diagnostics["stability"] = (None if q_stab is None else
+                                {"relative_half_width": q_stab.distribution.half_width})
+    diagnostics["figures"] = [drift_figure(ctx, hist, values, pred, unit=unit, what=what,
+                                           reference=reference)]
+    return assemble(ctx, main, terms, diagnostics)

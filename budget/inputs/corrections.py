@@ -1,0 +1,153 @@
+"""Relative correction terms shared by the instrument modules (temperature, bounds, offsets).
+
+Each correction is a dimensionless quantity δ that enters the input as a factor ``(1 + δ)``;
+the module's expression multiplies them onto the calibrated value, so each is its own budget row.
+"""
+
+from __future__ import annotations
+
+import dataclasses
+import math
+
+import numpy as np
+
+from ..distributions import Distribution
+from ..quantity import FileRef, ModuleResult, Provenance, Quantity
+from .context import InputContext
+
+__all__ = [
+    "assemble","TEMPERATURE_KEYS", "bounded_or_standard", "relative_term", "temperature_term"]
+
+#: Option keys of the temperature correction δ_T = α·ΔT + β·ΔT², ΔT = T − T_ref.
+TEMPERATURE_KEYS = frozenset({"alpha", "beta", "alpha_uncertainty", "beta_uncertainty",
+                              "reference_temperature_C", "temperature_C",
+                              "temperature_uncertainty_C", "temperature_half_width_C"})
+
+
+def relative_term(ctx: InputContext, *, name: str, value: float, u: float | None = None,
+                  half_width: float | None = None, description: str, method: str,
+                  reason: str, files: tuple[FileRef, ...] = (),
+                  notes: tuple[str, ...] = ()) -> Quantity:
+    """A dimensionless relative correction: rectangular of half-width ``half_width`` about
+    ``value`` when that is given and > 0, else normal with standard uncertainty ``u``.
+    ``reason`` completes the distribution reason after "rectangular: " or "normal: "."""
+    value = float(value) + 0.0  # turn a -0.0 into 0.0 for the record
+    if half_width is not None and half_width > 0:
+        dist = Distribution.rectangular(value - half_width, value + half_width)
+        std = half_width / math.sqrt(3)
+        why = "rectangular: " + reason
+    else:
+        std = 0.0 if u is None else float(u)
+        dist = Distribution.normal(value, std)
+        why = "normal: " + reason
+    return Quantity(name=name, value=float(value), standard_uncertainty=float(std),
+                    distribution=dist, unit="1", dof=math.inf, evaluation="B",
+                    description=description,
+                    provenance=Provenance(origin=f"module:{ctx.table.get('module')}",
+                                          method=method, distribution_reason=why,
+                                          dof_reason="infinite: a Type B bound or stated "
+                                                     "uncertainty taken as reliable "
+                                                     "(JCGM 100 G.4.2)",
+                                          files=files, notes=notes))
+
+
+def bounded_or_standard(ctx: InputContext, u_key: str, bound_key: str) -> tuple[float, float]:
+    """Read an uncertainty given either as a standard uncertainty (normal) under ``u_key`` or
+    as a half-width bound (rectangular) under ``bound_key``; at most one of them.
+
+    Returns ``(u, half_width)`` with the one not given as 0.
+    """
+    if u_key in ctx.table and bound_key in ctx.table:
+        raise ctx.spec_error(bound_key, f"give either '{u_key}' (standard uncertainty, normal) "
+                                        f"or '{bound_key}' (half-width, rectangular), not both")
+    return (ctx.number(u_key, 0.0, nonnegative=True),
+            ctx.number(bound_key, 0.0, nonnegative=True))
+
+
+def temperature_term(ctx: InputContext, *, name: str, what: str,
+                     history_temperature: np.ndarray | None = None
+                     ) -> tuple[Quantity | None, np.ndarray | None, dict]:
+    """The relative temperature correction of a standard, when any temperature key is given.
+
+    δ_T = α·ΔT + β·ΔT², ΔT = T − T_ref, with α (1/K), β (1/K²), T the temperature during the
+    measurement (°C) and T_ref the reference temperature (°C; default: the mean of the history's
+    ``temperature_C`` column). The standard uncertainty follows from the sensitivities
+    ∂δ/∂T = α + 2βΔT, ∂δ/∂α = ΔT, ∂δ/∂β = ΔT² (JCGM 100 eq. 10, independent inputs).
+
+    Returns
+    -------
+    quantity or None
+        The δ_T row, or None when no temperature key is given.
+    factors or None
+        1 + δ_T(T_i) for each history row with a temperature (1 where blank): dividing the
+        history values by them refers each calibration to T_ref. None without that column.
+    diagnostics : dict
+    """
+    if not any(k in ctx.table for k in TEMPERATURE_KEYS):
+        return None, None, {"temperature": "no temperature correction requested"}
+    alpha = ctx.number("alpha")
+    beta = ctx.number("beta", 0.0)
+    u_alpha = ctx.number("alpha_uncertainty", 0.0, nonnegative=True)
+    u_beta = ctx.number("beta_uncertainty", 0.0, nonnegative=True)
+    t_meas = ctx.number("temperature_C")
+    u_t, hw_t = bounded_or_standard(ctx, "temperature_uncertainty_C", "temperature_half_width_C")
+    if u_t == 0 and hw_t == 0 and u_alpha == 0 and u_beta == 0:
+        raise ctx.spec_error("temperature_uncertainty_C",
+                             "is required with a temperature correction (or give "
+                             "temperature_half_width_C, alpha_uncertainty or beta_uncertainty); "
+                             "a correction without an uncertainty would be a silent claim")
+    hist_t = None
+    if history_temperature is not None and np.isfinite(history_temperature).any():
+        hist_t = history_temperature
+    if "reference_temperature_C" in ctx.table or hist_t is None:
+        t_ref = ctx.number("reference_temperature_C")
+        ref_reason = "stated in the spec"
+    else:
+        t_ref = float(np.nanmean(hist_t))
+        ref_reason = "mean temperature of the calibrations (temperature_C column)"
+    dt = t_meas - t_ref
+    value = alpha * dt + beta * dt * dt
+    c_t = alpha + 2 * beta * dt
+    u_temp = hw_t / math.sqrt(3) if hw_t > 0 else u_t
+    u = math.sqrt((c_t * u_temp) ** 2 + (dt * u_alpha) ** 2 + (dt * dt * u_beta) ** 2)
+    notes = []
+    only_temperature = (dt * u_alpha == 0 and dt * dt * u_beta == 0)
+    if hw_t > 0 and only_temperature and c_t != 0:
+        half = abs(c_t) * hw_t
+        reason = (f"the temperature is bounded by ±{hw_t:g} K and δ_T is (to first order) "
+                  "linear in it, so the bound maps to a bound on δ_T")
+        if beta != 0:
+            notes.append("β·ΔT² curvature neglected inside the temperature bound")
+    else:
+        half = None
+        reason = ("δ_T combines several contributions (temperature, coefficients); a normal "
+                  "distribution is assigned to their combination")
+    factors = None
+    if hist_t is not None:
+        d_i = np.where(np.isfinite(hist_t), hist_t - t_ref, 0.0)
+        factors = 1.0 + alpha * d_i + beta * d_i * d_i
+        notes.append("history values referred to T_ref with the nominal α, β before the fit; "
+                     "the coefficients' uncertainty on these small corrections is neglected")
+    q = relative_term(
+        ctx, name=name, value=value, u=u, half_width=half,
+        description=f"relative temperature correction of the {what}",
+        method=(f"δ_T = α·ΔT + β·ΔT² with α = {alpha:g} /K, β = {beta:g} /K², T = {t_meas:g} °C, "
+                f"T_ref = {t_ref:g} °C ({ref_reason}); u from the sensitivities to T, α and β"),
+        reason=reason, notes=tuple(notes))
+    diag = {"temperature": {"alpha_per_K": alpha, "beta_per_K2": beta,
+                            "reference_temperature_C": t_ref, "temperature_C": t_meas,
+                            "delta_T_K": dt, "correction": value, "standard_uncertainty": u,
+                            "reference_from": ref_reason}}
+    return q, factors, diag
+
+
+def assemble(ctx: InputContext, main: Quantity, terms: list[tuple[str, Quantity]],
+             diagnostics: dict) -> ModuleResult:
+    """One quantity named NAME when there are no correction terms; otherwise NAME_cal times
+    (1 + NAME_suffix) for each term, with the expression that combines them."""
+    if not terms:
+        return ModuleResult(quantities=(dataclasses.replace(main, name=ctx.name),),
+                            diagnostics=diagnostics)
+    expr = " * ".join([main.name] + [f"(1 + {q.name})" for _, q in terms])
+    return ModuleResult(quantities=(main,) + tuple(q for _, q in terms), expression=expr,
+                        diagnostics=diagnostics)

@@ -1,0 +1,159 @@
+"""Tests of the ``frequency`` input module.
+
+References: allantools (general-purpose frequency-stability library, used as a test oracle) for
+the scaling of the Allan deviation with averaging time on simulated white FM and white PM
+noise; the power law σ_y(τ) ∝ τ^(μ/2) with μ = −1 (white FM), −2 (white PM), 0 (flicker FM),
++1 (random-walk FM) (NIST SP 1065, memory); u = a/√3 for a bound a (JCGM 100 4.3.7); mean and
+s/√n with ν = n − 1 (JCGM 100 4.2.1, 4.2.3, G.3.3); SI Brochure for e.
+"""
+
+from __future__ import annotations
+
+import json
+import math
+from pathlib import Path
+
+import allantools
+import numpy as np
+import pytest
+
+from budget.errors import DataError, SpecError
+from budget.expression import compile_node, parse
+from budget.inputs import InputContext, run_module
+
+F0 = 500.0e6   # Hz, invented drive frequency
+
+
+def ctx(folder, **table):
+    return InputContext(name="f", table={"module": "frequency", "nominal_Hz": F0, **table},
+                        folder=Path(folder), spec_file="spec.toml")
+
+
+def test_single_typed_offset_gives_hz(tmp_path):
+    (q,) = run_module(ctx(tmp_path, offset=2e-11, offset_uncertainty=1e-11)).quantities
+    assert q.name == "f" and q.unit == "Hz"
+    assert q.value == pytest.approx(F0 * (1 + 2e-11), rel=1e-15)
+    assert q.standard_uncertainty == pytest.approx(F0 * 1e-11)
+    assert q.distribution.kind == "normal"
+
+
+def test_offset_bound_rectangular(tmp_path):
+    (q,) = run_module(ctx(tmp_path, offset_bound=5e-11)).quantities
+    assert q.distribution.kind == "rectangular"
+    assert q.standard_uncertainty == pytest.approx(F0 * 5e-11 / math.sqrt(3))     # a/√3
+    assert q.distribution.low == pytest.approx(F0 * (1 - 5e-11), rel=1e-15)
+
+
+def test_aging_and_allan_rows_and_expression(tmp_path):
+    r = run_module(ctx(tmp_path, offset=1e-11, offset_uncertainty=2e-12,
+                       aging_per_day=5e-12, comparison_date="2026-11-01", at="2026-11-21",
+                       allan_deviation=3e-12, allan_tau_s=1.0, measurement_time_s=36000.0))
+    names = [q.name for q in r.quantities]
+    assert names == ["f_offset", "f_aging", "f_stab"]
+    assert r.expression == "500000000.0 * (1 + f_offset) * (1 + f_aging) * (1 + f_stab)"
+    aging, stab = r.quantities[1], r.quantities[2]
+    assert aging.distribution.half_width == pytest.approx(5e-12 * 20)   # rate × 20 days
+    # white FM: σ_y(T) = σ_y(τ)·√(τ/T)
+    assert stab.standard_uncertainty == pytest.approx(3e-12 / math.sqrt(36000.0))
+    env = {q.name: q.value for q in r.quantities}
+    assert compile_node(parse(r.expression))(env) == pytest.approx(F0 * (1 + 1e-11), rel=1e-15)
+    json.dumps(r.diagnostics, allow_nan=False)
+
+
+@pytest.mark.parametrize("noise, mu", [("white-pm", -2), ("white-fm", -1), ("flicker-fm", 0),
+                                       ("random-walk-fm", 1)])
+def test_power_law(tmp_path, noise, mu):
+    (q,) = run_module(ctx(tmp_path, allan_deviation=1e-12, allan_tau_s=10.0,
+                          measurement_time_s=1000.0, noise=noise)).quantities
+    # σ_y(T) = σ_y(τ)·(T/τ)^(μ/2), T/τ = 100 (NIST SP 1065 power laws, memory)
+    assert q.standard_uncertainty == pytest.approx(F0 * 1e-12 * 100 ** (mu / 2), rel=1e-12)
+
+
+@pytest.mark.parametrize("data_type, noise", [("freq", "white-fm"), ("phase", "white-pm")])
+def test_scaling_against_allantools(tmp_path, data_type, noise):
+    # simulated noise (fixed seed): allantools' ADEV at τ0 = 1 s is the "specification";
+    # the module's σ_y(T) must match allantools' ADEV at T = 100 s within its scatter
+    # (~100 independent averages at 2·10^4 points ⇒ a few % ; 15 % allowed)
+    rng = np.random.default_rng(20261201)
+    data = rng.normal(0, 1e-11, 20000)
+    taus, adev, _, _ = allantools.adev(data, rate=1.0, data_type=data_type, taus=[1.0, 100.0])
+    (q,) = run_module(ctx(tmp_path, allan_deviation=float(adev[0]), allan_tau_s=1.0,
+                          measurement_time_s=100.0, noise=noise)).quantities
+    assert q.standard_uncertainty / F0 == pytest.approx(adev[1], rel=0.15)
+
+
+def test_white_fm_allan_equals_sd_of_means():
+    # the reason the module takes σ_y(T) as u of the mean over T: for white FM the Allan
+    # deviation at τ equals the standard deviation of τ-averages (NIST SP 1065, memory);
+    # checked here on simulated data with allantools
+    rng = np.random.default_rng(3)
+    y = rng.normal(0, 1e-11, 100000)
+    m = 100
+    means = y.reshape(-1, m).mean(axis=1)
+    _, adev, _, _ = allantools.adev(y, rate=1.0, data_type="freq", taus=[float(m)])
+    assert adev[0] == pytest.approx(means.std(ddof=1), rel=0.15)
+
+
+def write_comparisons(folder, rows, header="date,fractional_offset"):
+    (Path(folder) / "cmp.csv").write_text(header + "\n" + "\n".join(rows) + "\n")
+
+
+def test_comparison_file_constant(tmp_path):
+    ys = [1.2e-11, 0.8e-11, 1.5e-11, 1.1e-11, 0.9e-11]
+    write_comparisons(tmp_path, [f"2026-10-{d:02d},{y!r}" for d, y in zip((1, 8, 15, 22, 29), ys)])
+    (q,) = run_module(ctx(tmp_path, file="cmp.csv", at="2026-11-20")).quantities
+    arr = np.array(ys)
+    assert q.value == pytest.approx(F0 * (1 + arr.mean()), rel=1e-15)       # JCGM 100 4.2.1
+    assert q.standard_uncertainty == pytest.approx(F0 * arr.std(ddof=1) / math.sqrt(5))
+    assert q.dof == 4 and q.evaluation == "A"                                # ν = n − 1
+    assert q.provenance.files[0].rows == "1-5"
+    assert any("past the last comparison" in n for n in q.provenance.notes)
+
+
+def test_comparison_file_with_aging_from_last_row(tmp_path):
+    write_comparisons(tmp_path, ["2026-10-01,1e-11,2e-12", "2026-10-31,1.1e-11,2e-12"],
+                      header="date,fractional_offset,uncertainty")
+    r = run_module(ctx(tmp_path, file="cmp.csv", at="2026-11-20", aging_per_day=1e-12))
+    off, aging = r.quantities
+    # weighted mean of two equal-u comparisons: u = 2e-12/√2 ((Σw)^-1/2)
+    assert off.standard_uncertainty == pytest.approx(2e-12 / math.sqrt(2))
+    assert aging.distribution.half_width == pytest.approx(1e-12 * 20)   # 20 days since 10-31
+
+
+@pytest.mark.parametrize("table, field", [
+    ({}, "inputs.f.nominal_Hz"),
+    ({"offset": 1e-11}, "inputs.f.offset_uncertainty"),
+    ({"offset_bound": 1e-11, "offset_uncertainty": 1e-11}, "inputs.f.offset_bound"),
+    ({"offset_bound": 1e-11, "offset_dof": 5}, "inputs.f.offset_dof"),
+    ({"aging_per_day": 1e-12}, "inputs.f.days_since_comparison"),
+    ({"offset_bound": 1e-11, "at": "2026-01-01"}, "inputs.f.at"),
+    ({"allan_deviation": 1e-12, "allan_tau_s": 1.0}, "inputs.f.measurement_time_s"),
+    ({"allan_deviation": 1e-12, "allan_tau_s": 1.0, "measurement_time_s": 10.0,
+      "noise": "pink"}, "inputs.f.noise"),
+    ({"offset_bound": 1e-11, "drift": "linear"}, "inputs.f.drift"),
+    ({"file": "cmp.csv", "offset": 0.0, "at": "2026-11-01"}, "inputs.f.offset"),
+])
+def test_bad_options(tmp_path, table, field):
+    write_comparisons(tmp_path, ["2026-10-01,1e-11", "2026-10-31,1.1e-11"])
+    with pytest.raises(SpecError) as e:
+        run_module(ctx(tmp_path, **table))
+    assert e.value.field == field, e.value.one_line()
+
+
+def test_nominal_required_positive(tmp_path):
+    c = InputContext(name="f", table={"module": "frequency", "nominal_Hz": -1.0,
+                                      "offset_bound": 1e-11}, folder=tmp_path)
+    with pytest.raises(SpecError):
+        run_module(c)
+
+
+@pytest.mark.parametrize("rows, at, row, col", [
+    (["2026-10-01,1e-11", "yesterday,1e-11"], "2026-11-01", 2, "date"),
+    (["2026-10-01,1e-11", "2026-10-02,abc"], "2026-11-01", 2, "fractional_offset"),
+    (["2026-10-05,1e-11", "2026-10-01,1e-11"], "2026-09-01", 2, "date"),  # before first
+])
+def test_bad_comparison_file(tmp_path, rows, at, row, col):
+    write_comparisons(tmp_path, rows)
+    with pytest.raises(DataError) as e:
+        run_module(ctx(tmp_path, file="cmp.csv", at=at))
+    assert (e.value.row, e.value.field) == (row, col)
