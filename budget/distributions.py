@@ -8,7 +8,7 @@ Standard deviations (JCGM 101 Table 1 / §6.4):
 
 * rectangular on [a, b]: (b − a)/√12
 * symmetric triangular on [a, b]: (b − a)/√24; general triangular with mode c:
-  √((a² + b² + c² − ab − ac − bc)/18)
+  √((a² + b² + c² − ab − ac − bc)/18), computed as √(((a−b)² + (a−c)² + (b−c)²)/36)
 * arcsine (U-shaped) on [a, b]: (b − a)/√8
 * trapezoidal on [a, b] with top-to-base ratio β: (b − a)·√((1 + β²)/24)
 * scaled and shifted Student t with ν > 2 and scale s: s·√(ν/(ν − 2))
@@ -134,7 +134,9 @@ class Distribution:
             return (b - a) / math.sqrt(12)
         if self.kind == "triangular":
             c = self.loc
-            return math.sqrt((a * a + b * b + c * c - a * b - a * c - b * c) / 18)
+            # (a² + b² + c² − ab − ac − bc)/18 written as squared differences: the expanded form
+            # loses digits when the bounds are close to each other relative to their size
+            return math.sqrt(((a - b) ** 2 + (a - c) ** 2 + (b - c) ** 2) / 36)
         if self.kind == "arcsine":
             return (b - a) / math.sqrt(8)
         if self.kind == "trapezoidal":

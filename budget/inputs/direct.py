@@ -95,7 +95,9 @@ def evaluate_direct(ctx: InputContext) -> Quantity:
         prov = Provenance(
             origin="observations",
             method=f"arithmetic mean of {n} observations; u = s/√n (JCGM 100 §4.2.3)",
-            distribution_reason=reason or _REASONS[kind],
+            distribution_reason=reason or (
+                "normal: the mean of repeated observations (central limit theorem, "
+                "JCGM 100 §4.2 and G.2)" if kind == "normal" else _REASONS[kind]),
             dof_reason=f"ν = n − 1 = {n - 1} (JCGM 100 §4.2.6)",
             notes=(source,) if source else ())
         return _quantity(ctx, mean, u, dist, unit, dof, evaluation or "A", description, prov)
