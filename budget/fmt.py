@@ -69,6 +69,8 @@ def fmt_dof(nu: float | None) -> str:
     """Degrees of freedom: ``∞`` for infinite, integers without decimals, else one decimal."""
     if nu is None or math.isinf(nu):
         return "∞"
+    if nu >= 1e4:  # effectively infinite; the exact digits carry no information
+        return f"{nu:.1e}"
     if abs(nu - round(nu)) < 1e-6:
         return str(int(round(nu)))
     return f"{nu:.1f}"
