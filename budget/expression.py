@@ -17,6 +17,7 @@ from __future__ import annotations
 
 import ast
 import math
+import warnings
 from collections.abc import Callable, Mapping
 from dataclasses import dataclass
 
@@ -25,9 +26,11 @@ import numpy as np
 from .errors import ModelError
 
 __all__ = ["Node", "Num", "Var", "Bin", "Neg", "Call", "FUNCTIONS", "parse", "names", "diff",
-           "substitute", "compile_node", "to_text", "value_and_gradient", "MAX_LENGTH"]
+           "substitute", "compile_node", "to_text", "value_and_gradient", "MAX_LENGTH",
+           "MAX_DEPTH"]
 
 MAX_LENGTH = 20_000  # characters; a model longer than this is certainly a mistake
+MAX_DEPTH = 400      # nesting levels; keeps compile, diff and gradient well inside Python's stack
 
 #: Allowed functions (one argument each) and their numpy implementations.
 FUNCTIONS: dict[str, Callable[[np.ndarray], np.ndarray]] = {
@@ -99,24 +102,48 @@ def parse(text: str, *, field: str | None = None, file: str | None = None,
         raise ModelError(f"expression is longer than {MAX_LENGTH} characters", **where)
     if not text.strip():
         raise ModelError("expression is empty", **where)
+    # columns in messages count from the start of the text as written, leading blanks included
+    lead = len(text) - len(text.lstrip())
+    where["_lead"] = lead
     try:
-        tree = ast.parse(text.strip(), mode="eval")
+        with warnings.catch_warnings():
+            warnings.simplefilter("ignore")  # e.g. SyntaxWarning for "1or x": our error suffices
+            tree = ast.parse(text.strip(), mode="eval")
     except SyntaxError as exc:
-        col = f" at column {exc.offset}" if exc.offset else ""
+        col = f" at column {exc.offset + lead}" if exc.offset else ""
+        where.pop("_lead")
         raise ModelError(f"cannot parse expression{col}: {exc.msg}", **where) from None
     except (ValueError, RecursionError, MemoryError, OverflowError):
+        where.pop("_lead")
         raise ModelError("cannot parse expression (invalid characters or nested too deeply)",
                          **where) from None
+    depth = _depth(tree.body)
+    if depth > MAX_DEPTH:
+        where.pop("_lead")
+        raise ModelError(f"expression is nested {depth} levels deep; at most {MAX_DEPTH} "
+                         "are allowed (split it into several outputs)", **where)
     try:
         return _convert(tree.body, where)
     except RecursionError:
+        where.pop("_lead")
         raise ModelError("expression is nested too deeply", **where) from None
+
+
+def _depth(root: ast.AST) -> int:
+    """Nesting depth of an ast, computed without recursion."""
+    deepest, stack = 0, [(root, 1)]
+    while stack:
+        node, d = stack.pop()
+        deepest = max(deepest, d)
+        stack.extend((child, d + 1) for child in ast.iter_child_nodes(node))
+    return deepest
 
 
 def _refuse(node: ast.AST, what: str, where: dict) -> ModelError:
     col = getattr(node, "col_offset", None)
-    at = f" at column {col + 1}" if col is not None else ""
-    return ModelError(f"{what} is not allowed in a model expression{at}", **where)
+    loc = {k: v for k, v in where.items() if k != "_lead"}
+    at = f" at column {col + 1 + where.get('_lead', 0)}" if col is not None else ""
+    return ModelError(f"{what} is not allowed in a model expression{at}", **loc)
 
 
 def _convert(node: ast.AST, where: dict) -> Node:
@@ -258,19 +285,44 @@ def neg(a: Node) -> Node:
 
 
 # --------------------------------------------------------------------------- differentiation
-def diff(node: Node, var: str) -> Node:
+def _depends(node: Node, var: str, memo: dict[int, bool]) -> bool:
+    """``var in names(node)``, remembered per node for the duration of one :func:`diff` call.
+
+    diff() asks this at every level; recomputing names() there made one derivative cost O(n²)
+    in the tree size (seconds for a 100-term model). The keys are id()s of nodes of the tree
+    being differentiated, which stays alive for the whole call, so no id can be reused.
+    """
+    k = id(node)
+    hit = memo.get(k)
+    if hit is None:
+        if isinstance(node, Var):
+            hit = node.name == var
+        elif isinstance(node, Bin):
+            hit = _depends(node.a, var, memo) or _depends(node.b, var, memo)
+        elif isinstance(node, Neg):
+            hit = _depends(node.a, var, memo)
+        elif isinstance(node, Call):
+            hit = _depends(node.arg, var, memo)
+        else:
+            hit = False
+        memo[k] = hit
+    return hit
+
+
+def diff(node: Node, var: str, _memo: dict[int, bool] | None = None) -> Node:
     """Exact partial derivative ∂node/∂var as a (lightly simplified) tree."""
+    memo = {} if _memo is None else _memo
     if isinstance(node, Num):
         return Num(0.0)
     if isinstance(node, Var):
         return Num(1.0 if node.name == var else 0.0)
-    if var not in names(node):
+    if not _depends(node, var, memo):
         return Num(0.0)
     if isinstance(node, Neg):
-        return neg(diff(node.a, var))
+        return neg(diff(node.a, var, memo))
     if isinstance(node, Bin):
         a, b = node.a, node.b
-        da, db = diff(a, var), diff(b, var)
+        da, db = diff(a, var, memo), diff(b, var, memo)
         if node.op == "+":
             return add(da, db)
         if node.op == "-":
@@ -282,11 +334,11 @@ def diff(node: Node, var: str) -> Node:
                 return div(da, b)
             return sub(div(da, b), div(mul(a, db), power(b, Num(2.0))))
         if node.op == "**":
-            if var not in names(b):  # a ** const
+            if not _depends(b, var, memo):  # a ** const
                 return mul(mul(b, power(a, sub(b, Num(1.0)))), da)
             return mul(node, add(mul(db, Call("log", a)), div(mul(b, da), a)))
     if isinstance(node, Call):
-        u, du = node.arg, diff(node.arg, var)
+        u, du = node.arg, diff(node.arg, var, memo)
         fn = node.fn
         if fn == "sqrt":
             outer: Node = div(Num(1.0), mul(Num(2.0), node))
@@ -473,10 +525,14 @@ def value_and_gradient(node: Node, env: Mapping[str, float],
             if isinstance(val, complex):
                 return math.nan, ga * math.nan
             grad = zero
-            if ga.any():
-                grad = grad + (b * a ** (b - 1) if a != 0 or b >= 1 else math.nan) * ga
-            if gb.any():
-                grad = grad + (val * math.log(a) if a > 0 else math.nan) * gb
+            try:
+                if ga.any():
+                    grad = grad + (b * a ** (b - 1) if a != 0 or b >= 1 else math.nan) * ga
+                if gb.any():
+                    grad = grad + (val * math.log(a) if a > 0 else math.nan) * gb
+            except (ZeroDivisionError, OverflowError):
+                # the value is finite but its derivative is not representable
+                return val, ga * math.nan
             return val, grad
         raise ModelError(f"cannot differentiate {nd!r}")  # pragma: no cover
 

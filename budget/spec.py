@@ -329,8 +329,11 @@ class _Checker:
 
     def ident(self, section: tuple[str, ...], name: str) -> None:
         if not _IDENT.match(name):
-            raise self.error(section, name, "a name must start with a letter and hold only "
-                                             "letters, digits and underscores")
+            err = self.error(section, name, "a name must start with a letter and hold only "
+                                            "letters, digits and underscores")
+            if err.line is None or (section + (name,)) in self.lines:  # a table [section.name]
+                err.line = self.line(section + (name,))
+            raise err
 
     def string(self, section, table, key, default):
         v = table.get(key, default)

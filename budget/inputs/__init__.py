@@ -47,7 +47,7 @@ def get_module(name: str, *, file: str | None = None, line: int | None = None,
 
 def run_module(ctx: InputContext) -> ModuleResult:
     """Check the table's keys against the module's ``KEYS`` and evaluate it."""
-    mod = get_module(ctx.table.get("module"), file=ctx.spec_file, line=ctx.line,
+    mod = get_module(ctx.table.get("module"), file=ctx.spec_file, line=ctx.key_line("module"),
                      field=f"inputs.{ctx.name}.module")
     allowed = set(mod.KEYS) | {"module", "description"}
     for key in ctx.table:

@@ -4,6 +4,7 @@ from __future__ import annotations
 
 import hashlib
 import math
+import os
 from collections.abc import Callable
 from dataclasses import dataclass, field
 from pathlib import Path
@@ -129,10 +130,9 @@ class InputContext:
 
     def file_ref(self, path: Path, rows: str = "") -> FileRef:
         """A FileRef (path relative to the spec folder where possible, digest, rows)."""
-        try:
-            shown = str(path.resolve().relative_to(self.folder.resolve()))
-        except ValueError:
-            shown = str(path)
+        # relative to the spec's folder (with ../ when outside it), so that records do not
+        # depend on where the project happens to be checked out
+        shown = os.path.relpath(path.resolve(), self.folder.resolve())
         return FileRef(path=shown, sha256=sha256_file(path), rows=rows)
 
     def display(self, path: Path) -> str:

@@ -129,10 +129,15 @@ def propagate_linear(model: Model, quantities: Sequence[Quantity], corr: np.ndar
             bad = names[int(np.flatnonzero(~np.isfinite(c))[0])]
             raise ComputationError(f"the sensitivity coefficient for '{bad}' is not finite at "
                                    "the input estimates", field=f"model.{name}")
-        cu = c * u
+        with np.errstate(all="ignore"):
+            cu = c * u
+            r_cu = r @ cu
+            var1 = float(cu @ r_cu)
+        if not (np.all(np.isfinite(cu)) and math.isfinite(var1)):
+            raise ComputationError("the combined variance overflows a double-precision number "
+                                   "(rescale the inputs, e.g. work in other units)",
+                                   field=f"model.{name}")
         cu_rows.append(cu)
-        r_cu = r @ cu
-        var1 = float(cu @ r_cu)
         var2 = _second_order(model.trees[name], env, names, u) if order == 2 else 0.0
         var = var1 + var2
         uc = math.sqrt(max(var, 0.0))

@@ -151,7 +151,7 @@ def _table_g2() -> list[Check]:
 
 def _si() -> list[Check]:
     src = "SI Brochure, 9th edition (2019): exact values"
-    e, h = BUILTIN_CONSTANTS["e"], BUILTIN_CONSTANTS["h"]
+    e = BUILTIN_CONSTANTS["e"]
     return [Check("SI 2019", src, "e / C", 1.602176634e-19, e, 0.0),
             Check("SI 2019", src, "R_K = h/e² / Ω", 25812.80745930450666, BUILTIN_CONSTANTS["R_K"],
                   1e-10),
