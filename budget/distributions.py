@@ -21,7 +21,7 @@ from dataclasses import dataclass
 from typing import Any
 
 import numpy as np
-from scipy import special, stats
+from scipy import special
 
 from .errors import BudgetError
 
@@ -191,7 +191,7 @@ class Distribution:
         if self.kind == "arcsine":
             return (a + b) / 2 - (b - a) / 2 * np.cos(np.pi * p)
         if self.kind == "student-t":
-            return self.loc + self.scale * stats.t.ppf(p, self.dof)
+            return self.loc + self.scale * special.stdtrit(self.dof, p)
         if self.kind == "trapezoidal":
             return self._trapezoid_ppf(np.asarray(p, dtype=float))
         raise BudgetError(f"unknown distribution {self.kind!r}", field="distribution")
