@@ -46,9 +46,9 @@ class _Progress:
             return
         frac = min(done / max(total, 1), 1.0)
         bar = "#" * int(30 * frac)
+        self.shown = True  # before writing: a Ctrl-C inside write() must still end the line
         sys.stderr.write(f"\rMonte Carlo [{bar:<30}] {done:>12,} trials")
         sys.stderr.flush()
-        self.shown = True
 
     def close(self) -> None:
         if self.shown:
@@ -120,6 +120,7 @@ def _add_run(sub) -> None:
                    help="Monte Carlo trials (integer or 'adaptive'); overrides the spec")
     p.add_argument("--seed", type=_seed, metavar="S", help="random seed; overrides the spec")
     p.add_argument("--no-monte-carlo", action="store_true", help="skip the Monte Carlo method")
+    _add_archive_options(p)
     p.set_defaults(func=_cmd_run)
 
 
@@ -160,12 +161,41 @@ def _cmd_run(args) -> int:
     from .outputs import check_writable, write_atomic
     if args.json:
         check_writable(args.json)
+    _check_archive_option(args)
     b = _evaluate_spec(args)
     print(budget_text(b))
     if args.json:
         write_atomic(args.json, b.to_json())
         print(f"\nrecord written to {args.json}")
+    _write_archive_option(args, b)
     return EXIT_OK
+
+
+def _add_archive_options(p) -> None:
+    """``--archive DIR`` and ``--force-archive`` (shared by ``run`` and ``report``)."""
+    p.add_argument("--archive", metavar="DIR",
+                   help="also copy the spec, every input file and the record into DIR, "
+                        "content-addressed with a manifest of SHA-256 digests, so the budget "
+                        "can be recomputed later (e.g. by verify --inputs DIR)")
+    p.add_argument("--force-archive", action="store_true",
+                   help="replace an existing archive in DIR")
+
+
+def _check_archive_option(args) -> None:
+    """Refuse an unusable --archive folder before any work is done."""
+    if getattr(args, "archive", None):
+        from .archive import check_archive_target
+        check_archive_target(args.archive, force=args.force_archive)
+
+
+def _write_archive_option(args, b) -> None:
+    if not getattr(args, "archive", None):
+        return
+    from .archive import archive
+    from .spec import load_spec
+    info = archive(load_spec(args.spec), b, args.archive, force=args.force_archive)
+    print(f"archive written to {info.path} (spec and {len(info.files)} input file"
+          f"{'' if len(info.files) == 1 else 's'})")
 
 
 # --------------------------------------------------------------------------- validate
@@ -200,8 +230,764 @@ def _cmd_validate(args) -> int:
     return EXIT_CHECK_FAILED if failed else EXIT_OK
 
 
+# --------------------------------------------------------------------------- explain
+_LABEL = 20          # width of the label column of the fixed-section answer
+_WIDTH = 100         # the answer fits an 100-column terminal
+
+
+def _section(label: str, text: str) -> list[str]:
+    import textwrap
+    out = []
+    for k, para in enumerate(str(text).split("\n")):
+        lines = textwrap.wrap(para, _WIDTH - _LABEL, break_on_hyphens=False) or [""]
+        for j, ln in enumerate(lines):
+            head = label if (k == 0 and j == 0) else ""
+            out.append(f"{head:<{_LABEL}}{ln}".rstrip())
+    return out
+
+
+def _unit(u: str) -> str:
+    return f" {u}" if u not in ("", "1") else ""
+
+
+def _explain_overview_text(ov) -> str:
+    out = [ov.title, "=" * len(ov.title)]
+    for mo in ov.measurands:
+        m = mo.measurand
+        out += ["", f"{m.name} = {m.expression}   (terms by share of u_c², largest first)"]
+        rows, sources = [], []
+        for r in mo.rows:
+            t = r.term
+            rows.append([t.name, fmt_value(t.value, t.standard_uncertainty) + _unit(t.unit),
+                         fmt_u(t.standard_uncertainty), t.distribution, fmt_dof(t.dof),
+                         fmt_num(t.sensitivity, 4), fmt_u(t.contribution),
+                         fmt_share(t.variance_share), t.evaluation])
+            sources.append(r.source)
+        headers = ["input", "estimate", "u(x)", "distribution", "ν", "c", "|c·u|", "share",
+                   "type"]
+        # the source column gets what is left of the 100 columns (at least 12 characters)
+        used = len(_table(headers, rows).split("\n")[1])
+        room = max(12, _WIDTH - used - 2)
+        for row, src in zip(rows, sources):
+            row.append(src if len(src) <= room else src[:room - 1] + "…")
+        table = _table(headers + ["source"], rows, right={1, 2, 4, 5, 6, 7})
+        out += [ln.rstrip() for ln in table.split("\n")]
+        mu = _unit(m.unit)
+        out.append(f"  {m.name} = {fmt_value(m.value, m.standard_uncertainty)}{mu}, "
+                   f"u_c = {fmt_u(m.standard_uncertainty)}{mu}, U = "
+                   f"{fmt_u(m.expanded_uncertainty)}{mu} (k = {m.coverage_factor:.2f}, "
+                   f"ν_eff = {fmt_dof(m.effective_dof)})")
+    out += ["", "budget explain SPEC TERM answers for one term"]
+    return "\n".join(out)
+
+
+def _distribution_words(d: dict, unit: str) -> str:
+    kind = d.get("kind", "")
+    if kind in ("normal", "student-t"):
+        extra = f", ν = {fmt_dof(d.get('dof'))}" if kind == "student-t" else ""
+        return f"{kind} (centre {d.get('loc', 0):.10g}, scale {d.get('scale', 0):.6g}{extra})"
+    if "low" in d:
+        return f"{kind} on [{d['low']:.10g}, {d['high']:.10g}]{_unit(unit)}"
+    return kind
+
+
+def _diagnostic_lines(d: dict, prefix: str = "") -> list[str]:
+    out = []
+    for k, v in d.items():
+        key = f"{prefix}{k}"
+        if k == "figures" and isinstance(v, list):
+            titles = [f.get("title") or f.get("id", "") for f in v if isinstance(f, dict)]
+            out.append(f"{key}: {'; '.join(titles)} (drawn in the report)")
+        elif isinstance(v, dict):
+            out += _diagnostic_lines(v, key + ".")
+        elif isinstance(v, list):
+            if not v:
+                out.append(f"{key}: none")
+            elif len(v) <= 6 and all(isinstance(x, (int, float, str, bool)) or x is None
+                                     for x in v):
+                out.append(f"{key}: " + ", ".join(fmt_num(x, 6) if isinstance(x, float)
+                                                  else str(x) for x in v))
+            else:
+                out.append(f"{key}: [{len(v)} entries; see --json]")
+        elif isinstance(v, float):
+            out.append(f"{key}: {fmt_num(v, 6)}")
+        else:
+            out.append(f"{key}: {v}")
+    return out
+
+
+def _explain_term_text(expl) -> str:
+    out: list[str] = []
+    shown: set[str] = set()          # modules whose diagnostics were printed already
+    for a in expl.answers:
+        t, unit, munit = a.term, _unit(a.term.unit), _unit(a.measurand_unit)
+        head = f"{t.name} in the budget of {a.measurand}   ({expl.title})"
+        out += ["", head, "-" * min(len(head), _WIDTH)] if out else [head, "-" * min(len(head), _WIDTH)]
+        out += _section("What it is", a.description or "(no description in the spec)")
+        out += _section("Estimate", f"{t.name} = {t.value:.12g}{unit}")
+        out += _section("Std uncertainty", f"u({t.name}) = {fmt_u(t.standard_uncertainty)}{unit}"
+                        f" (k = 1; full precision {t.standard_uncertainty:.6g})")
+        out += _section("Distribution", _distribution_words(a.distribution, t.unit))
+        out += _section("  why", a.distribution_reason or "(not stated)")
+        out += _section("Degrees of freedom", f"ν = {fmt_dof(t.dof)}")
+        out += _section("  why", a.dof_reason or "(not stated)")
+        c_line = f"c = ∂{a.measurand}/∂{t.name} = {a.derivative or '(not recorded)'}"
+        out += _section("Sensitivity", c_line)
+        check = ("" if a.derivative_value is None else
+                 f"; the derivative above evaluated at the estimates gives {a.derivative_value:.10g}")
+        out += _section("", f"= {t.sensitivity:.10g}{munit}{' per ' + t.unit if unit else ''}"
+                        f" at the input estimates{check}")
+        for name, expr in a.model:
+            out += _section("  model", f"{name} = {expr}")
+        if a.module_expression:
+            out += _section("  module", f"{a.module_input} = {a.module_expression} (the "
+                            f"'{a.module_kind}' module's expression, inlined into the model)")
+        out += _section("  how obtained", "exact symbolic partial derivative of the model with "
+                        "every earlier output and input-module expression substituted, "
+                        "evaluated at the input estimates (JCGM 100 eq. 10-11)")
+        out += _section("Contribution", f"c·u = {t.sensitivity * t.standard_uncertainty:.4g}"
+                        f"{munit}, |c·u| = {fmt_u(t.contribution)}{munit}; share of u_c² = "
+                        f"{fmt_share(t.variance_share)}")
+        kind = ("statistical analysis of series of observations (JCGM 100 §4.2)"
+                if t.evaluation == "A" else "other means than statistics of observations "
+                "(JCGM 100 §4.3)")
+        out += _section("Evaluation", f"Type {t.evaluation}: {kind}")
+        out += _section("Source", f"{a.method or '(not stated)'} [origin: {a.origin or '?'}]")
+        for f in a.files:
+            out += _section("  file", f"{f.path}" + (f", rows {f.rows}" if f.rows else ""))
+            out += _section("  sha256", f.sha256)
+        out += _section("Correlated with", ", ".join(f"{n} (r = {r:.3g})" for n, r in
+                                                     a.correlations) or "none")
+        if a.module_input in shown:
+            out += _section(f"Module '{a.module_kind}'", f"input [inputs.{a.module_input}]; "
+                            "its diagnostics are shown above")
+        elif a.module_input:
+            shown.add(a.module_input)
+            diag = _diagnostic_lines(a.diagnostics)
+            more = len(diag) - 40
+            diag = diag[:40] + ([f"… {more} more lines; see --json"] if more > 0 else [])
+            out += _section(f"Module '{a.module_kind}'", f"input [inputs.{a.module_input}]")
+            for ln in diag:
+                out += _section("", ln)
+        else:
+            out += _section("Module diagnostics", "none (not produced by an input module)")
+        for n in a.notes:
+            out += _section("Note", n)
+        for k, w in enumerate(a.what_if):
+            change = "" if k == 0 or w.relative_change is None else \
+                f" ({100 * w.relative_change:+.1f} %)"
+            out += _section("What if" if k == 0 else "",
+                            f"{w.label + ':':<20}U = {fmt_u(w.expanded_uncertainty)}{munit}{change}"
+                            f"; u_c = {fmt_u(w.standard_uncertainty)}, k = {w.coverage_factor:.2f}"
+                            f", ν_eff = {fmt_dof(w.effective_dof)}")
+        for ctn in a.cautions:
+            out += _section("Caution", ctn)
+    return "\n".join(out)
+
+
+def _add_explain(sub) -> None:
+    p = sub.add_parser("explain", help="where each number of a budget comes from",
+                       description="Without TERM: every term of every measurand, sorted by "
+                                   "its share of u_c². With TERM: a fixed-section answer for "
+                                   "that term (estimate, distribution and ν with their reasons, "
+                                   "the partial derivative, contribution, sources and digests, "
+                                   "module diagnostics, what-if lines). Reads a spec, or a "
+                                   "stored result with --record.")
+    p.add_argument("spec", nargs="?", metavar="SPEC", help="budget spec file (TOML)")
+    p.add_argument("term", nargs="?", metavar="TERM", help="the term (input) to explain")
+    p.add_argument("--record", metavar="RESULT.json",
+                   help="explain a stored result record instead of evaluating a spec")
+    p.add_argument("--measurand", metavar="NAME", help="only this measurand")
+    p.add_argument("--json", metavar="OUT", help="write the answer as JSON to OUT")
+    p.set_defaults(func=_cmd_explain)
+
+
+def _cmd_explain(args) -> int:
+    from .errors import ComputationError
+    from .explain import explain_term, load_record, overview
+    from .outputs import check_writable, write_atomic
+    if args.json:
+        check_writable(args.json)
+    if args.record:
+        given = [x for x in (args.spec, args.term) if x]
+        if len(given) > 1:
+            raise UsageError("with --record give only TERM, not a spec", field="SPEC")
+        b = load_record(args.record)
+        term = given[0] if given else None
+    else:
+        if not args.spec:
+            raise UsageError("give a SPEC file, or --record RESULT.json", field="SPEC")
+        from .engine import evaluate
+        from .spec import load_spec
+        b = evaluate(load_spec(args.spec), monte_carlo_enabled=False)
+        term = args.term
+    if term is None:
+        answer = overview(b, args.measurand)
+        print(_explain_overview_text(answer))
+    else:
+        answer = explain_term(b, term, args.measurand)
+        print(_explain_term_text(answer))
+    if args.json:
+        try:
+            text = json.dumps(answer.to_dict(), indent=2, ensure_ascii=False, allow_nan=False)
+        except ValueError:  # a module put inf/NaN in its diagnostics (its contract says None)
+            raise ComputationError("the answer holds a non-finite number and cannot be "
+                                   "written as JSON", file=args.json, field="--json") from None
+        write_atomic(args.json, text + "\n")
+        print(f"\nanswer written to {args.json}")
+    return EXIT_OK
+
+
+# --------------------------------------------------------------------------- compare
+def _en_rows(rows) -> list[list[str]]:
+    out = []
+    for e in rows:
+        verdict = "–" if e.en is None else ("pass" if abs(e.en) <= 1 else "FAIL")
+        shared = ", ".join(e.shared) or "none"
+        out.append([e.a, e.b, fmt_value(e.difference, e.expanded_uncertainty or abs(e.difference)),
+                    fmt_u(e.expanded_uncertainty), "–" if e.en is None else f"{e.en:.2f}",
+                    verdict, shared if len(shared) <= 30 else shared[:29] + "…"])
+    return out
+
+
+def _compare_text(c, files: list[str]) -> str:
+    unit = _unit(c.unit)
+    head = f"Comparison of runs — {c.measurand}" + (f" ({c.unit})" if unit else "")
+    out = [head, "=" * len(head)]
+    rows = []
+    for r, f in zip(c.runs, files):
+        name = Path(f).name
+        rows.append([r.label, name if len(name) <= 24 else name[:23] + "…", r.date,
+                     fmt_value(r.value, r.expanded_uncertainty),
+                     f"{fmt_u(r.stated_expanded_uncertainty)} ({r.stated_coverage_factor:.2f})",
+                     fmt_u(r.expanded_uncertainty)])
+    out.append(_table(["run", "record", "date", "value", "U stated (k)", "U used (k = 2)"],
+                      rows, right={3, 4, 5}))
+    out = [ln.rstrip() for block in out for ln in block.split("\n")]
+    for r in c.runs:
+        out += _section(f"  {r.label}", r.title)
+    if c.reference is not None:
+        r = c.reference
+        src = f", from the record “{r.title}”" if c.reference_kind == "record" else ""
+        out += ["", f"reference: {fmt_value(r.value, r.expanded_uncertainty)} ± "
+                    f"{fmt_u(r.expanded_uncertainty)}{unit} (k = 2){src}"]
+    if c.mean is not None:
+        m = c.mean
+        out += ["", f"weighted mean x̄ = {fmt_value(m.value, m.internal_uncertainty)}{unit}, "
+                    f"internal u = {fmt_u(m.internal_uncertainty)}, external u = "
+                    f"{fmt_u(m.external_uncertainty)} (= R_B × internal)",
+                f"Birge ratio R_B = {fmt_num(m.birge_ratio, 3)}, χ² = {fmt_num(m.chi2, 4)} "
+                f"with ν = {m.dof}, p = {fmt_num(m.p_value, 3)}"]
+        if not math.isclose(m.uncertainty_with_shared, m.internal_uncertainty, rel_tol=1e-9):
+            out.append(f"u(x̄) with the shared terms' covariance = "
+                       f"{fmt_u(m.uncertainty_with_shared)}{unit}")
+    hdr = ["result", "against", "difference", "U(diff)", "E_n", "", "shared terms left out"]
+    what = "the reference" if c.reference is not None else "the weighted mean (run included in it)"
+    out += ["", f"E_n against {what}, k = 2 (ISO 13528):", _table(hdr, _en_rows(c.en),
+                                                                   right={2, 3, 4})]
+    if c.pairwise:
+        out += ["", "pairwise E_n:", _table(hdr, _en_rows(c.pairwise), right={2, 3, 4})]
+    out += ["", "shared terms (same source digest; correlation 1, left out of differences):"]
+    if not c.shared:
+        out.append("  none")
+    for s in c.shared:
+        basis = s.basis + (" " + ", ".join(d[:16] + "…" for d in s.digests) if s.digests else "")
+        out += _section(f"  {s.name}", f"{', '.join(s.runs)} — {basis} (Type {s.evaluation})")
+    for n in c.notes:
+        out += _section("note", n)
+    return "\n".join(ln.rstrip() for block in out for ln in block.split("\n"))
+
+
+def _add_compare(sub) -> None:
+    p = sub.add_parser("compare", help="compare runs: weighted mean, Birge ratio, E_n",
+                       description="Compare result records of several runs: a table of runs, "
+                                   "the weighted mean with internal and external uncertainty, "
+                                   "Birge ratio, χ² and its p-value, and E_n (k = 2) of each "
+                                   "run against a reference or the weighted mean. Terms with "
+                                   "the same source digest in two records are treated as "
+                                   "shared.")
+    p.add_argument("records", nargs="*", metavar="RECORD.json", help="result records")
+    p.add_argument("--reference", nargs="+", metavar="REF",
+                   help="VALUE U (U with k = 2, in the measurand's unit) or a RECORD.json")
+    p.add_argument("--measurand", metavar="NAME",
+                   help="output to compare (default: the one named dev…, else the first)")
+    p.add_argument("--pairwise", action="store_true", help="also E_n of every pair of runs")
+    p.add_argument("--pdf", metavar="OUT.pdf", help="write the comparison as a PDF")
+    p.add_argument("--json", metavar="OUT", help="write the comparison as JSON")
+    p.set_defaults(func=_cmd_compare)
+
+
+def _number(text: str) -> float | None:
+    try:
+        v = float(text)
+    except ValueError:
+        return None
+    return v if math.isfinite(v) else None
+
+
+def _cmd_compare(args) -> int:
+    from .compare import ReferenceValue, compare_runs
+    from .explain import load_record
+    from .outputs import check_writable, write_atomic
+    records = list(args.records)
+    reference, ref_file = None, None
+    if args.reference:
+        ref = list(args.reference)
+        # argparse gives --reference every word after it; the words that do not belong to it
+        # are further records
+        if _number(ref[0]) is not None:
+            if len(ref) < 2 or _number(ref[1]) is None:
+                raise UsageError("--reference takes VALUE U (two numbers) or one RECORD.json",
+                                 field="--reference")
+            reference = ReferenceValue(_number(ref[0]), _number(ref[1]))
+            records += ref[2:]
+        else:
+            ref_file = ref[0]
+            records += ref[1:]
+    for out in (args.pdf, args.json):
+        if out:
+            check_writable(out)
+    runs = [load_record(f) for f in records]
+    if ref_file is not None:
+        reference = load_record(ref_file)
+    if not runs:
+        raise UsageError("give at least one RECORD.json", field="RECORD")
+    c = compare_runs(runs, measurand=args.measurand, reference=reference,
+                     pairwise=args.pairwise, files=records + ([ref_file] if ref_file else []))
+    print(_compare_text(c, records))
+    if args.pdf:
+        from .report.compare_render import compare_pdf
+        write_atomic(args.pdf, compare_pdf(c, files=[Path(f).name for f in records],
+                                           software=f"qcs-budget {__version__}"))
+        print(f"\nPDF written to {args.pdf}")
+    if args.json:
+        d = {"records": records, "reference_record": ref_file, **c.to_dict()}
+        write_atomic(args.json, json.dumps(d, indent=2, ensure_ascii=False, allow_nan=False)
+                     + "\n")
+        print(f"\ncomparison written to {args.json}")
+    return EXIT_OK
+
+
+# --------------------------------------------------------------------------- pump
+def _positive_float(text: str) -> float:
+    v = _number(text)
+    if v is None or v <= 0:
+        raise argparse.ArgumentTypeError(f"must be a number > 0; got {text!r}")
+    return v
+
+
+def _finite_float(text: str) -> float:
+    v = _number(text)
+    if v is None:
+        raise argparse.ArgumentTypeError(f"must be a finite number; got {text!r}")
+    return v
+
+
+def _add_pump_parser(sub) -> None:
+    p = sub.add_parser("pump", help="pump characterisation: fit a plateau scan or escape record",
+                       description="Pump characterisation tools.")
+    psub = p.add_subparsers(dest="pump_command", metavar="ACTION", parser_class=_Parser)
+    f = psub.add_parser("fit", help="fit a pump model and report the predicted pump error",
+                        description="Fit the decay-cascade model to a plateau scan (gate_voltage, "
+                                    "n_mean[, n_std]) or the sequential-escape model to an "
+                                    "escape record (hold_time_s, n_mean[, gate_voltage, n_std]) "
+                                    "and print a fixed-section report: parameters with standard "
+                                    "errors and correlations, fit statistics, the predicted "
+                                    "error at the operating point (a model extrapolation, not a "
+                                    "measurement), the regime verdict when temperatures are "
+                                    "given, and the fit-result file. DATA may also be a "
+                                    "fit-result file (.toml or .json).")
+    f.add_argument("data", metavar="DATA", help="data CSV, or a fit-result file (.toml/.json)")
+    f.add_argument("--model", choices=("decay-cascade", "sequential-escape"),
+                   help="model to fit (required for a data CSV)")
+    f.add_argument("--plateau", type=int, metavar="N", help="wanted electrons per cycle "
+                   "(default 1, or the fit file's)")
+    f.add_argument("--operating-point", type=_finite_float, metavar="V",
+                   help="gate voltage of operation in V (default: the best one the fit predicts)")
+    f.add_argument("--hold-time", type=_positive_float, metavar="S",
+                   help="hold time of operation in s (sequential escape)")
+    f.add_argument("--loaded", type=int, metavar="N", help="electrons loaded (sequential escape)")
+    f.add_argument("--steps", type=int, metavar="K", help="steps of the decay-cascade model")
+    slope = f.add_mutually_exclusive_group()
+    slope.add_argument("--shared-slope", dest="shared_slope", action="store_true", default=None,
+                       help="one gate slope for all steps/electrons")
+    slope.add_argument("--separate-slopes", dest="shared_slope", action="store_false",
+                       help="one gate slope per step/electron")
+    f.add_argument("--reference-voltage", type=_finite_float, metavar="V",
+                   help="V_ref of the escape times (default: the operating point)")
+    f.add_argument("--allow-extrapolation", action="store_true",
+                   help="accept an operating point outside the data")
+    f.add_argument("--samples", type=int, metavar="N", default=20000,
+                   help="parameter samples for the uncertainty of δ (default 20000)")
+    f.add_argument("--seed", type=_seed, metavar="S", default=20100430,
+                   help="seed of those samples (default 20100430)")
+    f.add_argument("--temperatures", metavar="FILE",
+                   help="escape rates at several temperatures (temperature_k, gate_voltage, "
+                        "escape_rate[, escape_rate_std]) for the thermal-activation check")
+    f.add_argument("--figures", metavar="DIR", help="write the figures as SVG files into DIR")
+    f.add_argument("--write-fit", metavar="FILE",
+                   help="write the fit-result file (JSON if FILE ends in .json, else TOML)")
+    f.set_defaults(func=_cmd_pump_fit)
+    p.set_defaults(func=lambda args: (p.print_help(), EXIT_BAD_INPUT)[1])
+
+
+def _cmd_pump_fit(args) -> int:
+    from .inputs.pump_analysis import add_thermal_check, analyse_data, analyse_fit_file
+    from .inputs.pump_fitfile import fit_file_text
+    from .inputs.pump_report import figure_data, fit_report
+    from .outputs import check_writable, write_atomic
+
+    def option_error(key, message):
+        return UsageError(message, field="--" + key.replace("_", "-"))
+
+    data = Path(args.data)
+    if not data.is_file():
+        raise UsageError("file not found", file=args.data, field="DATA")
+    if args.write_fit:
+        check_writable(args.write_fit)
+    if args.figures and not Path(args.figures).is_dir():
+        raise UsageError("the folder does not exist", file=args.figures, field="--figures")
+    if args.temperatures and not Path(args.temperatures).is_file():
+        raise UsageError("file not found", file=args.temperatures, field="--temperatures")
+    if data.suffix.lower() in (".toml", ".json"):
+        for opt in ("loaded", "steps", "shared_slope", "reference_voltage"):
+            if getattr(args, opt) is not None:
+                raise UsageError("applies to fitting a data CSV; a fit-result file carries the "
+                                 "model settings", field="--" + opt.replace("_", "-"))
+        a = analyse_fit_file(data, plateau=args.plateau, operating_point=args.operating_point,
+                             hold_time=args.hold_time, allow_extrapolation=args.allow_extrapolation,
+                             samples=args.samples, seed=args.seed, shown=args.data,
+                             option_error=option_error)
+        if args.model and args.model != a.model:
+            raise UsageError(f"is {args.model} but {args.data} holds a {a.model} fit",
+                             field="--model")
+    else:
+        if not args.model:
+            raise UsageError("is required for a data CSV (decay-cascade or sequential-escape)",
+                             field="--model")
+        a = analyse_data(data, model=args.model,
+                         plateau=1 if args.plateau is None else args.plateau,
+                         operating_point=args.operating_point, hold_time=args.hold_time,
+                         loaded=args.loaded, steps=args.steps, shared_slope=args.shared_slope,
+                         reference_voltage=args.reference_voltage,
+                         allow_extrapolation=args.allow_extrapolation, samples=args.samples,
+                         seed=args.seed, shown=args.data, option_error=option_error,
+                         best_if_missing=True)
+    if args.temperatures:
+        a = add_thermal_check(a, Path(args.temperatures), shown=args.temperatures)
+    figures = []
+    if args.figures:
+        from .report.figures import module_figure
+        figures = [(Path(args.figures) / f"{fig['id']}.svg", module_figure(fig, fig["id"]))
+                   for fig in figure_data(a)]
+    print(fit_report(a), end="")
+    if args.write_fit:
+        fmt = "json" if args.write_fit.lower().endswith(".json") else "toml"
+        write_atomic(args.write_fit, fit_file_text(a.record, fmt))
+        print(f"\nfit result written to {args.write_fit}")
+    for path, svg in figures:
+        write_atomic(path, svg)
+    if figures:
+        print(f"figures written to {args.figures}: " + ", ".join(p.name for p, _ in figures))
+    return EXIT_OK
+
+
+# --------------------------------------------------------------------------- identity, sign, verify
+_PASSPHRASE_ENV = "BUDGET_PASSPHRASE"
+
+
+def _quiet_library_logs() -> None:
+    """pyHanko logs validation details (with tracebacks) as warnings; the CLI says it in one
+    line instead, so those records go nowhere (a user who configures logging still gets them
+    through their own handlers on these loggers)."""
+    import logging
+    for name in ("pyhanko", "pyhanko_certvalidator"):
+        log = logging.getLogger(name)
+        if not any(isinstance(h, logging.NullHandler) for h in log.handlers):
+            log.addHandler(logging.NullHandler())
+        log.propagate = False
+
+
+def _passphrase(prompt: str, *, confirm: bool = False) -> str:
+    """The passphrase from $BUDGET_PASSPHRASE or a prompt on the terminal (never echoed)."""
+    import getpass
+    import os
+    env = os.environ.get(_PASSPHRASE_ENV)
+    if env is not None:
+        return env
+    if not sys.stdin.isatty():
+        raise UsageError(f"no passphrase: set {_PASSPHRASE_ENV} or run on a terminal",
+                         field="passphrase")
+    first = getpass.getpass(prompt)
+    if confirm and getpass.getpass("Repeat the passphrase: ") != first:
+        raise UsageError("the two passphrases differ", field="passphrase")
+    return first
+
+
+def _read_input(path: str, field: str) -> bytes:
+    from .errors import DataError
+    try:
+        return Path(path).read_bytes()
+    except FileNotFoundError:
+        raise DataError("file not found", file=path, field=field) from None
+    except OSError as exc:
+        raise DataError(f"cannot read it ({exc.strerror})", file=path, field=field) from None
+
+
+def _add_identity(sub) -> None:
+    p = sub.add_parser("identity", help="create a signing identity (key and certificate)",
+                       description="Signing identities for labs without their own PKI.")
+    isub = p.add_subparsers(dest="identity_command", metavar="ACTION", parser_class=_Parser)
+    c = isub.add_parser("create", help="write DIR/identity.p12 and DIR/identity.pem",
+                        description="Create an EC P-256 key and a self-signed certificate "
+                                    "naming the signer and role. DIR/identity.p12 holds both, "
+                                    "encrypted with a passphrase (from $BUDGET_PASSPHRASE or a "
+                                    "prompt); DIR/identity.pem is the certificate to give to "
+                                    "verifiers (budget verify --trust).")
+    c.add_argument("--name", required=True, help="the signer's name")
+    c.add_argument("--role", default="", help="the signer's role, e.g. 'Head of laboratory'")
+    c.add_argument("--out", required=True, metavar="DIR", help="folder for the two files")
+    c.add_argument("--force", action="store_true", help="replace existing identity files")
+    c.set_defaults(func=_cmd_identity_create)
+    p.set_defaults(func=_cmd_identity_help, identity_parser=p)
+
+
+def _cmd_identity_help(args) -> int:
+    args.identity_parser.print_help()
+    return EXIT_BAD_INPUT
+
+
+def _cmd_identity_create(args) -> int:
+    from .signing import create_identity
+    out = Path(args.out)
+    for f in ("identity.p12", "identity.pem"):  # refuse before asking for a passphrase
+        if (out / f).exists() and not args.force:
+            raise UsageError("exists already; use --force to replace it", file=str(out / f),
+                             field="--out")
+    pw = _passphrase("Passphrase for the new identity: ", confirm=True)
+    ident = create_identity(args.name, args.role, out, pw, force=args.force)
+    role = f" ({ident.role})" if ident.role else ""
+    print(f"identity for {ident.name}{role}")
+    print(f"  private key and certificate: {ident.p12_path} (keep it and its passphrase safe)")
+    print(f"  certificate for verifiers:   {ident.pem_path}")
+    print(f"  SHA-256 fingerprint: {ident.fingerprint}")
+    return EXIT_OK
+
+
+def _add_sign(sub) -> None:
+    p = sub.add_parser("sign", help="sign a report (PAdES) with the evidence embedded",
+                       description="Embed the result record, the spec and the input-file "
+                                   "manifest in the PDF and sign it (PAdES baseline) with a "
+                                   "visible block naming the signer, role and date. The record "
+                                   "and spec come from --record and --spec, or from the PDF "
+                                   "itself when it carries them already (e.g. a co-signature). "
+                                   "The passphrase comes from $BUDGET_PASSPHRASE or a prompt.")
+    p.add_argument("report", help="the report PDF")
+    p.add_argument("--identity", required=True, metavar="FILE.p12",
+                   help="PKCS#12 identity (budget identity create, or the lab's PKI)")
+    p.add_argument("-o", "--output", required=True, metavar="SIGNED.pdf", help="signed PDF")
+    p.add_argument("--reason", default="", help="reason for signing, e.g. 'approved'")
+    p.add_argument("--location", default="", help="where it was signed")
+    p.add_argument("--spec", metavar="SPEC", help="the spec the report was computed from")
+    p.add_argument("--record", metavar="RECORD.json",
+                   help="the result record the report shows (budget run --json)")
+    p.add_argument("--force", action="store_true", help="replace an existing output file")
+    p.set_defaults(func=_cmd_sign)
+
+
+def _cmd_sign(args) -> int:
+    from .archive import input_manifest, parse_record
+    from .errors import DataError
+    from .outputs import check_writable, write_atomic
+    from .signing import ATTACHMENTS, read_attachments, sign_pdf
+    _quiet_library_logs()
+    check_writable(args.output, force=args.force)
+    pdf = _read_input(args.report, "report")
+    try:
+        carried = read_attachments(pdf)
+    except DataError as exc:
+        raise exc.located(file=args.report) from None
+    record = _read_input(args.record, "--record") if args.record else \
+        carried.get(ATTACHMENTS["record"])
+    spec = _read_input(args.spec, "--spec") if args.spec else carried.get(ATTACHMENTS["spec"])
+    if record is None or spec is None:
+        missing = " and ".join(o for o, v in (("--record", record), ("--spec", spec))
+                               if v is None)
+        raise UsageError(f"the report carries no result record and spec; give {missing}",
+                         field=missing.split(" ")[0])
+    # check the evidence before asking for the passphrase; errors name the file it came from
+    parse_record(record, file=args.record or f"{args.report} (embedded record)")
+    manifest = input_manifest(record, spec, spec_name=args.spec)
+    pw = _passphrase(f"Passphrase for {args.identity}: ")
+    try:
+        signed = sign_pdf(pdf, args.identity, pw, reason=args.reason, location=args.location,
+                          record_json=record, spec_text=spec, manifest=manifest)
+    except DataError as exc:
+        raise exc.located(file=args.report) from None
+    finally:
+        del pw
+    write_atomic(args.output, signed)
+    print(f"signed {args.report} -> {args.output}")
+    return EXIT_OK
+
+
+def _add_verify(sub) -> None:
+    p = sub.add_parser("verify", help="check a signed report and, optionally, its inputs",
+                       description="Exit 0 only if every signature is intact, every signer is "
+                                   "trusted and nothing that changes content was appended after "
+                                   "signing; exit 1 otherwise, saying what failed. With --inputs "
+                                   "DIR (a folder of the data files laid out as beside the spec, "
+                                   "or an archive from --archive), also compare each input "
+                                   "file's digest with the signed manifest and re-run the "
+                                   "embedded spec, comparing the new record byte for byte.")
+    p.add_argument("signed", help="the signed PDF")
+    p.add_argument("--trust", required=True, action="append", metavar="CERT.pem",
+                   help="certificate to trust (repeat for several)")
+    p.add_argument("--inputs", metavar="DIR", help="folder of input files, or an archive")
+    p.set_defaults(func=_cmd_verify)
+
+
+def _cmd_verify(args) -> int:
+    import tempfile
+
+    from .archive import is_archive, recompute, restore
+    from .verify import verify_pdf
+    _quiet_library_logs()
+    pdf = _read_input(args.signed, "signed")
+    if args.inputs and not Path(args.inputs).is_dir():
+        raise UsageError("is not a folder", file=args.inputs, field="--inputs")
+    res = verify_pdf(pdf, args.trust, file=args.signed)
+    yes = {True: "yes", False: "NO"}
+    for s in res.signatures:
+        role = f" ({s.role})" if s.role else ""
+        print(f"signature '{s.field}': {s.signer or 'unknown signer'}{role}, signed "
+              f"{s.signing_time or 'at an unknown time'} (signer's clock)")
+        print(f"  intact: {yes[s.intact]}   trusted: {yes[s.trusted]}   "
+              f"changes after signing: {s.modification}")
+    if res.manifest is not None:
+        m = res.manifest
+        print(f"evidence: record, spec {m.get('spec', {}).get('file', '?')} "
+              f"and {len(m.get('files', []))} input file(s) in the manifest")
+    problems = list(res.problems)
+    if args.inputs and res.spec is not None and res.record is not None and \
+            res.manifest is not None:
+        with tempfile.TemporaryDirectory(prefix="budget-verify-") as tmp:
+            folder = restore(args.inputs, tmp).parent if is_archive(args.inputs) \
+                else Path(args.inputs)
+            chk = recompute(res.spec, res.record, res.manifest, folder)
+        for f in chk.files:
+            print(f"input {f.path}: {f.status}")
+        print(f"recomputed record: {'identical' if chk.record_identical else 'DIFFERENT'}")
+        problems += list(chk.problems)
+    elif args.inputs:
+        problems.append("no embedded spec, record and manifest to re-run")
+    if problems:
+        for p in problems:
+            print(f"FAILED: {p}")
+        print(f"verification failed ({len(problems)} problem{'s' if len(problems) > 1 else ''})")
+        return EXIT_CHECK_FAILED
+    print("verified: intact, trusted, unchanged since signing"
+          + ("; inputs and record reproduced" if args.inputs else ""))
+    return EXIT_OK
+
+
+# --------------------------------------------------------------------------- report
+def _add_report(sub) -> None:
+    p = sub.add_parser(
+        "report", help="write the uncertainty report or a certificate draft (PDF, HTML)",
+        description="Render a budget as an A4 report (PDF with -o, HTML with --html): header, "
+                    "result statement, budget table, share chart, Monte Carlo histogram, input "
+                    "details and figures, cautions, digests, signature block. --certificate "
+                    "writes the calibration-certificate draft (ISO/IEC 17025:2017 7.8) instead, "
+                    "watermarked DRAFT. Give SPEC to evaluate it now, or --record RESULT.json "
+                    "(from 'budget run --json') to render a stored result without recomputing; "
+                    "SPEC is then left out.",
+        epilog="An existing output file is replaced, except a signed PDF, which needs --force.")
+    p.add_argument("spec", nargs="?", metavar="SPEC",
+                   help="budget spec (TOML); leave out with --record")
+    p.add_argument("-o", "--output", metavar="OUT.pdf", help="write the PDF to OUT.pdf")
+    p.add_argument("--html", metavar="OUT.html", help="write the HTML to OUT.html")
+    p.add_argument("--record", metavar="RESULT.json",
+                   help="render this stored result record instead of evaluating a spec")
+    p.add_argument("--certificate", action="store_true",
+                   help="the calibration-certificate draft instead of the full report")
+    p.add_argument("--trials", type=_trials, metavar="N", default=argparse.SUPPRESS,
+                   help="Monte Carlo trials (integer or 'adaptive'); overrides the spec")
+    p.add_argument("--seed", type=_seed, metavar="S", help="random seed; overrides the spec")
+    p.add_argument("--no-monte-carlo", action="store_true", help="skip the Monte Carlo method")
+    p.add_argument("--force", action="store_true", help="replace an existing signed PDF")
+    _add_archive_options(p)
+    p.set_defaults(func=_cmd_report)
+
+
+def _check_report_args(args) -> list[str]:
+    """Refuse argument combinations that do not fit; return the output paths."""
+    if args.record and args.spec:
+        raise UsageError("give either SPEC or --record RESULT.json, not both", field="SPEC")
+    if not args.record and not args.spec:
+        raise UsageError("give a SPEC file, or --record RESULT.json", field="SPEC")
+    if args.record:
+        given = [o for o, v in (("--trials", hasattr(args, "trials")),
+                                ("--seed", args.seed is not None),
+                                ("--no-monte-carlo", args.no_monte_carlo),
+                                ("--archive", bool(args.archive))) if v]
+        if given:
+            raise UsageError(f"{given[0]} needs a SPEC: a stored record is rendered as it is",
+                             field=given[0])
+    outs = [o for o in (args.output, args.html) if o]
+    if not outs:
+        raise UsageError("nothing to write: give -o OUT.pdf and/or --html OUT.html",
+                         field="--output")
+    if args.output and args.html and Path(args.output).resolve() == Path(args.html).resolve():
+        raise UsageError("-o and --html name the same file", field="--html")
+    ins = {Path(x).resolve() for x in (args.spec, args.record) if x}
+    for o in outs:
+        if Path(o).resolve() in ins:
+            raise UsageError("would overwrite an input file", file=o, field="output")
+    return outs
+
+
+def _cmd_report(args) -> int:
+    from .outputs import check_writable, write_atomic
+    from .report import looks_signed, render_html, render_pdf_layout
+    from .report.context import result_line
+    outs = _check_report_args(args)
+    for o in outs:
+        check_writable(o)
+        p = Path(o)
+        if o == args.output and p.is_file() and not args.force:
+            with open(p, "rb") as fh:
+                if looks_signed(fh.read()):
+                    raise UsageError("is a signed PDF; use --force to replace it", file=o,
+                                     field="--output")
+    _check_archive_option(args)
+    if args.record:
+        from .report import load_record
+        b = load_record(args.record)
+    else:
+        b = _evaluate_spec(args)
+    html = render_html(b, certificate=args.certificate)
+    rendered = render_pdf_layout(html) if args.output else None
+    if args.html:
+        write_atomic(args.html, html)
+    kind = "certificate draft" if args.certificate else "report"
+    for m in b.measurands:
+        print(result_line(m))
+    if args.html:
+        print(f"{kind} (HTML) written to {args.html}")
+    if rendered is not None:
+        write_atomic(args.output, rendered.pdf)
+        where = (f"; signature field on page {rendered.signature.page}"
+                 if rendered.signature else "")
+        print(f"{kind} written to {args.output} ({rendered.pages} page"
+              f"{'' if rendered.pages == 1 else 's'}{where})")
+    _write_archive_option(args, b)
+    return EXIT_OK
+
+
 # --------------------------------------------------------------------------- main
-COMMANDS = [_add_run, _add_validate]
+COMMANDS = [_add_run, _add_validate, _add_explain, _add_compare, _add_pump_parser,
+            _add_identity, _add_sign, _add_verify, _add_report]
 
 
 def build_parser() -> argparse.ArgumentParser:
@@ -215,22 +1001,60 @@ def build_parser() -> argparse.ArgumentParser:
     return parser
 
 
+class _Terminated(KeyboardInterrupt):
+    """SIGTERM or SIGHUP, turned into the same clean stop as Ctrl-C (SIGINT): the exception
+    unwinds through every ``write_atomic`` and archive build, which remove their temporary
+    files, so an interrupted run leaves no partial output."""
+
+    def __init__(self, signum: int):
+        super().__init__(signum)
+        self.signum = signum
+
+
+def _on_terminate(signum, frame):
+    raise _Terminated(signum)
+
+
+def _install_stop_handlers() -> dict:
+    import signal
+    previous = {}
+    for name in ("SIGTERM", "SIGHUP"):
+        sig = getattr(signal, name, None)
+        if sig is None:  # pragma: no cover - Windows has no SIGHUP
+            continue
+        try:
+            previous[sig] = signal.signal(sig, _on_terminate)
+        except (ValueError, OSError):  # not the main thread (e.g. main() called from a worker)
+            pass
+    return previous
+
+
+def _restore_stop_handlers(previous: dict) -> None:
+    import signal
+    for sig, handler in previous.items():
+        signal.signal(sig, handler)
+
+
 def main(argv: list[str] | None = None) -> int:
-    parser = build_parser()
+    previous = _install_stop_handlers()
     try:
+        parser = build_parser()
         args = parser.parse_args(argv)
         if not getattr(args, "func", None):
-            parser.print_help()
-            return EXIT_BAD_INPUT
+            raise UsageError("budget: a command is required (see 'budget --help')")
         return args.func(args)
     except BudgetError as exc:
         print(f"budget: error: {exc.one_line()}", file=sys.stderr)
         return EXIT_BAD_INPUT
-    except KeyboardInterrupt:
-        print("budget: interrupted; no output written", file=sys.stderr)
-        return EXIT_INTERRUPTED
+    except KeyboardInterrupt as exc:
+        what = "terminated" if isinstance(exc, _Terminated) else "interrupted"
+        print(f"budget: {what}; no output written", file=sys.stderr)
+        # 128 + signal number, the shell's convention (130 for SIGINT, 143 for SIGTERM)
+        return 128 + exc.signum if isinstance(exc, _Terminated) else EXIT_INTERRUPTED
     except BrokenPipeError:  # pragma: no cover - e.g. piped into head
         return EXIT_OK
+    finally:
+        _restore_stop_handlers(previous)
 
 
 if __name__ == "__main__":  # pragma: no cover

@@ -1,0 +1,31 @@
+"""The report and the certificate draft: HTML (jinja2) and PDF (WeasyPrint) from a Budget.
+
+::
+
+    from budget.report import render_html, render_pdf
+    html = render_html(budget)                       # or certificate=True
+    pdf = render_pdf(html)
+
+Templates: ``budget/templates/``. Figures: :mod:`budget.report.figures`. Signature field for the
+signing step: :func:`render_pdf_layout` and :func:`read_signature_box` (see
+:mod:`budget.report.render`). Heavy imports (matplotlib, WeasyPrint) happen on first use only.
+"""
+
+from .record import load_record, record_from_text
+from .render import (
+    SIGNATURE_FIELD_ID,
+    SIGNATURE_FIELD_MM,
+    SIGNATURE_INFO_KEY,
+    DataOnlyFetcher,
+    RenderedPdf,
+    SignatureBox,
+    looks_signed,
+    read_signature_box,
+    render_html,
+    render_pdf,
+    render_pdf_layout,
+)
+
+__all__ = ["render_html", "render_pdf", "render_pdf_layout", "RenderedPdf", "SignatureBox",
+           "DataOnlyFetcher", "read_signature_box", "looks_signed", "load_record",
+           "record_from_text", "SIGNATURE_FIELD_ID", "SIGNATURE_FIELD_MM", "SIGNATURE_INFO_KEY"]

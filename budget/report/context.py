@@ -1,0 +1,375 @@
+"""What the templates see: a Budget turned into display text (rounded by :mod:`budget.fmt`).
+
+The templates only lay out; every number is formatted here, every figure drawn here, so the
+HTML of a budget depends on nothing but the budget (and the software version): no clock, no
+file system. Text from the spec, data files or a record stays plain ``str``; the jinja
+environment escapes it on output.
+"""
+
+from __future__ import annotations
+
+import math
+from typing import Any
+
+from ..errors import DataError
+from ..fmt import fmt_dof, fmt_num, fmt_share, fmt_u
+from ..result import Budget, Measurand
+from . import figures as figs
+from .text import sci, unit_suffix, value_u
+
+__all__ = ["build_context", "FIELD_LABELS", "CERTIFICATE_ITEMS"]
+
+#: [report] key -> label in the header blocks
+FIELD_LABELS = {
+    "laboratory": "Laboratory", "laboratory_address": "Address of the laboratory",
+    "accreditation": "Accreditation", "report_number": "Report number",
+    "certificate_number": "Certificate number", "item": "Item", "item_serial": "Serial number",
+    "manufacturer": "Manufacturer", "item_condition": "Condition of the item",
+    "customer": "Customer", "customer_address": "Address of the customer",
+    "operator": "Measured by", "approver": "Approved by", "approver_role": "Role of the approver",
+    "measurement_date": "Date(s) of measurement", "issue_date": "Date of issue",
+    "receipt_date": "Date of receipt of the item", "method": "Method", "procedure": "Procedure",
+    "traceability": "Metrological traceability", "conditions": "Environmental conditions",
+    "location": "Location of the measurement", "remarks": "Remarks", "measurand": "Measurand",
+    "adjustment": "Adjustment",
+}
+
+#: What ISO/IEC 17025:2017 asks a calibration certificate to state, and the [report] key that
+#: holds it: (key, clause). A draft lists the ones still empty.
+CERTIFICATE_ITEMS = (
+    ("laboratory", "7.8.2.1 b"), ("laboratory_address", "7.8.2.1 b"), ("location", "7.8.2.1 c"),
+    ("certificate_number", "7.8.2.1 d"), ("customer", "7.8.2.1 e"),
+    ("customer_address", "7.8.2.1 e"), ("method", "7.8.2.1 f"), ("item", "7.8.2.1 g"),
+    ("item_serial", "7.8.2.1 g"), ("receipt_date", "7.8.2.1 h"),
+    ("measurement_date", "7.8.2.1 i"), ("issue_date", "7.8.2.1 j"),
+    ("approver", "7.8.2.1 o"), ("approver_role", "7.8.2.1 o"),
+    ("conditions", "7.8.4.1 b"), ("traceability", "7.8.4.1 c"),
+)
+
+_MAX_DIAGNOSTICS = 40          # scalar diagnostics shown per module (the record has them all)
+
+
+def _s(x: Any) -> str:
+    return "" if x is None else str(x)
+
+
+def result_line(m: Measurand) -> str:
+    """``R_X = (10000.178 ± 0.017) Ω`` — the complete result (JCGM 100 §7.2.4 form)."""
+    y = value_u(m.value, m.expanded_uncertainty)
+    big_u = sci(fmt_u(m.expanded_uncertainty))
+    unit = unit_suffix(m.unit)
+    return f"{m.name} = ({y} ± {big_u}){unit}"
+
+
+def coverage_statement(m: Measurand, *, fixed_k: bool) -> str:
+    """The sentence that says what U means (own wording of JCGM 100 §7.2.3 / EA-4/02 §5)."""
+    unit = unit_suffix(m.unit)
+    k = f"{m.coverage_factor:.2f}"
+    p = f"{100 * m.coverage_probability:g} %"
+    head = (f"The expanded uncertainty U = {sci(fmt_u(m.expanded_uncertainty))}{unit} is the "
+            f"combined standard uncertainty u_c = {sci(fmt_u(m.standard_uncertainty))}{unit} "
+            f"multiplied by the coverage factor k = {k}")
+    if fixed_k:
+        return (f"{head}, a value fixed in the budget spec rather than derived from the "
+                f"degrees of freedom; it is stated to give a coverage probability of "
+                f"approximately {p}.")
+    if math.isinf(m.effective_dof):
+        return (f"{head}; for the normal distribution that the measurand is taken to follow, "
+                f"this gives a coverage probability of approximately {p}.")
+    return (f"{head}; for a t-distribution with ν_eff = {fmt_dof(m.effective_dof)} effective "
+            f"degrees of freedom (Welch–Satterthwaite) this gives a coverage probability of "
+            f"approximately {p}.")
+
+
+def _distribution_text(q) -> str:
+    d, u = q.distribution, q.standard_uncertainty
+    unit = unit_suffix(q.unit)
+    if d.kind == "normal":
+        return "normal"
+    if d.kind == "student-t":
+        return f"scaled and shifted t, ν = {fmt_dof(d.dof)}, scale {sci(fmt_u(d.scale))}{unit}"
+    bounds = f"[{value_u(d.low, u)}, {value_u(d.high, u)}]{unit}"
+    if d.kind == "triangular":
+        return f"triangular on {bounds}, mode {value_u(d.loc, u)}"
+    if d.kind == "trapezoidal":
+        return f"trapezoidal on {bounds}, β = {fmt_num(d.beta, 3)}"
+    if d.kind == "arcsine":
+        return f"arcsine (U-shaped) on {bounds}"
+    return f"{d.kind} on {bounds}"
+
+
+def _term_rows(m: Measurand) -> list[dict[str, str]]:
+    rows = []
+    for t in sorted(m.terms, key=lambda t: -t.variance_share):
+        rows.append({
+            "name": t.name, "estimate": value_u(t.value, t.standard_uncertainty),
+            "unit": "" if t.unit == "1" else t.unit, "u": sci(fmt_u(t.standard_uncertainty)),
+            "distribution": t.distribution, "dof": fmt_dof(t.dof), "type": t.evaluation,
+            "c": sci(fmt_num(t.sensitivity, 4)), "contribution": sci(fmt_u(t.contribution)),
+            "share": fmt_share(t.variance_share), "derivative": t.derivative,
+        })
+    return rows
+
+
+def _mc_block(b: Budget, m: Measurand, *, draw: bool) -> dict[str, Any] | None:
+    mc = b.mc(m.name)
+    if mc is None:
+        return None
+    u = mc.standard_uncertainty
+    p = f"{100 * m.coverage_probability:g} %"
+    lpu_lo, lpu_hi = m.value - m.expanded_uncertainty, m.value + m.expanded_uncertainty
+    verdict = (f"The law of propagation is {'validated' if mc.validated else 'NOT validated'} "
+               f"by the Monte Carlo method (JCGM 101 §8): the end points differ by "
+               f"d_low = {sci(fmt_num(mc.d_low, 2))} and d_high = {sci(fmt_num(mc.d_high, 2))}, "
+               f"against the numerical tolerance δ = {sci(fmt_num(mc.tolerance, 2))}.")
+    if not mc.validated:
+        verdict += (" Report the Monte Carlo coverage interval, or review the model and the "
+                    "input distributions, before relying on y ± U.")
+    fig = None
+    if draw and mc.histogram_counts and len(mc.histogram_edges) == len(mc.histogram_counts) + 1:
+        fig = figs.svg_data_uri(figs.mc_figure(
+            name=m.name, unit=m.unit, value=m.value, standard_uncertainty=m.standard_uncertainty,
+            expanded_uncertainty=m.expanded_uncertainty, effective_dof=m.effective_dof,
+            coverage_probability=m.coverage_probability, counts=mc.histogram_counts,
+            edges=mc.histogram_edges, trials=mc.trials,
+            interval=(mc.interval_low, mc.interval_high), interval_kind=mc.interval_kind))
+    unit = unit_suffix(m.unit)
+    return {
+        "trials": f"{mc.trials:,}" + (" (adaptive)" if mc.adaptive else ""),
+        "rows": [
+            ("estimate y", value_u(m.value, m.standard_uncertainty) + unit,
+             value_u(mc.value, u) + unit),
+            ("standard uncertainty", sci(fmt_u(m.standard_uncertainty)) + unit,
+             sci(fmt_u(u)) + unit),
+            (f"{p} coverage interval",
+             f"[{value_u(lpu_lo, m.standard_uncertainty)}, {value_u(lpu_hi, m.standard_uncertainty)}]{unit}",
+             f"[{value_u(mc.interval_low, u)}, {value_u(mc.interval_high, u)}]{unit} "
+             f"({mc.interval_kind})"),
+        ],
+        "validated": mc.validated, "verdict": verdict, "figure": fig,
+        "stabilised": mc.stabilised,
+    }
+
+
+def _measurand_block(b: Budget, m: Measurand, *, draw: bool) -> dict[str, Any]:
+    fixed = b.run.get("coverage_factor_fixed") is not None
+    unit = unit_suffix(m.unit)
+    # U/|y| says something only when y is well away from zero (not for a deviation like
+    # dev_ppm = 0.33 ± 0.49), so it is shown only below 10 %
+    rel = (sci(fmt_u(m.expanded_uncertainty / abs(m.value)))
+           if m.value != 0 and m.expanded_uncertainty < 0.1 * abs(m.value) else "")
+    share_fig = None
+    if draw and m.terms:
+        share_fig = figs.svg_data_uri(figs.share_figure([t.name for t in m.terms],
+                                                        [t.variance_share for t in m.terms]))
+    second = ""
+    if m.second_order_variance:
+        second = (f"includes the GUM's second-order terms (JCGM 100 §5.1.2 note): "
+                  f"{sci(fmt_u(math.sqrt(abs(m.second_order_variance))))}{unit} in quadrature")
+    return {
+        "name": m.name, "unit": m.unit, "unit_sfx": unit, "expression": m.expression,
+        "result_line": result_line(m), "statement": coverage_statement(m, fixed_k=fixed),
+        "value": value_u(m.value, m.expanded_uncertainty) + unit,
+        "U": sci(fmt_u(m.expanded_uncertainty)) + unit,
+        "u": sci(fmt_u(m.standard_uncertainty)) + unit,
+        "k": f"{m.coverage_factor:.2f}", "p": f"{100 * m.coverage_probability:g} %",
+        "dof": fmt_dof(m.effective_dof), "relative_U": rel,
+        "terms": _term_rows(m), "share_figure": share_fig, "second_order": second,
+        "mc": _mc_block(b, m, draw=draw),
+    }
+
+
+def _input_block(b: Budget, q) -> dict[str, Any]:
+    p = q.provenance
+    shares = []
+    for m in b.measurands:
+        for t in m.terms:
+            if t.name == q.name:
+                shares.append(f"{fmt_share(t.variance_share)} of u_c²({m.name})")
+    u = q.standard_uncertainty
+    return {
+        "name": q.name, "description": q.description,
+        "estimate": (value_u(q.value, u) if u > 0 else sci(fmt_num(q.value, 10)))
+        + unit_suffix(q.unit),
+        "u": (sci(fmt_u(u)) + unit_suffix(q.unit)) if u > 0 else "0 (constant)",
+        "distribution": _distribution_text(q), "dof": fmt_dof(q.dof), "type": q.evaluation,
+        "origin": p.origin, "method": p.method, "distribution_reason": p.distribution_reason,
+        "dof_reason": p.dof_reason, "notes": list(p.notes), "shares": shares,
+        "files": [{"path": f.path, "sha256": f.sha256, "rows": f.rows} for f in p.files],
+    }
+
+
+def _scalar(v: Any) -> str | None:
+    if isinstance(v, bool):
+        return "yes" if v else "no"
+    if isinstance(v, (int, float)):
+        return sci(_trim(fmt_num(float(v), 10))) if isinstance(v, float) else str(v)
+    if isinstance(v, str):
+        return v
+    if v is None:
+        return "–"
+    return None
+
+
+def _trim(text: str) -> str:
+    """``0.05000000000`` -> ``0.05``; ``1.000000118e+09`` stays (zeros only at the end go)."""
+    mant, e, exp = text.partition("e")
+    if "." in mant:
+        mant = mant.rstrip("0").rstrip(".")
+    return mant + e + exp
+
+
+def _diagnostic_rows(diag: dict[str, Any]) -> list[tuple[str, str]]:
+    """Scalar diagnostics, one level of nesting flattened as ``fit.birge_ratio``."""
+    rows: list[tuple[str, str]] = []
+    nested: list[tuple[str, str]] = []
+    for k, v in diag.items():
+        if k == "figures":
+            continue
+        s = _scalar(v)
+        if s is not None:
+            rows.append((k, s))
+        elif isinstance(v, dict):
+            for k2, v2 in v.items():
+                s2 = _scalar(v2)
+                if s2 is not None:
+                    nested.append((f"{k}.{k2}", s2))
+    # a module's top-level scalars are its own summary; nested tables (e.g. the full fit)
+    # repeat them, so they are shown only when the summary is thin
+    if len(rows) < 8:
+        rows += nested
+    return rows[:_MAX_DIAGNOSTICS]
+
+
+def _module_blocks(b: Budget, *, draw: bool) -> list[dict[str, Any]]:
+    out = []
+    modules = b.run.get("modules") or {}
+    if not isinstance(modules, dict):
+        raise DataError("must be a table of input modules", field="run.modules")
+    for name, mod in modules.items():
+        where = f"run.modules.{name}"
+        if not isinstance(mod, dict):
+            raise DataError("must be a table", field=where)
+        diag = mod.get("diagnostics") or {}
+        if not isinstance(diag, dict):
+            raise DataError("must be a table", field=f"{where}.diagnostics")
+        figures = diag.get("figures") or []
+        if not isinstance(figures, list):
+            raise DataError("must be a list of figures", field=f"{where}.diagnostics.figures")
+        drawn = []
+        for i, f in enumerate(figures):
+            fw = f"{where}.diagnostics.figures[{i}]"
+            checked = figs.check_figure(f, fw)
+            drawn.append({"id": checked["id"], "title": checked["title"],
+                          "uri": figs.svg_data_uri(figs.module_figure(checked, fw))
+                          if draw else None})
+        out.append({"name": name, "module": _s(mod.get("module")),
+                    "expression": _s(mod.get("expression")),
+                    "quantities": [str(x) for x in mod.get("quantities") or []],
+                    "diagnostics": _diagnostic_rows(diag), "figures": drawn})
+    return out
+
+
+def _cautions(b: Budget) -> list[str]:
+    out: list[str] = []
+    for m in b.measurands:
+        mc = b.mc(m.name)
+        if mc is not None and not mc.validated:
+            out.append(f"{m.name}: the Monte Carlo method does not validate the linear result "
+                       f"at the tolerance δ = {sci(fmt_num(mc.tolerance, 2))} (JCGM 101 §8).")
+        if mc is not None and not mc.stabilised:
+            out.append(f"{m.name}: the adaptive Monte Carlo procedure stopped before its "
+                       "results stabilised.")
+        if math.isfinite(m.effective_dof) and m.effective_dof < 10:
+            out.append(f"{m.name}: few effective degrees of freedom (ν_eff = "
+                       f"{fmt_dof(m.effective_dof)}); k and the coverage interval depend "
+                       "strongly on them.")
+    if not b.monte_carlo:
+        out.append("The Monte Carlo check (JCGM 101) was not run for this budget.")
+    for q in b.inputs:
+        out.extend(f"{q.name}: {n}" for n in q.provenance.notes)
+    out.extend(str(n) for n in b.run.get("notes") or [])
+    return out
+
+
+def _header(rep: dict[str, str], keys: tuple[str, ...]) -> list[tuple[str, str]]:
+    return [(FIELD_LABELS[k], rep.get(k, "").strip()) for k in keys]
+
+
+def build_context(b: Budget, *, certificate: bool = False, draft: bool = True,
+                  figures: bool = True) -> dict[str, Any]:
+    """The template context of a report (or certificate draft) of ``b``.
+
+    Parameters
+    ----------
+    certificate : bool
+        Also compute the certificate items and the list of those still empty. Default False.
+    draft : bool
+        Watermark every page DRAFT. Default True; only the signing step turns it off.
+    figures : bool
+        Draw the figures (the slow part). Default True; False gives the same text without them.
+    """
+    run = b.run
+    # every known key present (the templates are strict about undefined names)
+    rep = dict.fromkeys(FIELD_LABELS, "")
+    rep.update({str(k): _s(v) for k, v in (run.get("report") or {}).items()})
+    measurands = [_measurand_block(b, m, draw=figures) for m in b.measurands]
+    measurand_text = rep.get("measurand", "").strip() or ", ".join(
+        f"{m.name}{' (' + m.unit + ')' if m.unit not in ('', '1') else ''}" for m in b.measurands)
+    item = ", ".join(x for x in (rep.get("item", "").strip(),
+                                 rep.get("manufacturer", "").strip(),
+                                 ("serial " + rep["item_serial"].strip())
+                                 if rep.get("item_serial", "").strip() else "") if x)
+    approver = rep.get("approver", "").strip()
+    if approver and rep.get("approver_role", "").strip():
+        approver += f" ({rep['approver_role'].strip()})"
+    header = [("Laboratory", rep.get("laboratory", "").strip()),
+              ("Report number", rep.get("report_number", "").strip()),
+              ("Date(s) of measurement", rep.get("measurement_date", "").strip()),
+              ("Date of issue", rep.get("issue_date", "").strip()),
+              ("Measurand", measurand_text), ("Item", item),
+              ("Customer", rep.get("customer", "").strip()),
+              ("Measured by", rep.get("operator", "").strip()), ("Approved by", approver)]
+    corr = []
+    names = list(b.correlation_names)
+    if len(names) > 1:
+        for i, row in enumerate(b.correlation_matrix):
+            for j in range(i + 1, len(row)):
+                corr.append((names[i], names[j], f"{row[j]:.3f}".replace("-", "−")))
+    files = [{"path": _s(f.get("path")), "sha256": _s(f.get("sha256"))}
+             for f in run.get("files") or [] if isinstance(f, dict)]
+    settings = [
+        ("spec file", _s(run.get("spec_file"))), ("spec SHA-256", _s(run.get("spec_sha256"))),
+        ("software", _s(run.get("software"))), ("random seed", _s(run.get("seed"))),
+        ("Monte Carlo trials (setting)", _s(run.get("trials_setting"))),
+        ("coverage probability", f"{100 * float(run.get('coverage_probability', 0.95)):g} %"),
+        ("propagation order", _s(run.get("propagation_order", 1))),
+        ("rounding of ν_eff", _s(run.get("dof_rounding", "floor"))),
+        ("record schema", b.schema),
+    ]
+    ctx: dict[str, Any] = {
+        "title": b.title, "description": _s(run.get("description")), "rep": rep,
+        "header": header, "measurands": measurands,
+        "inputs": [_input_block(b, q) for q in b.inputs],
+        "input_correlations": [(str(a), str(c), f"{float(r):.3f}".replace("-", "−"))
+                               for a, c, r in run.get("input_correlations") or []],
+        "measurand_correlations": corr, "modules": _module_blocks(b, draw=figures),
+        "cautions": _cautions(b), "files": files, "settings": settings,
+        "model": [(str(k), str(v)) for k, v in (run.get("model") or {}).items()],
+        "constants": [(str(k), sci(fmt_num(float(v), 10)))
+                      for k, v in (run.get("constants") or {}).items()],
+        "software": _s(run.get("software")), "spec_sha256": _s(run.get("spec_sha256")),
+        "certificate": certificate, "draft": draft,
+        "doc_kind": "Calibration certificate" if certificate else "Uncertainty report",
+        "doc_number": (rep.get("certificate_number", "").strip() if certificate
+                       else rep.get("report_number", "").strip()),
+        "mc_ran": bool(b.monte_carlo),
+        "mc_all_validated": bool(b.monte_carlo) and all(x.validated for x in b.monte_carlo),
+    }
+    if certificate:
+        ctx["cert_missing"] = [(FIELD_LABELS[k], clause) for k, clause in CERTIFICATE_ITEMS
+                               if not rep.get(k, "").strip()]
+        ctx["cert_item"] = _header(rep, ("item", "manufacturer", "item_serial",
+                                         "item_condition"))
+        ctx["cert_dates"] = _header(rep, ("receipt_date", "measurement_date", "issue_date"))
+    return ctx
