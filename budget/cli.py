@@ -817,6 +817,7 @@ def _cmd_sign(args) -> int:
                          field=missing.split(" ")[0])
     # check the evidence before asking for the passphrase; errors name the file it came from
     parse_record(record, file=args.record or f"{args.report} (embedded record)")
+    pdf, note = _final_certificate(pdf, record, args)
     manifest = input_manifest(record, spec, spec_name=args.spec)
     pw = _passphrase(f"Passphrase for {args.identity}: ")
     try:
@@ -827,8 +828,36 @@ def _cmd_sign(args) -> int:
     finally:
         del pw
     write_atomic(args.output, signed)
-    print(f"signed {args.report} -> {args.output}")
+    print(f"signed {args.report} -> {args.output}{note}")
     return EXIT_OK
+
+
+def _final_certificate(pdf: bytes, record: bytes, args) -> tuple[bytes, str]:
+    """A certificate *draft* is signed as the final certificate rendered from the same record.
+
+    The draft carries the SHA-256 of the record it shows; the record given to ``sign`` must have
+    that digest, so the approver signs exactly the numbers they reviewed, and the DRAFT
+    watermark disappears only in the signed file.
+    """
+    import hashlib
+
+    from .errors import DataError
+    from .report import document_info, read_document_info, render_html, render_pdf_layout
+    from .report.render import DOCUMENT_INFO_KEY, RECORD_INFO_KEY
+    from .result import Budget
+    info = read_document_info(pdf)
+    if info.get(DOCUMENT_INFO_KEY) != "certificate-draft":
+        return pdf, ""
+    b = Budget.from_dict(json.loads(record))
+    digest = hashlib.sha256(b.to_json().encode("utf-8")).hexdigest()
+    if digest != info.get(RECORD_INFO_KEY):
+        raise DataError("this record is not the one the certificate draft was rendered from "
+                        "(its SHA-256 differs from the draft's)",
+                        file=args.record or f"{args.report} (embedded record)", field="record")
+    rendered = render_pdf_layout(render_html(b, certificate=True, draft=False),
+                                 info=document_info(b, certificate=True, draft=False))
+    return rendered.pdf, (" (the final certificate, rendered from the reviewed draft's record "
+                          "without the DRAFT watermark)")
 
 
 def _add_verify(sub) -> None:
@@ -949,7 +978,7 @@ def _check_report_args(args) -> list[str]:
 
 def _cmd_report(args) -> int:
     from .outputs import check_writable, write_atomic
-    from .report import looks_signed, render_html, render_pdf_layout
+    from .report import document_info, looks_signed, render_html, render_pdf_layout
     from .report.context import result_line
     outs = _check_report_args(args)
     for o in outs:
@@ -967,7 +996,8 @@ def _cmd_report(args) -> int:
     else:
         b = _evaluate_spec(args)
     html = render_html(b, certificate=args.certificate)
-    rendered = render_pdf_layout(html) if args.output else None
+    rendered = (render_pdf_layout(html, info=document_info(b, certificate=args.certificate))
+                if args.output else None)
     if args.html:
         write_atomic(args.html, html)
     kind = "certificate draft" if args.certificate else "report"

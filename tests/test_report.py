@@ -478,7 +478,7 @@ def test_signed_pdf_needs_force(tmp_path, spec_path, capsys, monkeypatch):
     # with --force it is replaced (the PDF step is stubbed: rendering is tested above)
     import budget.report as rep
     monkeypatch.setattr(rep, "render_pdf_layout",
-                        lambda html: rep.RenderedPdf(pdf=b"%PDF-new", pages=1, signature=None))
+                        lambda html, **kw: rep.RenderedPdf(pdf=b"%PDF-new", pages=1, signature=None))
     assert main(["report", str(spec_path), "-o", str(out), "--force", "--no-monte-carlo"]) == 0
     assert out.read_bytes() == b"%PDF-new"
     html = tmp_path / "r.html"

@@ -19,7 +19,9 @@ from .render import (
     DataOnlyFetcher,
     RenderedPdf,
     SignatureBox,
+    document_info,
     looks_signed,
+    read_document_info,
     read_signature_box,
     render_html,
     render_pdf,
@@ -28,4 +30,4 @@ from .render import (
 
 __all__ = ["render_html", "render_pdf", "render_pdf_layout", "RenderedPdf", "SignatureBox",
            "DataOnlyFetcher", "read_signature_box", "looks_signed", "load_record",
-           "record_from_text", "SIGNATURE_FIELD_ID", "SIGNATURE_FIELD_MM", "SIGNATURE_INFO_KEY"]
+           "record_from_text", "document_info", "read_document_info", "SIGNATURE_FIELD_ID", "SIGNATURE_FIELD_MM", "SIGNATURE_INFO_KEY"]

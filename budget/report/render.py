@@ -198,7 +198,39 @@ def _find_box(page, element_id: str):
     return None
 
 
-def render_pdf_layout(html: str, *, fetcher=None) -> RenderedPdf:
+DOCUMENT_INFO_KEY = "QcsDocument"             # "report", "certificate-draft" or "certificate"
+RECORD_INFO_KEY = "QcsRecordSha256"           # SHA-256 of the result record the PDF shows
+
+
+def document_info(budget: Budget, *, certificate: bool, draft: bool = True) -> dict[str, str]:
+    """Document-information entries that tie a PDF to the record it was rendered from.
+
+    ``budget sign`` uses them: a certificate draft is signed by rendering the final certificate
+    (no DRAFT watermark) from the same record, after checking that the record's digest is the
+    one the reviewed draft carries.
+    """
+    import hashlib
+    kind = "report" if not certificate else ("certificate-draft" if draft else "certificate")
+    return {DOCUMENT_INFO_KEY: kind,
+            RECORD_INFO_KEY: hashlib.sha256(budget.to_json().encode("utf-8")).hexdigest()}
+
+
+def read_document_info(pdf: bytes) -> dict[str, str]:
+    """The entries of :func:`document_info` found in a PDF (empty when absent)."""
+    import io
+
+    from pyhanko.pdf_utils.reader import PdfFileReader
+    reader = PdfFileReader(io.BytesIO(pdf), strict=False)
+    info = reader.trailer_view.get("/Info")
+    if info is None:
+        return {}
+    info = info.get_object()
+    return {k: str(info["/" + k]) for k in (DOCUMENT_INFO_KEY, RECORD_INFO_KEY)
+            if "/" + k in info}
+
+
+def render_pdf_layout(html: str, *, fetcher=None, info: dict[str, str] | None = None
+                      ) -> RenderedPdf:
     """Lay out ``html`` on A4 pages and write the PDF; locate the signature field.
 
     Parameters
@@ -207,6 +239,8 @@ def render_pdf_layout(html: str, *, fetcher=None) -> RenderedPdf:
         From :func:`render_html`.
     fetcher : optional
         A URL fetcher; default a fresh :func:`DataOnlyFetcher`.
+    info : dict, optional
+        Extra document-information entries (see :func:`document_info`).
     """
     import weasyprint
     fetcher = fetcher if fetcher is not None else DataOnlyFetcher()
@@ -231,6 +265,7 @@ def render_pdf_layout(html: str, *, fetcher=None) -> RenderedPdf:
             raise ComputationError(f"the signature field landed on page {sig.page} of {n}, "
                                    "not on the last page", field="signature-block")
         doc.metadata.custom[SIGNATURE_INFO_KEY] = sig.to_info()
+    doc.metadata.custom.update(info or {})
     pdf = doc.write_pdf(custom_metadata=True)
     return RenderedPdf(pdf=pdf, pages=n, signature=sig,
                        refused=tuple(getattr(fetcher, "refused", ())))

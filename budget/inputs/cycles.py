@@ -1,0 +1,381 @@
+"""Input module ``cycles``: the Type A term of a pump-on/pump-off record.
+
+The quantity is the mean on − off difference of the reading (in the reading's unit), a Type A
+evaluation with its degrees of freedom. Statistics: :mod:`budget.stats.onoff` (segments, cycle
+differences, white-noise model), :mod:`budget.stats.typea` (verdict, widening, planning),
+:mod:`budget.stats.allan`, :mod:`budget.stats.autocorr`.
+
+Data file
+---------
+CSV with a header row and exactly the columns ``time_s`` (s, strictly increasing), ``reading``
+(any unit, see ``unit``) and ``pump`` (``on``/``off`` in any case, or ``1``/``0``). Blank lines
+and lines starting with ``#`` are skipped.
+
+Options (``[inputs.NAME]``)
+---------------------------
+file : str
+    The record (relative to the spec's folder). Or ``files``.
+files : list of str
+    Several records, pooled: each is cut into cycles on its own (no cycle spans two files) and
+    the differences of all files are analysed together.
+unit : str
+    Unit of ``reading`` and of the result. Default ``"V"``.
+settle_s : float
+    Readings closer than this to the first reading of their segment (the switch) are discarded,
+    s. Default: 20 % of the median segment length (switch to switch) of each file. The right
+    value comes from the measuring chain's settling time, which the module cannot know; a fixed
+    number of seconds could swallow a short segment, while a fraction scales with the cycling
+    the user chose and still keeps 80 % of the data. The value used is in the diagnostics.
+tail_s : float
+    Readings closer than this to the last reading of their segment are discarded, s. Default 0.
+start_s, stop_s : float
+    Use only readings with start_s ≤ time_s ≤ stop_s (each file's own time axis). Default: all.
+estimator : str
+    ``"linear"`` (default): each on segment against its two neighbouring off segments,
+    interpolated to its mean time (the mean of the two for a regular record), cancelling a
+    linear offset drift. ``"cubic"``: against the four nearest off segments (cancels a drift up
+    to a cubic; more noise, one cycle fewer at each end).
+rejection : str
+    ``"none"`` (default) or ``"mad"``: reject cycle differences farther than
+    ``rejection_limit`` robust standard deviations (1.4826 · median absolute deviation) from
+    the median, once. Rejected cycles are listed in the diagnostics and the provenance.
+rejection_limit : float
+    Default 5.
+whiteness_level : float
+    Significance level of the white-noise test (0 < level < 1). Default 0.05.
+target_relative_uncertainty : float
+    When given, the diagnostics state the cycling time needed for u/|mean difference| to reach
+    it (same segment length, settle and noise).
+description : str
+    Text for the report. Default: a description of the quantity.
+
+Uncertainty
+-----------
+Neighbouring differences share an off segment, so they are correlated (ρ₁ = 1/6 for white
+noise and a regular record); the white-noise standard error is the exact one for the
+differences actually used (``budget.stats.onoff``), about 15 % larger than the naive s/√n.
+Whether the record is white is tested on the Allan deviation of the differences; when it is
+not, the uncertainty is widened (effective number of cycles from the autocorrelation, or the
+Allan floor), and the diagnostics say which.
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass
+from pathlib import Path
+from typing import Any
+
+import numpy as np
+
+from ..distributions import Distribution
+from ..errors import ComputationError, DataError
+from ..quantity import ModuleResult, Provenance, Quantity
+from ..stats import onoff, typea
+from ..stats.allan import edf_white_fm
+from .context import InputContext
+from .onoff_table import OnOffTable, mask_ranges, read_onoff
+
+__all__ = ["KEYS", "evaluate"]
+
+KEYS = frozenset({"file", "files", "unit", "settle_s", "tail_s", "start_s", "stop_s",
+                  "estimator", "rejection", "rejection_limit", "whiteness_level",
+                  "target_relative_uncertainty"})
+
+DEFAULT_SETTLE_FRACTION = 0.2
+MAX_POINTS = 400
+
+_METHOD_TEXT = {
+    "white": "white-noise standard error of the mean of the cycle differences, exact for their "
+             "correlation (neighbours share an off segment)",
+    "autocorrelation": "standard error widened by the effective number of independent cycles "
+                       "from the autocorrelation of the differences (Zhang 2006; Witt 2007)",
+    "allan-floor": "Allan floor: white part plus the flat (flicker) floor of the Allan variance "
+                   "of the differences, extrapolated to the whole record",
+}
+
+
+@dataclass(frozen=True)
+class _Record:
+    """One file, windowed (from reading index ``first_row``), segmented and cut into cycles."""
+
+    table: OnOffTable
+    first_row: int
+    seg: onoff.Segments
+    settle: float
+    settle_default: bool
+    diff: onoff.Differences
+
+
+def _options(ctx: InputContext) -> dict[str, Any]:
+    o: dict[str, Any] = {
+        "unit": ctx.option("unit", str, "V", check=lambda s: s.strip() != "", must="non-empty"),
+        "settle_s": ctx.number("settle_s", None, nonnegative=True),
+        "tail_s": ctx.number("tail_s", 0.0, nonnegative=True),
+        "start_s": ctx.number("start_s", -math.inf),
+        "stop_s": ctx.number("stop_s", math.inf),
+        "estimator": ctx.choice("estimator", tuple(onoff.ESTIMATORS), "linear"),
+        "rejection": ctx.choice("rejection", ("none", "mad"), "none"),
+        "rejection_limit": ctx.number("rejection_limit", 5.0, positive=True),
+        "whiteness_level": ctx.option("whiteness_level", float, 0.05,
+                                      check=lambda x: 0 < x < 1, must="between 0 and 1"),
+        "target": ctx.number("target_relative_uncertainty", None, positive=True),
+        "description": ctx.option("description", str, ""),
+    }
+    if "start_s" in ctx.table and "stop_s" in ctx.table and not o["start_s"] < o["stop_s"]:
+        raise ctx.spec_error("stop_s", f"must be larger than start_s ({o['start_s']:g}); got "
+                                       f"{o['stop_s']:g}")
+    return o
+
+
+def _load(ctx: InputContext, path: Path, index: int, o: dict[str, Any]) -> _Record:
+    shown = ctx.display(path)
+    table = read_onoff(path, shown)
+    lo = int(np.searchsorted(table.time, o["start_s"], side="left"))
+    hi = int(np.searchsorted(table.time, o["stop_s"], side="right"))
+    if hi - lo < 2:
+        raise DataError("fewer than 2 readings between start_s and stop_s", file=shown,
+                        field="time_s")
+    t, y, on = table.time[lo:hi], table.reading[lo:hi], table.on[lo:hi]
+    settle, settle_default = o["settle_s"], o["settle_s"] is None
+    if settle_default:
+        starts = t[np.concatenate(([0], np.flatnonzero(on[1:] != on[:-1]) + 1))]
+        lengths = np.diff(starts)[1:]        # complete segments only (the first may be partial)
+        settle = DEFAULT_SETTLE_FRACTION * float(np.median(lengths)) if len(lengths) else 0.0
+    seg = onoff.segment(t, y, on, settle, o["tail_s"])
+    usable = onoff.usable_on_segments(seg, o["estimator"])
+    if len(usable) == 0:
+        need = ("an off-on-off sequence" if o["estimator"] == "linear"
+                else "an on segment with two off segments on each side")
+        emptied = int(np.sum(seg.kept == 0))
+        why = (f"; settle_s = {settle:g} s and tail_s = {o['tail_s']:g} s leave {emptied} of "
+               "them without readings" if emptied else "")
+        raise DataError(f"no complete cycle: the record has {seg.count} segment(s) and the "
+                        f"'{o['estimator']}' estimator needs {need}{why}", file=shown,
+                        field="pump")
+    diff = onoff.differences(seg, o["estimator"], record=index)
+    empty = diff.involved[seg.kept[diff.involved] == 0]
+    if len(empty):
+        j = int(empty[0])
+        n_read = int(seg.stop[j] - seg.start[j])
+        raise DataError(f"segment of {n_read} reading(s) ({'on' if seg.on[j] else 'off'}) keeps "
+                        f"no reading after settle_s = {settle:g} s and tail_s = {o['tail_s']:g} s;"
+                        f" lower them or check the pump column", file=shown,
+                        row=lo + int(seg.start[j]) + 1, field="pump")
+    return _Record(table, lo, seg, settle, settle_default, diff)
+
+
+def _reject(diff: onoff.Differences, o: dict[str, Any]) -> np.ndarray:
+    keep = np.ones(diff.n, dtype=bool)
+    if o["rejection"] == "mad":
+        med = float(np.median(diff.d))
+        mad = 1.4826 * float(np.median(np.abs(diff.d - med)))
+        if mad > 0:
+            keep = np.abs(diff.d - med) <= o["rejection_limit"] * mad
+    return keep
+
+
+def evaluate(ctx: InputContext) -> ModuleResult:
+    """Evaluate the ``cycles`` input (see the module docstring for options and method)."""
+    o = _options(ctx)
+    paths = ctx.files()
+    records = [_load(ctx, p, i, o) for i, p in enumerate(paths)]
+    pooled = onoff.stack([r.diff for r in records])
+    keep = _reject(pooled, o)
+    used = pooled.subset(keep)
+    shown_all = ", ".join(r.table.shown for r in records)
+    if used.n < 2:
+        raise DataError(f"only {used.n} cycle difference(s) left; at least 2 are needed",
+                        file=shown_all, field="pump")
+    try:
+        model = onoff.white_model(used)
+        res = typea.analyse(used.d, model, o["whiteness_level"])
+    except ComputationError as exc:
+        raise DataError(exc.message, file=shown_all, field="reading") from None
+
+    files, rec_diag, cycle_periods, used_s, kept_s = [], [], [], 0.0, 0.0
+    col0 = 0
+    for i, r in enumerate(records):
+        seg = r.seg
+        mine = used.w_col[(used.w_col >= col0) & (used.w_col < col0 + seg.count)] - col0
+        col0 += seg.count
+        inv = np.zeros(seg.count, dtype=bool)
+        inv[mine] = True
+        rows_mask = np.zeros(r.table.rows, dtype=bool)
+        rows_mask[r.first_row:r.first_row + len(seg.keep)] = seg.keep & inv[seg.seg_of]
+        files.append(ctx.file_ref(r.table.path, mask_ranges(rows_mask)))
+        on_first = seg.t_first[seg.on]
+        if len(on_first) > 1:
+            cycle_periods.append(np.diff(on_first))
+        idx = np.flatnonzero(inv)
+        if len(idx):
+            t_end = seg.t_first[idx[-1] + 1] if idx[-1] + 1 < seg.count else \
+                r.table.time[r.first_row + seg.stop[idx[-1]] - 1]
+            used_s += float(t_end - seg.t_first[idx[0]])
+            kept_s += float(np.sum(seg.kept[idx]) * seg.dt)
+        rec_diag.append({"file": files[-1].path, "readings": r.table.rows,
+                         "segments": seg.count, "cycles": int(np.sum(used.record == i)),
+                         "cycles_rejected": int(np.sum((pooled.record == i) & ~keep)),
+                         "sampling_interval_s": seg.dt, "settle_s": r.settle,
+                         "settle_default": r.settle_default})
+    cycle_s = float(np.median(np.concatenate(cycle_periods))) if cycle_periods else math.nan
+    unit = o["unit"]
+    rejected = _rejected_list(records, [f.path for f in files], pooled, keep)
+    diagnostics = _diagnostics(res, model, o, rec_diag, rejected, cycle_s, used_s, kept_s, unit)
+    if o["target"] is not None:
+        diagnostics["planning"] = typea.planning(res, model, o["target"], cycle_s, used_s)
+    diagnostics["figures"] = [_figure_differences(records, [f.path for f in files], pooled, keep, res,
+                                                  unit),
+                              _figure_allan(res, cycle_s, unit)]
+    return ModuleResult(quantities=(_quantity(ctx, res, o, records, files, rejected),),
+                        diagnostics=diagnostics)
+
+
+def _rejected_list(records: list[_Record], names: list[str], pooled: onoff.Differences,
+                   keep: np.ndarray) -> list[dict[str, Any]]:
+    out = []
+    for k in np.flatnonzero(~keep).tolist():
+        r = records[int(pooled.record[k])]
+        j = int(pooled.on_seg[k])
+        out.append({"file": names[int(pooled.record[k])], "rows": f"{r.first_row + r.seg.start[j] + 1}-"
+                    f"{r.first_row + r.seg.stop[j]}", "time_s": float(pooled.t[k]),
+                    "difference": float(pooled.d[k])})
+    return out
+
+
+def _num(x: Any) -> Any:
+    return None if x is None or not math.isfinite(float(x)) else float(x)
+
+
+def _diagnostics(res: typea.TypeA, model: onoff.WhiteModel, o: dict[str, Any],
+                 rec_diag: list, rejected: list, cycle_s: float, used_s: float, kept_s: float,
+                 unit: str) -> dict[str, Any]:
+    return {
+        "records": rec_diag,
+        "estimator": o["estimator"],
+        "cycles_used": res.n,
+        "cycles_rejected": len(rejected),
+        "rejection": {"rule": o["rejection"], "limit": o["rejection_limit"]
+                      if o["rejection"] != "none" else None, "rejected": rejected},
+        "mean_difference": res.mean,
+        "unit": unit,
+        "standard_deviation": res.s,
+        "u_naive": res.u_naive,
+        "u_white": res.u_white,
+        "white_over_naive": res.u_white / res.u_naive,
+        "u": res.u,
+        "dof": res.dof,
+        "uncertainty_method": res.method,
+        "uncertainty_method_text": _METHOD_TEXT[res.method],
+        "noise_density": res.noise_density,
+        "noise_density_unit": f"{unit}/√Hz",
+        "lag1_autocorrelation": _num(res.r1),
+        "lag1_autocorrelation_white_model": res.r1_model,
+        "effective_number": res.acorr.to_dict() if res.acorr else None,
+        "u_autocorrelation": _num(res.u_acorr),
+        "white_noise": res.verdict.to_dict(),
+        "allan": {"kind": "overlapping", "m": [int(v) for v in res.curve.m],
+                  "tau_s": [_num(v * cycle_s) for v in res.curve.m],
+                  "adev": [float(v) for v in res.curve.deviation],
+                  "adev_white_expected": [float(math.sqrt(v)) for v in res.avar_white],
+                  "edf_white": [float(v) for v in edf_white_fm(res.n, res.curve.m)],
+                  "fit": res.fit.to_dict() if res.fit else None},
+        "cycle_period_s": _num(cycle_s),
+        "time_used_s": used_s,
+        "kept_fraction": kept_s / used_s if used_s > 0 else None,
+    }
+
+
+def _quantity(ctx: InputContext, res: typea.TypeA, o: dict[str, Any], records: list[_Record],
+              files: list, rejected: list) -> Quantity:
+    est = onoff.ESTIMATORS[o["estimator"]][1]
+    method = (f"mean of {res.n} cycle differences ({est}); u by the {_METHOD_TEXT[res.method]}. "
+              f"White-noise test: {res.verdict.text}.")
+    if res.method == "white":
+        dof_reason = (f"ν = {res.dof:.4g}: Satterthwaite's degrees of freedom of the sample "
+                      f"variance of {res.n} correlated differences under white noise")
+    elif res.method == "autocorrelation":
+        dof_reason = f"ν = n_eff − 1 = {res.dof:.4g} (effective number of independent cycles)"
+    else:
+        dof_reason = (f"ν = {res.dof:.4g}: Welch–Satterthwaite from the white part and the "
+                      "flicker-noise edf of the Allan variance at the longest averaging used")
+    notes = []
+    for r, f in zip(records, files):
+        if r.settle_default:
+            notes.append(f"{f.path}: settle_s not given; {r.settle:.4g} s used (20 % of "
+                         "the median segment length)")
+    if o["rejection"] != "none":
+        notes.append(f"rejection rule '{o['rejection']}' at {o['rejection_limit']:g} robust "
+                     f"standard deviations: {len(rejected)} cycle(s) rejected"
+                     + (": " + "; ".join(f"{x['file']} rows {x['rows']}" for x in rejected[:20])
+                        if rejected else "") + (" ..." if len(rejected) > 20 else ""))
+    if not res.verdict.testable:
+        notes.append(res.verdict.text)
+    if len(records) > 1:
+        notes.append(f"{len(records)} records pooled; no cycle spans two files")
+    prov = Provenance(
+        origin="module:cycles", method=method,
+        distribution_reason=("scaled and shifted Student t (JCGM 101 §6.4.9): a mean of many "
+                             "cycle differences with a scale estimated from their scatter"),
+        dof_reason=dof_reason, files=tuple(files), notes=tuple(notes))
+    return Quantity(name=ctx.name, value=res.mean, standard_uncertainty=res.u,
+                    distribution=Distribution.student_t(res.mean, res.u, res.dof),
+                    unit=o["unit"], dof=res.dof, evaluation="A",
+                    description=o["description"] or "mean pump-on minus pump-off difference of "
+                                                    "the reading, from the on/off record",
+                    provenance=prov)
+
+
+def _binned(x: np.ndarray, y: np.ndarray, max_points: int) -> tuple[list, list, list | None]:
+    """At most ``max_points`` points: means of consecutive groups, with their standard error."""
+    if len(x) <= max_points:
+        return x.tolist(), y.tolist(), None
+    g = math.ceil(len(x) / max_points)
+    k = len(x) // g * g
+    xs, ys = x[:k].reshape(-1, g).mean(axis=1), y[:k].reshape(-1, g)
+    return xs.tolist(), ys.mean(axis=1).tolist(), (ys.std(axis=1, ddof=1) / math.sqrt(g)).tolist()
+
+
+def _figure_differences(records: list[_Record], names: list[str], pooled: onoff.Differences,
+                        keep: np.ndarray, res: typea.TypeA, unit: str) -> dict[str, Any]:
+    series = []
+    per = max(1, MAX_POINTS // len(records))
+    for i in range(len(records)):
+        sel = (pooled.record == i) & keep
+        x, y, err = _binned(pooled.t[sel] / 3600.0, pooled.d[sel], per)
+        label = names[i] if err is None else \
+            f"{names[i]} (means of {math.ceil(int(sel.sum()) / per)} cycles)"
+        s = {"label": label, "style": "points", "x": x, "y": y}
+        if err is not None:
+            s["yerr"] = err
+        series.append(s)
+    if (~keep).any():
+        series.append({"label": "rejected", "style": "points",
+                       "x": (pooled.t[~keep] / 3600.0)[:MAX_POINTS].tolist(),
+                       "y": pooled.d[~keep][:MAX_POINTS].tolist()})
+    span = [float(pooled.t.min() / 3600.0), float(pooled.t.max() / 3600.0)]
+    series.append({"label": "mean ± u", "style": "band", "x": span, "y": [res.mean] * 2,
+                   "y_low": [res.mean - res.u] * 2, "y_high": [res.mean + res.u] * 2})
+    return {"id": "cycles-differences", "title": "On − off difference of each cycle",
+            "xlabel": "time in record (h)", "ylabel": f"difference ({unit})",
+            "xscale": "linear", "yscale": "linear", "series": series}
+
+
+def _figure_allan(res: typea.TypeA, cycle_s: float, unit: str) -> dict[str, Any]:
+    tau = (res.curve.m * (cycle_s if math.isfinite(cycle_s) else 1.0)).astype(float)
+    edf = edf_white_fm(res.n, res.curve.m)
+    series = [{"label": "overlapping Allan deviation", "style": "points", "x": tau.tolist(),
+               "y": res.curve.deviation.tolist(),
+               "yerr": (res.curve.deviation / np.sqrt(2.0 * edf)).tolist()},
+              {"label": "white noise (expected)", "style": "line", "x": tau.tolist(),
+               "y": np.sqrt(res.avar_white).tolist()}]
+    if res.fit is not None and res.method == "allan-floor":
+        # avar_white = S²·A(m), so the fitted curve a·A(m) + b follows from it
+        fit = res.fit.a * res.avar_white / res.noise_density ** 2 + res.fit.b
+        series.append({"label": "white + floor fit", "style": "line", "x": tau.tolist(),
+                       "y": np.sqrt(fit).tolist()})
+    return {"id": "cycles-allan", "title": "Allan deviation of the cycle differences",
+            "xlabel": "averaging time τ (s)" if math.isfinite(cycle_s) else "cycles averaged",
+            "ylabel": f"Allan deviation ({unit})", "xscale": "log", "yscale": "log",
+            "series": series}
+
