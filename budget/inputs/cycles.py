@@ -56,7 +56,10 @@ noise and a regular record); the white-noise standard error is the exact one for
 differences actually used (``budget.stats.onoff``), about 15 % larger than the naive s/√n.
 Whether the record is white is tested on the Allan deviation of the differences; when it is
 not, the uncertainty is widened (effective number of cycles from the autocorrelation, or the
-Allan floor), and the diagnostics say which.
+Allan floor), and the diagnostics say which. Limits (see :mod:`budget.stats.typea`): a weak
+1/f part that matters only at the full record length is often passed as white, and for 1/f
+noise the Allan floor is a convention — with noise extending far below 1/T it covers somewhat
+less than the nominal probability (about 92 % instead of 95 % in the tests' flicker case).
 """
 
 from __future__ import annotations
