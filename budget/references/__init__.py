@@ -169,6 +169,27 @@ def _gum_h3() -> list[Check]:
                   c.published, c.computed, c.tolerance) for c in h3_case()]
 
 
+def _sp1065() -> list[Check]:
+    """NIST SP 1065 1000-point test set through the Allan code the cycles module uses."""
+    from ..stats.allan import adev, mdev, oadev
+    src = "NIST SP 1065 (Handbook of Frequency Stability Analysis), 1000-point test data"
+    x, data = 1234567890, []
+    for _ in range(1000):             # x_0 is the seed itself; x_{n+1} = 16807 x_n mod (2³¹ − 1)
+        data.append(x / 2147483647)
+        x = 16807 * x % 2147483647
+    published = {"ADEV": (adev, (2.922319e-1, 9.965736e-2, 3.897804e-2)),
+                 "OADEV": (oadev, (2.922319e-1, 9.159953e-2, 3.241343e-2)),
+                 "MDEV": (mdev, (2.922319e-1, 6.172376e-2, 2.170921e-2))}
+    out = []
+    for kind, (fn, values) in published.items():
+        curve = fn(data, [1, 10, 100])
+        for m, pub, got in zip((1, 10, 100), values, curve.deviation):
+            # seven significant digits published: half a unit of the last one
+            out.append(Check("NIST SP 1065", src, f"{kind}, m = {m}", pub, float(got),
+                             0.5 * 10 ** (math.floor(math.log10(pub)) - 6)))
+    return out
+
+
 #: case name -> function returning its checks, in the order ``validate`` prints them
 CASES: dict[str, Callable[[], list[Check]]] = {
     "GUM H.2": _gum_h2,
@@ -177,6 +198,7 @@ CASES: dict[str, Callable[[], list[Check]]] = {
     "JCGM 101 §9.2": _jcgm101_additive,
     "GUM Table G.2": _table_g2,
     "SI 2019": _si,
+    "NIST SP 1065": _sp1065,
 }
 
 
