@@ -202,7 +202,8 @@ def _write_archive_option(args, b) -> None:
 def _add_validate(sub) -> None:
     p = sub.add_parser("validate", help="reproduce the published reference examples",
                        description="Run the built-in reference cases (GUM H.2 and H.3, "
-                                   "EA-4/02 S3, JCGM 101 §9.2, GUM Table G.2, SI constants) "
+                                   "EA-4/02 S3, JCGM 101 §9.2, GUM Table G.2, SI constants, "
+                                   "NIST SP 1065 Allan deviations) "
                                    "and compare each computed number with the published one. "
                                    "Exit 0 only if every check passes.")
     p.add_argument("--json", metavar="OUT", help="write the checks as JSON to OUT")
@@ -781,6 +782,9 @@ def _add_sign(sub) -> None:
                                    "visible block naming the signer, role and date. The record "
                                    "and spec come from --record and --spec, or from the PDF "
                                    "itself when it carries them already (e.g. a co-signature). "
+                                   "A certificate draft is signed as the final certificate: it "
+                                   "is rendered again from the same record (whose digest the "
+                                   "draft carries) without the DRAFT watermark. "
                                    "The passphrase comes from $BUDGET_PASSPHRASE or a prompt.")
     p.add_argument("report", help="the report PDF")
     p.add_argument("--identity", required=True, metavar="FILE.p12",
