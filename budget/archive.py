@@ -36,6 +36,7 @@ from typing import Any
 
 from . import __version__
 from .errors import BudgetError, DataError, UsageError
+from .record import record_data
 
 __all__ = ["MANIFEST_SCHEMA", "ARCHIVE_SCHEMA", "input_manifest", "archive",
            "check_archive_target", "is_archive", "read_archive", "restore", "recompute",
@@ -43,7 +44,6 @@ __all__ = ["MANIFEST_SCHEMA", "ARCHIVE_SCHEMA", "input_manifest", "archive",
 
 MANIFEST_SCHEMA = "qcs-budget/inputs-1"
 ARCHIVE_SCHEMA = "qcs-budget/archive-1"
-_RECORD_PREFIX = "qcs-budget/record-"
 _BLOCK = 1 << 20  # bytes read at a time when hashing or copying
 
 
@@ -61,19 +61,6 @@ def _hash_file(path: Path) -> str | None:
     except OSError:
         return None
     return h.hexdigest()
-
-
-def parse_record(record_json: str | bytes, *, file: str = "record") -> dict[str, Any]:
-    """Parse a result record and check that it is one (schema ``qcs-budget/record-N``)."""
-    try:
-        rec = json.loads(record_json)
-    except (ValueError, UnicodeDecodeError) as exc:
-        raise DataError(f"not a JSON result record ({exc})", file=file) from None
-    if not (isinstance(rec, dict) and str(rec.get("schema", "")).startswith(_RECORD_PREFIX)
-            and isinstance(rec.get("run"), dict)):
-        raise DataError("not a result record of this program (no 'schema' "
-                        f"'{_RECORD_PREFIX}N' and 'run')", file=file, field="schema")
-    return rec
 
 
 # --------------------------------------------------------------------------- manifest
@@ -96,7 +83,7 @@ def input_manifest(record_json: str | bytes, spec_bytes: bytes, *,
         When the spec's digest differs from the record's ``run.spec_sha256``: the record was not
         computed from this spec.
     """
-    rec = parse_record(record_json)
+    rec = record_data(record_json, file="record")
     run = rec["run"]
     digest = _sha256(spec_bytes)
     if run.get("spec_sha256") not in (None, digest):
@@ -498,7 +485,7 @@ def recompute(spec_bytes: bytes, record_json: str, manifest: dict[str, Any],
         elif status == "changed":
             problems.append(f"input file {rel} has changed (sha256 {got}, signed "
                             f"{f.get('sha256')})")
-    rec = parse_record(record_json)
+    rec = record_data(record_json, file="record")
     run = rec["run"]
     spec_name = (manifest.get("spec") or {}).get("file") or \
         (manifest.get("spec") or {}).get("path") or run.get("spec_file") or "spec.toml"

@@ -55,6 +55,20 @@ class _Progress:
             sys.stderr.write("\n")
 
 
+# --------------------------------------------------------------------------- command groups
+def _add_group(sub, name: str, *, help: str, description: str):
+    """Register a command whose work is done by ACTION subcommands (``budget pump fit``);
+    without an ACTION it prints its help and exits 2. Returns the ACTION subparsers."""
+    p = sub.add_parser(name, help=help, description=description)
+    p.set_defaults(func=_cmd_group_help, group_parser=p)
+    return p.add_subparsers(dest=f"{name}_command", metavar="ACTION", parser_class=_Parser)
+
+
+def _cmd_group_help(args) -> int:
+    args.group_parser.print_help()
+    return EXIT_BAD_INPUT
+
+
 # --------------------------------------------------------------------------- tables
 def _table(headers: list[str], rows: list[list[str]], right: set[int] | None = None) -> str:
     right = right if right is not None else set(range(1, len(headers)))
@@ -405,8 +419,9 @@ def _add_explain(sub) -> None:
 
 def _cmd_explain(args) -> int:
     from .errors import ComputationError
-    from .explain import explain_term, load_record, overview
+    from .explain import explain_term, overview
     from .outputs import check_writable, write_atomic
+    from .record import load_record
     if args.json:
         check_writable(args.json)
     if args.record:
@@ -528,8 +543,8 @@ def _number(text: str) -> float | None:
 
 def _cmd_compare(args) -> int:
     from .compare import ReferenceValue, compare_runs
-    from .explain import load_record
     from .outputs import check_writable, write_atomic
+    from .record import load_record
     records = list(args.records)
     reference, ref_file = None, None
     if args.reference:
@@ -585,9 +600,9 @@ def _finite_float(text: str) -> float:
 
 
 def _add_pump_parser(sub) -> None:
-    p = sub.add_parser("pump", help="pump characterisation: fit a plateau scan or escape record",
-                       description="Pump characterisation tools.")
-    psub = p.add_subparsers(dest="pump_command", metavar="ACTION", parser_class=_Parser)
+    psub = _add_group(sub, "pump",
+                      help="pump characterisation: fit a plateau scan or escape record",
+                      description="Pump characterisation tools.")
     f = psub.add_parser("fit", help="fit a pump model and report the predicted pump error",
                         description="Fit the decay-cascade model to a plateau scan (gate_voltage, "
                                     "n_mean[, n_std]) or the sequential-escape model to an "
@@ -629,7 +644,6 @@ def _add_pump_parser(sub) -> None:
     f.add_argument("--write-fit", metavar="FILE",
                    help="write the fit-result file (JSON if FILE ends in .json, else TOML)")
     f.set_defaults(func=_cmd_pump_fit)
-    p.set_defaults(func=lambda args: (p.print_help(), EXIT_BAD_INPUT)[1])
 
 
 def _cmd_pump_fit(args) -> int:
@@ -736,9 +750,8 @@ def _read_input(path: str, field: str) -> bytes:
 
 
 def _add_identity(sub) -> None:
-    p = sub.add_parser("identity", help="create a signing identity (key and certificate)",
-                       description="Signing identities for labs without their own PKI.")
-    isub = p.add_subparsers(dest="identity_command", metavar="ACTION", parser_class=_Parser)
+    isub = _add_group(sub, "identity", help="create a signing identity (key and certificate)",
+                      description="Signing identities for labs without their own PKI.")
     c = isub.add_parser("create", help="write DIR/identity.p12 and DIR/identity.pem",
                         description="Create an EC P-256 key and a self-signed certificate "
                                     "naming the signer and role. DIR/identity.p12 holds both, "
@@ -750,12 +763,6 @@ def _add_identity(sub) -> None:
     c.add_argument("--out", required=True, metavar="DIR", help="folder for the two files")
     c.add_argument("--force", action="store_true", help="replace existing identity files")
     c.set_defaults(func=_cmd_identity_create)
-    p.set_defaults(func=_cmd_identity_help, identity_parser=p)
-
-
-def _cmd_identity_help(args) -> int:
-    args.identity_parser.print_help()
-    return EXIT_BAD_INPUT
 
 
 def _cmd_identity_create(args) -> int:
@@ -800,12 +807,15 @@ def _add_sign(sub) -> None:
 
 
 def _cmd_sign(args) -> int:
-    from .archive import input_manifest, parse_record
+    from .archive import input_manifest
     from .errors import DataError
     from .outputs import check_writable, write_atomic
+    from .record import record_from_text
     from .signing import ATTACHMENTS, read_attachments, sign_pdf
     _quiet_library_logs()
     check_writable(args.output, force=args.force)
+    if not Path(args.identity).is_file():   # before reading anything or asking a passphrase
+        raise UsageError("identity file not found", file=args.identity, field="--identity")
     pdf = _read_input(args.report, "report")
     try:
         carried = read_attachments(pdf)
@@ -820,8 +830,8 @@ def _cmd_sign(args) -> int:
         raise UsageError(f"the report carries no result record and spec; give {missing}",
                          field=missing.split(" ")[0])
     # check the evidence before asking for the passphrase; errors name the file it came from
-    parse_record(record, file=args.record or f"{args.report} (embedded record)")
-    pdf, note = _final_certificate(pdf, record, args)
+    record_file = args.record or f"{args.report} (embedded record)"
+    pdf, note = _final_certificate(pdf, record_from_text(record, file=record_file), record_file)
     manifest = input_manifest(record, spec, spec_name=args.spec)
     pw = _passphrase(f"Passphrase for {args.identity}: ")
     try:
@@ -836,8 +846,9 @@ def _cmd_sign(args) -> int:
     return EXIT_OK
 
 
-def _final_certificate(pdf: bytes, record: bytes, args) -> tuple[bytes, str]:
-    """A certificate *draft* is signed as the final certificate rendered from the same record.
+def _final_certificate(pdf: bytes, b, record_file: str) -> tuple[bytes, str]:
+    """A certificate *draft* is signed as the final certificate rendered from the same record
+    (``b``, the Budget read from the file named ``record_file``).
 
     The draft carries the SHA-256 of the record it shows; the record given to ``sign`` must have
     that digest, so the approver signs exactly the numbers they reviewed, and the DRAFT
@@ -848,16 +859,14 @@ def _final_certificate(pdf: bytes, record: bytes, args) -> tuple[bytes, str]:
     from .errors import DataError
     from .report import document_info, read_document_info, render_html, render_pdf_layout
     from .report.render import DOCUMENT_INFO_KEY, RECORD_INFO_KEY
-    from .result import Budget
     info = read_document_info(pdf)
     if info.get(DOCUMENT_INFO_KEY) != "certificate-draft":
         return pdf, ""
-    b = Budget.from_dict(json.loads(record))
     digest = hashlib.sha256(b.to_json().encode("utf-8")).hexdigest()
     if digest != info.get(RECORD_INFO_KEY):
         raise DataError("this record is not the one the certificate draft was rendered from "
                         "(its SHA-256 differs from the draft's)",
-                        file=args.record or f"{args.report} (embedded record)", field="record")
+                        file=record_file, field="record")
     rendered = render_pdf_layout(render_html(b, certificate=True, draft=False),
                                  info=document_info(b, certificate=True, draft=False))
     return rendered.pdf, (" (the final certificate, rendered from the reviewed draft's record "
@@ -989,13 +998,12 @@ def _cmd_report(args) -> int:
         check_writable(o)
         p = Path(o)
         if o == args.output and p.is_file() and not args.force:
-            with open(p, "rb") as fh:
-                if looks_signed(fh.read()):
-                    raise UsageError("is a signed PDF; use --force to replace it", file=o,
-                                     field="--output")
+            if looks_signed(_read_input(o, "--output")):
+                raise UsageError("is a signed PDF; use --force to replace it", file=o,
+                                 field="--output")
     _check_archive_option(args)
     if args.record:
-        from .report import load_record
+        from .record import load_record
         b = load_record(args.record)
     else:
         b = _evaluate_spec(args)

@@ -1,7 +1,7 @@
 """Answers for the auditor: where each number of a budget comes from.
 
 Free functions of a :class:`~budget.result.Budget` (freshly evaluated or read back from its JSON
-record with :func:`load_record`):
+record with :func:`budget.record.load_record`):
 
 * :func:`overview` — every term of every measurand, sorted by its share of u_c²;
 * :func:`explain_term` — a fixed-section answer for one term: what it is, estimate, standard
@@ -23,7 +23,6 @@ kept as it is; the answer says so when it is non-zero.
 
 from __future__ import annotations
 
-import json
 import math
 from collections.abc import Mapping
 from dataclasses import dataclass
@@ -33,105 +32,17 @@ from typing import Any
 import numpy as np
 
 from . import expression as ex
-from .errors import BudgetError, DataError, UsageError, did_you_mean
+from .errors import BudgetError, UsageError, did_you_mean
 from .propagate.lpu import correlation_groups, coverage_factor
 from .quantity import FileRef
+from .record import finite_number
 from .result import Budget, Measurand, Term, dof_out
 
-__all__ = ["load_record", "record_from_dict", "Recomputed", "combine_terms", "TermRow",
+__all__ = ["Recomputed", "combine_terms", "TermRow",
            "MeasurandOverview", "Overview", "overview", "TermAnswer", "Explanation",
            "explain_term"]
 
 _REL_TOL = 1e-9   # a record's stored numbers and their recomputation agree to rounding noise
-
-
-# --------------------------------------------------------------------------- records
-def _refuse_constant(name: str) -> float:
-    raise ValueError(f"{name} is not a number a result record may hold")
-
-
-def load_record(path: str | Path) -> Budget:
-    """Read a result record (the JSON written by ``budget run --json``).
-
-    Raises
-    ------
-    DataError
-        File missing or unreadable, not JSON (with its line), or not a result record (naming
-        the key at fault).
-    """
-    p, name = Path(path), str(path)
-    if not p.is_file():
-        raise DataError("record file not found", file=name)
-    try:
-        text = p.read_bytes().decode("utf-8-sig")
-    except UnicodeDecodeError:
-        raise DataError("not UTF-8 text", file=name) from None
-    except OSError as exc:
-        raise DataError(f"cannot read the file ({exc.strerror})", file=name) from None
-    try:
-        data = json.loads(text, parse_constant=_refuse_constant)
-    except json.JSONDecodeError as exc:
-        raise DataError(f"not valid JSON: {exc.msg} (column {exc.colno})", file=name,
-                        line=exc.lineno) from None
-    except (ValueError, RecursionError) as exc:
-        raise DataError(f"not valid JSON: {exc}", file=name) from None
-    return record_from_dict(data, file=name)
-
-
-def _finite(x: Any) -> bool:
-    return isinstance(x, (int, float)) and not isinstance(x, bool) and math.isfinite(x)
-
-
-def record_from_dict(data: Any, *, file: str | None = None) -> Budget:
-    """Check a parsed record and turn it into a Budget; DataError names the key at fault."""
-    def bad(msg: str, fld: str | None = None) -> DataError:
-        return DataError(msg, file=file, field=fld)
-
-    if not isinstance(data, dict):
-        raise bad("not a result record (the top level must be a JSON object)")
-    schema = data.get("schema")
-    if not (isinstance(schema, str) and schema.startswith("qcs-budget/record")):
-        raise bad(f"not a qcs-budget result record (schema {schema!r})", "schema")
-    ms = data.get("measurands")
-    if not (isinstance(ms, list) and ms):
-        raise bad("must be a non-empty list", "measurands")
-    if not isinstance(data.get("run", {}), dict):
-        raise bad("must be an object", "run")
-    for i, m in enumerate(ms):
-        if not isinstance(m, dict):
-            raise bad("must be an object", f"measurands[{i}]")
-        for key in ("value", "standard_uncertainty", "expanded_uncertainty", "coverage_factor",
-                    "coverage_probability"):
-            if not _finite(m.get(key)):
-                raise bad(f"must be a finite number; got {m.get(key)!r}",
-                          f"measurands[{i}].{key}")
-        if m["standard_uncertainty"] < 0:
-            raise bad("must be >= 0", f"measurands[{i}].standard_uncertainty")
-        if not isinstance(m.get("terms", []), list):
-            raise bad("must be a list", f"measurands[{i}].terms")
-        for j, t in enumerate(m.get("terms", [])):
-            where = f"measurands[{i}].terms[{j}]"
-            if not isinstance(t, dict) or not isinstance(t.get("name"), str):
-                raise bad("must be an object with a name", where)
-            for key in ("value", "standard_uncertainty", "sensitivity", "contribution",
-                        "variance_share"):
-                if not _finite(t.get(key)):
-                    raise bad(f"must be a finite number; got {t.get(key)!r}", f"{where}.{key}")
-            if t.get("dof") is not None and not (_finite(t["dof"]) and t["dof"] > 0):
-                raise bad(f"must be a positive number or null; got {t['dof']!r}", f"{where}.dof")
-    corr = data.get("run", {}).get("input_correlations", [])
-    if not isinstance(corr, list) or not all(
-            isinstance(c, list) and len(c) == 3 and all(isinstance(s, str) for s in c[:2])
-            and _finite(c[2]) and -1 <= c[2] <= 1 for c in corr):
-        raise bad("must be a list of [name, name, r] with -1 <= r <= 1", "run.input_correlations")
-    try:
-        return Budget.from_dict(data)
-    except KeyError as exc:
-        raise bad(f"not a result record: missing key {exc}") from None
-    except BudgetError as exc:
-        raise bad(f"not a result record: {exc.message}", exc.field) from None
-    except (TypeError, ValueError, AttributeError) as exc:
-        raise bad(f"not a result record: {exc}") from None
 
 
 # --------------------------------------------------------------------------- recomputation
@@ -398,7 +309,7 @@ def _answer(budget: Budget, m: Measurand, t: Term) -> TermAnswer:
     except KeyError:
         q = None
     cautions = []
-    env = {**{k: float(v) for k, v in run.get("constants", {}).items() if _finite(v)},
+    env = {**{k: float(v) for k, v in run.get("constants", {}).items() if finite_number(v)},
            **{x.name: x.value for x in budget.inputs}}
     dvalue = _evaluate_text(t.derivative, env)
     if not t.derivative:

@@ -240,7 +240,7 @@ def read_attachments(pdf_bytes: bytes) -> dict[str, bytes]:
     return _attachments_of(reader.root)
 
 
-def _reader(pdf_bytes: bytes, file: str = "PDF"):
+def _reader(pdf_bytes: bytes, file: str | None = None):
     from pyhanko.pdf_utils.reader import PdfFileReader
     if not pdf_bytes.lstrip()[:5] == b"%PDF-":
         raise DataError("not a PDF file", file=file)
@@ -350,12 +350,13 @@ def sign_pdf(pdf_bytes: bytes, p12_path: str | Path, passphrase: str | bytes, *,
     from pyhanko.sign import fields, signers
     from pyhanko.stamp import TextStampStyle
 
-    from .archive import input_manifest, parse_record
+    from .archive import input_manifest
+    from .record import record_data
 
     spec_bytes = spec_text.encode("utf-8") if isinstance(spec_text, str) else bytes(spec_text)
     record_bytes = record_json.encode("utf-8") if isinstance(record_json, str) else \
         bytes(record_json)
-    parse_record(record_bytes)
+    record_data(record_bytes, file="record")
     if manifest is None:
         manifest = input_manifest(record_bytes, spec_bytes)
     manifest_bytes = (json.dumps(manifest, indent=2, ensure_ascii=False) + "\n").encode()
@@ -447,7 +448,7 @@ def _registry(others):
 
 
 # --------------------------------------------------------------------------- verifying
-def verify_pdf(pdf_bytes: bytes, trust_pem, *, file: str = "PDF"):
+def verify_pdf(pdf_bytes: bytes, trust_pem, *, file: str | None = None):
     """Check a signed report; see :func:`budget.verify.verify_pdf` (kept there, with
     :class:`~budget.verify.VerifyResult`, so that this module stays about signing)."""
     from .verify import verify_pdf as _verify

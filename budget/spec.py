@@ -202,7 +202,7 @@ def parse_spec(text: str, *, file: str = "<string>", folder: Path | None = None,
             outputs[name] = expr
 
     units = dict(units_from_chain)
-    for k, v in data.get("units", {}).items():
+    for k in data.get("units", {}):
         if k not in outputs:
             raise chk.error(("units",), k, f"is not an output of [model]"
                                            f"{did_you_mean(k, outputs)}")

@@ -190,7 +190,7 @@ def _check_one(emb, roots) -> SignatureCheck:
                           problems=tuple(problems))
 
 
-def verify_pdf(pdf_bytes: bytes, trust_pem, *, file: str = "PDF") -> VerifyResult:
+def verify_pdf(pdf_bytes: bytes, trust_pem, *, file: str | None = None) -> VerifyResult:
     """Check every signature of a signed report and read the embedded evidence.
 
     Parameters

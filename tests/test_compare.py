@@ -27,7 +27,7 @@ from budget.cli import main
 from budget.compare import ReferenceValue, compare_runs
 from budget.engine import evaluate
 from budget.errors import DataError, UsageError
-from budget.explain import record_from_dict
+from budget.record import record_from_dict
 from budget.spec import parse_spec
 
 E_CHARGE = 1.602176634e-19       # C, exact (SI 2019)

@@ -24,7 +24,8 @@ from scipy import stats
 from budget.cli import main
 from budget.engine import evaluate
 from budget.errors import DataError, UsageError
-from budget.explain import combine_terms, explain_term, load_record, overview, record_from_dict
+from budget.explain import combine_terms, explain_term, overview
+from budget.record import load_record, record_from_dict
 from budget.spec import load_spec, parse_spec
 
 ROOT = Path(__file__).resolve().parents[1]

@@ -28,12 +28,11 @@ import pytest
 from budget import __version__, evaluate, load_spec
 from budget.cli import main
 from budget.errors import DataError
+from budget.record import load_record, record_from_text
 from budget.report import (
     SIGNATURE_FIELD_MM,
     DataOnlyFetcher,
-    load_record,
     read_signature_box,
-    record_from_text,
     render_html,
     render_pdf_layout,
 )

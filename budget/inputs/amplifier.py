@@ -48,20 +48,12 @@ from ..quantity import ModuleResult, Quantity
 from .context import InputContext
 from .corrections import (
     TEMPERATURE_KEYS,
-    assemble,
     bounded_or_standard,
+    drift_result,
     relative_term,
     temperature_term,
 )
-from .history import (
-    HISTORY_KEYS,
-    drift_figure,
-    drift_quantity,
-    history_diagnostics,
-    parse_when,
-    predict_drift,
-    read_history,
-)
+from .history import HISTORY_KEYS, parse_when, read_history
 
 __all__ = ["KEYS", "evaluate"]
 
@@ -88,11 +80,8 @@ def _offset(ctx: InputContext, name: str) -> tuple[Quantity | None, dict]:
         return None, {"offset": "no input-offset term requested"}
     i_os = ctx.number("offset_current_A", 0.0)
     u_os, hw_os = bounded_or_standard(ctx, "offset_current_uncertainty_A",
-                                      "offset_current_bound_A")
-    if u_os == 0 and hw_os == 0:
-        raise ctx.spec_error("offset_current_bound_A",
-                             "is required with an offset term (or give "
-                             "offset_current_uncertainty_A)")
+                                      "offset_current_bound_A",
+                                      required_with="with an offset term", name_bound=True)
     i_sig = ctx.number("signal_current_A", positive=True)
     reason = ("the residual offset is known only within a bound (JCGM 100 4.3.7)" if hw_os > 0
               else "the residual offset carries a stated standard uncertainty")
@@ -119,21 +108,13 @@ def evaluate(ctx: InputContext) -> ModuleResult:
                                               history_temperature=hist.temperature)
     q_stab = _stability(ctx, f"{ctx.name}_stab")
     q_off, d_off = _offset(ctx, f"{ctx.name}_offset")
-    values = hist.values if f_temp is None else hist.values / f_temp
-    pred = predict_drift(ctx, hist, values, at)
     extra = ()
     if hist.voltage is not None:
         extra = ("the history's voltage_V column is not used by the amplifier module",)
-    main = drift_quantity(ctx, hist, pred, name=f"{ctx.name}_cal", unit=unit, what=what,
-                          extra_notes=extra)
-    terms = [(s, q) for s, q in (("temp", q_temp), ("stab", q_stab), ("offset", q_off))
-             if q is not None]
-    reference = ctx.number("nominal", pred.value, positive=True)
-    diagnostics = history_diagnostics(hist, values, pred, unit=unit)
-    diagnostics.update(d_temp)
-    diagnostics.update(d_off)
-    diagnostics["stability"] = (None if q_stab is None else
-                                {"relative_half_width": q_stab.distribution.half_width})
-    diagnostics["figures"] = [drift_figure(ctx, hist, values, pred, unit=unit, what=what,
-                                           reference=reference)]
-    return assemble(ctx, main, terms, diagnostics)
+    stability = (None if q_stab is None else
+                 {"relative_half_width": q_stab.distribution.half_width})
+    return drift_result(ctx, hist, at, [("temp", q_temp, f_temp, d_temp),
+                                        ("stab", q_stab, None, {}),
+                                        ("offset", q_off, None, d_off)],
+                        unit=unit, what=what, figure_what=what, extra_notes=extra,
+                        extra_diagnostics={"stability": stability})

@@ -136,8 +136,13 @@ class InputContext:
         return FileRef(path=shown, sha256=sha256_file(path), rows=rows)
 
     def display(self, path: Path) -> str:
-        """How to name a data file in an error message."""
-        return str(path)
+        """How to name a data file in an error message: relative to the working folder when
+        it lies below it (as the user would type it), else the absolute path."""
+        try:
+            rel = os.path.relpath(path)
+        except ValueError:  # pragma: no cover - another drive on Windows
+            return str(path)
+        return str(path) if rel.startswith("..") else rel
 
     def data_error(self, path: Path, message: str, *, row: int | None = None,
                    column: str | None = None) -> DataError:

@@ -2,6 +2,9 @@
 
 Each correction is a dimensionless quantity δ that enters the input as a factor ``(1 + δ)``;
 the module's expression multiplies them onto the calibrated value, so each is its own budget row.
+:func:`drift_result` finishes a module whose calibrated value comes from a calibration history
+(``resistor``, ``amplifier``): history referred to reference conditions, drift prediction, the
+NAME_cal row, diagnostics and the drift figure.
 """
 
 from __future__ import annotations
@@ -14,9 +17,10 @@ import numpy as np
 from ..distributions import Distribution
 from ..quantity import FileRef, ModuleResult, Provenance, Quantity
 from .context import InputContext
+from .history import History, drift_figure, drift_quantity, history_diagnostics, predict_drift
 
-__all__ = [
-    "assemble","TEMPERATURE_KEYS", "bounded_or_standard", "relative_term", "temperature_term"]
+__all__ = ["assemble", "drift_result", "TEMPERATURE_KEYS", "bounded_or_standard",
+           "reference_level", "relative_term", "temperature_term"]
 
 #: Option keys of the temperature correction δ_T = α·ΔT + β·ΔT², ΔT = T − T_ref.
 TEMPERATURE_KEYS = frozenset({"alpha", "beta", "alpha_uncertainty", "beta_uncertainty",
@@ -51,17 +55,54 @@ def relative_term(ctx: InputContext, *, name: str, value: float, u: float | None
                                           files=files, notes=notes))
 
 
-def bounded_or_standard(ctx: InputContext, u_key: str, bound_key: str) -> tuple[float, float]:
+def bounded_or_standard(ctx: InputContext, u_key: str, bound_key: str, *,
+                        required_with: str | None = None,
+                        name_bound: bool = False) -> tuple[float, float]:
     """Read an uncertainty given either as a standard uncertainty (normal) under ``u_key`` or
     as a half-width bound (rectangular) under ``bound_key``; at most one of them.
+
+    Parameters
+    ----------
+    required_with : str, optional
+        When given, one of the two must be > 0; otherwise a spec error "is required
+        {required_with} (or give the other key)" names ``u_key`` (``bound_key`` when
+        ``name_bound``). Default: both may be absent.
 
     Returns ``(u, half_width)`` with the one not given as 0.
     """
     if u_key in ctx.table and bound_key in ctx.table:
         raise ctx.spec_error(bound_key, f"give either '{u_key}' (standard uncertainty, normal) "
                                         f"or '{bound_key}' (half-width, rectangular), not both")
-    return (ctx.number(u_key, 0.0, nonnegative=True),
-            ctx.number(bound_key, 0.0, nonnegative=True))
+    u = ctx.number(u_key, 0.0, nonnegative=True)
+    half_width = ctx.number(bound_key, 0.0, nonnegative=True)
+    if required_with is not None and u == 0 and half_width == 0:
+        key, other = (bound_key, u_key) if name_bound else (u_key, bound_key)
+        raise ctx.spec_error(key, f"is required {required_with} (or give {other})")
+    return u, half_width
+
+
+def reference_level(ctx: InputContext, key: str, column: np.ndarray | None, *, what: str,
+                    column_name: str) -> tuple[float, str, np.ndarray | None]:
+    """A reference condition (T_ref, V_cal): stated under ``key``, else the mean of the
+    history's ``column`` (NaN where blank).
+
+    Returns
+    -------
+    level : float
+    origin : str
+        Where it came from, for the method text and diagnostics.
+    deviations : ndarray or None
+        Each calibration's condition minus the level (0 where blank); None when the history
+        has no value in that column.
+    """
+    usable = column if column is not None and np.isfinite(column).any() else None
+    if key in ctx.table or usable is None:
+        level, origin = ctx.number(key), "stated in the spec"
+    else:
+        level = float(np.nanmean(usable))
+        origin = f"mean {what} of the calibrations ({column_name} column)"
+    deviations = None if usable is None else np.where(np.isfinite(usable), usable - level, 0.0)
+    return level, origin, deviations
 
 
 def temperature_term(ctx: InputContext, *, name: str, what: str,
@@ -96,15 +137,9 @@ def temperature_term(ctx: InputContext, *, name: str, what: str,
                              "is required with a temperature correction (or give "
                              "temperature_half_width_C, alpha_uncertainty or beta_uncertainty); "
                              "a correction without an uncertainty would be a silent claim")
-    hist_t = None
-    if history_temperature is not None and np.isfinite(history_temperature).any():
-        hist_t = history_temperature
-    if "reference_temperature_C" in ctx.table or hist_t is None:
-        t_ref = ctx.number("reference_temperature_C")
-        ref_reason = "stated in the spec"
-    else:
-        t_ref = float(np.nanmean(hist_t))
-        ref_reason = "mean temperature of the calibrations (temperature_C column)"
+    t_ref, ref_reason, d_i = reference_level(ctx, "reference_temperature_C",
+                                             history_temperature, what="temperature",
+                                             column_name="temperature_C")
     dt = t_meas - t_ref
     value = alpha * dt + beta * dt * dt
     c_t = alpha + 2 * beta * dt
@@ -123,8 +158,7 @@ def temperature_term(ctx: InputContext, *, name: str, what: str,
         reason = ("δ_T combines several contributions (temperature, coefficients); a normal "
                   "distribution is assigned to their combination")
     factors = None
-    if hist_t is not None:
-        d_i = np.where(np.isfinite(hist_t), hist_t - t_ref, 0.0)
+    if d_i is not None:
         factors = 1.0 + alpha * d_i + beta * d_i * d_i
         notes.append("history values referred to T_ref with the nominal α, β before the fit; "
                      "the coefficients' uncertainty on these small corrections is neglected")
@@ -151,3 +185,47 @@ def assemble(ctx: InputContext, main: Quantity, terms: list[tuple[str, Quantity]
     expr = " * ".join([main.name] + [f"(1 + {q.name})" for _, q in terms])
     return ModuleResult(quantities=(main,) + tuple(q for _, q in terms), expression=expr,
                         diagnostics=diagnostics)
+
+
+def drift_result(ctx: InputContext, hist: History, at, corrections: list[tuple], *, unit: str,
+                 what: str, figure_what: str, extra_notes: tuple[str, ...] = (),
+                 extra_diagnostics: dict | None = None) -> ModuleResult:
+    """The result of a module whose calibrated value is predicted from a calibration history.
+
+    Parameters
+    ----------
+    ctx : InputContext
+    hist : History
+        The calibration history (:func:`budget.inputs.history.read_history`).
+    at : pandas.Timestamp
+        The measurement date.
+    corrections : list of (suffix, Quantity or None, factors or None, dict)
+        The relative corrections in the order of the expression: the row NAME_suffix (None when
+        not configured), the factors 1 + δ(condition_i) that refer each calibration to reference
+        conditions before the fit (None when the history has no such column), and the
+        correction's diagnostics.
+    unit : str
+        Unit of the history values and of NAME_cal.
+    what, figure_what : str
+        What NAME_cal is ("resistance at reference conditions") and what the figure shows.
+    extra_notes : tuple of str
+        Notes added to the NAME_cal row. Default none.
+    extra_diagnostics : dict, optional
+        Added after the corrections' diagnostics, before the figure.
+    """
+    values = hist.values
+    for _, _, factors, _ in corrections:
+        if factors is not None:
+            values = values / factors
+    pred = predict_drift(ctx, hist, values, at)
+    main = drift_quantity(ctx, hist, pred, name=f"{ctx.name}_cal", unit=unit, what=what,
+                          extra_notes=extra_notes)
+    reference = ctx.number("nominal", pred.value, positive=True)
+    diagnostics = history_diagnostics(hist, values, pred, unit=unit)
+    for *_, diag in corrections:
+        diagnostics.update(diag)
+    diagnostics.update(extra_diagnostics or {})
+    diagnostics["figures"] = [drift_figure(ctx, hist, values, pred, unit=unit, what=figure_what,
+                                           reference=reference)]
+    terms = [(suffix, q) for suffix, q, _, _ in corrections if q is not None]
+    return assemble(ctx, main, terms, diagnostics)

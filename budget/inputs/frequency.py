@@ -128,10 +128,8 @@ def _offset_typed(ctx: InputContext, name: str) -> Quantity | None:
     if not any(k in ctx.table for k in _OFFSET_KEYS):
         return None
     y = ctx.number("offset", 0.0)
-    u, hw = bounded_or_standard(ctx, "offset_uncertainty", "offset_bound")
-    if u == 0 and hw == 0:
-        raise ctx.spec_error("offset_uncertainty", "is required with 'offset' (or give "
-                                                   "offset_bound)")
+    u, hw = bounded_or_standard(ctx, "offset_uncertainty", "offset_bound",
+                                required_with="with 'offset'")
     if "offset_dof" in ctx.table and hw > 0:
         raise ctx.spec_error("offset_dof", "applies to offset_uncertainty, not to a bound")
     dof = ctx.number("offset_dof", positive=True) if "offset_dof" in ctx.table else math.inf

@@ -34,7 +34,7 @@ from ..errors import BudgetError, DataError
 from ..quantity import Provenance, Quantity
 from ..stats.regression import INFLATE_POLICIES, Fit, fit
 from .context import InputContext
-from .tables import date_column, numeric_column, read_table, row_ranges
+from .tables import date_column, numeric_column, parse_iso, read_table, row_ranges
 
 __all__ = [
     "HISTORY_KEYS",
@@ -99,12 +99,10 @@ def parse_when(ctx: InputContext, key: str = "at", default=None) -> pd.Timestamp
     if isinstance(v, (_dt.datetime, _dt.date)):
         ts = pd.Timestamp(v)
     elif isinstance(v, str):
-        try:
-            ts = pd.Timestamp(v.strip())
-        except (ValueError, TypeError):
-            ts = pd.NaT
-        if pd.isna(ts):
-            raise ctx.spec_error(key, f"not an ISO 8601 date or date-time: {v!r}")
+        ts = parse_iso(v)
+        if ts is None:
+            raise ctx.spec_error(key, f"not an ISO 8601 date or date-time "
+                                      f"(YYYY-MM-DD[THH:MM[:SS]]): {v!r}")
     else:
         raise ctx.spec_error(key, f"must be an ISO 8601 date or date-time; got {v!r}")
     if ts.tzinfo is not None:

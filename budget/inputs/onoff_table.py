@@ -18,6 +18,7 @@ import numpy as np
 import pandas as pd
 
 from ..errors import DataError, did_you_mean
+from .tables import decode_text
 
 __all__ = ["COLUMNS", "OnOffTable", "read_onoff", "mask_ranges"]
 
@@ -115,15 +116,8 @@ def _pump(df: pd.DataFrame, shown: str) -> np.ndarray:
 def read_onoff(path: Path, shown: str | None = None) -> OnOffTable:
     """Read and check an on/off record; every problem is a DataError with file, row, column."""
     shown = shown or str(path)
-    raw = path.read_bytes()
-    if b"\x00" in raw[:65536]:
-        raise DataError("not a text file (contains NUL bytes)", file=shown)
-    try:
-        text = raw.decode("utf-8-sig")
-    except UnicodeDecodeError as exc:
-        line = raw[: exc.start].count(b"\n") + 1
-        raise DataError(f"not UTF-8 text (bad byte at offset {exc.start}, line {line})",
-                        file=shown) from None
+    raw = path.read_bytes()    # pandas parses the bytes; the text gives the header and rows
+    text = decode_text(raw, shown)
     cols = _header(text, shown)
     _check_columns(cols, shown)
     try:
@@ -145,7 +139,7 @@ def read_onoff(path: Path, shown: str | None = None) -> OnOffTable:
     step = np.diff(time)
     if (step <= 0).any():
         i = int(np.flatnonzero(step <= 0)[0])
-        raise DataError(f"time must increase strictly; {time[i + 1]!r} follows {time[i]!r}",
+        raise DataError(f"time must increase strictly; {float(time[i + 1]):g} s follows {float(time[i]):g} s",
                         file=shown, row=i + 2, field="time_s")
     return OnOffTable(path=path, shown=shown, time=time, reading=reading, on=on)
 

@@ -53,6 +53,7 @@ it, and a note says when the two differ by more than 5 %.
 
 from __future__ import annotations
 
+import dataclasses
 import math
 from typing import Any
 
@@ -109,8 +110,12 @@ def evaluate(ctx: InputContext) -> ModuleResult:
     half_width = ctx.number("discrepancy_half_width", None, positive=True)
     v_op = ctx.number("operating_point", None)
     hold = ctx.number("hold_time", None, positive=True)
+    # Messages name a file as ctx.display shows it; the record (notes, source_file, fit record,
+    # thermal check) names it relative to the spec's folder, as the FileRef does, so that
+    # records do not depend on where the project is checked out.
     if "file" in t:
         path = ctx.path_of(ctx.option("file", str), "file")
+        ref = ctx.file_ref(path)
         analysis = analyse_data(
             path, model=ctx.choice("model", MODELS),
             plateau=ctx.option("plateau", int, check=lambda n: n >= 1, must=">= 1"),
@@ -124,17 +129,18 @@ def evaluate(ctx: InputContext) -> ModuleResult:
             allow_extrapolation=allow, samples=samples, seed=seed,
             max_evaluations=ctx.option("max_evaluations", int, 2000, check=lambda n: n >= 1,
                                        must=">= 1"),
-            shown=ctx.display(path), option_error=option_error)
+            shown=ctx.display(path), option_error=option_error, recorded=ref.path)
     else:
         for key in _RAW_ONLY:
             if key in t:
                 raise ctx.spec_error(key, "applies to fitting raw data ('file'); a fit-result "
                                           "file carries the model settings itself")
         path = ctx.path_of(ctx.option("fit_file", str), "fit_file")
+        ref = ctx.file_ref(path)
         analysis = analyse_fit_file(
             path, plateau=ctx.option("plateau", int, None, check=lambda n: n >= 1, must=">= 1"),
             operating_point=v_op, hold_time=hold, allow_extrapolation=allow, samples=samples,
-            seed=seed, shown=ctx.display(path), option_error=option_error)
+            seed=seed, shown=ctx.display(path), option_error=option_error, recorded=ref.path)
         if "model" in t:
             model = ctx.choice("model", MODELS)
             if model != analysis.model:
@@ -143,10 +149,12 @@ def evaluate(ctx: InputContext) -> ModuleResult:
     extra_files = []
     if "temperatures" in t:
         tpath = ctx.path_of(ctx.option("temperatures", str), "temperatures")
-        analysis = add_thermal_check(analysis, tpath, shown=ctx.display(tpath))
-        extra_files.append(ctx.file_ref(tpath, analysis.thermal.rows))
-    refs = (ctx.file_ref(path, analysis.data.rows if analysis.data is not None else ""),
-            *extra_files)
+        tref = ctx.file_ref(tpath)
+        analysis = add_thermal_check(analysis, tpath, shown=ctx.display(tpath),
+                                     recorded=tref.path)
+        extra_files.append(dataclasses.replace(tref, rows=analysis.thermal.rows))
+    refs = (dataclasses.replace(ref, rows=analysis.data.rows if analysis.data is not None
+                                else ""), *extra_files)
     quantities, expression = quantities_of(analysis, ctx.name, half_width, refs)
     diagnostics = json_ready(analysis.to_dict())
     diagnostics["figures"] = json_ready(figure_data(analysis))

@@ -164,14 +164,20 @@ def _in_range(x: float, lo: float, hi: float) -> bool:
 
 
 def _extrapolation(key: str, x: float, rng: tuple[float, float] | None, what: str, unit: str,
-                   file: str, allow: bool, option_error: OptionError, notes: list[str]) -> None:
+                   file: str, allow: bool, option_error: OptionError, notes: list[str],
+                   recorded: str) -> None:
+    """Refuse (or, with ``allow``, note) an operating point outside the data; the error names
+    the file as ``file``, the note as ``recorded``."""
     if rng is None or _in_range(x, *rng):
         return
-    msg = (f"{x:g} {unit} lies outside the {what} [{rng[0]:g}, {rng[1]:g}] {unit} of {file}")
+
+    def outside(name: str) -> str:
+        return f"{x:g} {unit} lies outside the {what} [{rng[0]:g}, {rng[1]:g}] {unit} of {name}"
     if not allow:
-        raise option_error(key, msg + "; allow extrapolation (allow_extrapolation = true, or "
-                                      "--allow-extrapolation) to accept a prediction there")
-    notes.append(f"extrapolated: the operating point {msg}")
+        raise option_error(key, outside(file) + "; allow extrapolation (allow_extrapolation = "
+                                                "true, or --allow-extrapolation) to accept a "
+                                                "prediction there")
+    notes.append(f"extrapolated: the operating point {outside(recorded)}")
 
 
 def _base_notes(model: str, source: str, rms: float | None) -> list[str]:
@@ -230,7 +236,7 @@ def analyse_data(path: Path, *, model: str, plateau: int, operating_point: float
                  samples: int = DEFAULT_SAMPLES, seed: int = DEFAULT_SEED,
                  max_evaluations: int = 2000, shown: str | None = None,
                  option_error: OptionError = _default_option_error,
-                 best_if_missing: bool = False) -> PumpAnalysis:
+                 best_if_missing: bool = False, recorded: str | None = None) -> PumpAnalysis:
     """Fit ``model`` to the data file and predict δ = ⟨n⟩/n − 1 at the operating point.
 
     Parameters
@@ -269,8 +275,13 @@ def analyse_data(path: Path, *, model: str, plateau: int, operating_point: float
         Without an operating gate voltage, evaluate δ at the best one the fit predicts
         (least total error probability, or most probable n ejected) instead of refusing.
         Default false.
+    recorded : str, optional
+        How the notes, ``source_file`` and the fit record name the file (the input modules
+        give the path relative to the spec's folder, so that records do not depend on where
+        the project is). Default ``shown``.
     """
     shown = shown or str(path)
+    recorded = recorded or shown
     if model not in MODELS:
         raise option_error("model", f"must be one of {', '.join(MODELS)}; got {model!r}")
     if isinstance(plateau, bool) or not isinstance(plateau, int) or plateau < 1:
@@ -278,7 +289,7 @@ def analyse_data(path: Path, *, model: str, plateau: int, operating_point: float
     _check_samples(samples, seed, option_error)
     data = read_pump_data(path, model, shown=shown)
     y, sigma = data.n_mean, data.n_std
-    notes = _base_notes(model, shown, None)
+    notes = _base_notes(model, recorded, None)
     only = {"decay-cascade": ("hold_time", "loaded"), "sequential-escape": ("steps",)}[model]
     given = {"hold_time": hold_time, "loaded": loaded, "steps": steps}
     for key in only:
@@ -311,7 +322,7 @@ def analyse_data(path: Path, *, model: str, plateau: int, operating_point: float
         if operating_point is not None:
             _extrapolation("operating_point", point["gate_voltage"], gate_range,
                            "gate voltages scanned", "V", shown, allow_extrapolation,
-                           option_error, notes)
+                           option_error, notes, recorded)
         predict, jac = (lambda th: m.predict(th, v)), (lambda th: m.jacobian(th, v))
     else:
         t, v = data.hold_time, data.gate_voltage
@@ -352,9 +363,9 @@ def analyse_data(path: Path, *, model: str, plateau: int, operating_point: float
         if point["gate_voltage"] is not None:
             _extrapolation("operating_point", point["gate_voltage"], gate_range,
                            "gate voltages recorded", "V", shown, allow_extrapolation,
-                           option_error, notes)
+                           option_error, notes, recorded)
         _extrapolation("hold_time", point["hold_time"], hold_range, "hold times recorded", "s",
-                       shown, allow_extrapolation, option_error, notes)
+                       shown, allow_extrapolation, option_error, notes, recorded)
         x0, missing = m.initial_guess(v, t, y)
         for k in missing:
             raise DataError(f"the escape of electron {k} of {N} is not seen in the data (no "
@@ -396,30 +407,33 @@ def analyse_data(path: Path, *, model: str, plateau: int, operating_point: float
         notes.append(f"no operating point given: δ is evaluated at the gate voltage the fit "
                      f"predicts best at the hold time, {point['gate_voltage']:.6g} V (most "
                      "probable to eject exactly n)")
-    notes = _base_notes(model, shown, fit.residual_rms) + notes[1:] + [fit.scale_reason]
+    notes = _base_notes(model, recorded, fit.residual_rms) + notes[1:] + [fit.scale_reason]
     return _finish(m, theta, fit.cov, plateau, point, notes, samples=samples, seed=seed,
                    shown=shown, dof=math.inf if fit.weighted and fit.scale == 1.0 else float(fit.dof),
                    fit=fit,
-                   data=data, source_file=shown, source_path=path, gate_range=gate_range,
-                   hold_range=hold_range, source_text=f"fitted by qcs-budget to {shown}")
+                   data=data, source_file=recorded, source_path=path, gate_range=gate_range,
+                   hold_range=hold_range, source_text=f"fitted by qcs-budget to {recorded}")
 
 
 def analyse_fit_file(path: Path, *, plateau: int | None = None,
                      operating_point: float | None = None, hold_time: float | None = None,
                      allow_extrapolation: bool = False, samples: int = DEFAULT_SAMPLES,
                      seed: int = DEFAULT_SEED, shown: str | None = None,
-                     option_error: OptionError = _default_option_error) -> PumpAnalysis:
+                     option_error: OptionError = _default_option_error,
+                     recorded: str | None = None) -> PumpAnalysis:
     """The pump term from a fit-result file (see :mod:`budget.inputs.pump_fitfile`).
 
     ``plateau``, ``operating_point`` and ``hold_time`` given here replace the file's values
     (a note records it); the sampling is the same as for raw data, so identical parameters,
-    covariance, seed and samples give an identical term.
+    covariance, seed and samples give an identical term. ``shown`` names the file in
+    messages, ``recorded`` (default ``shown``) in the notes and ``source_file``.
     """
     shown = shown or str(path)
+    recorded = recorded or shown
     _check_samples(samples, seed, option_error)
     rec = read_fit_file(path, shown=shown)
-    notes = _base_notes(rec.model, shown, None)
-    notes.append(f"parameters and covariance from the fit-result file {shown}"
+    notes = _base_notes(rec.model, recorded, None)
+    notes.append(f"parameters and covariance from the fit-result file {recorded}"
                  + (f" ({rec.source})" if rec.source else "") + "; the fit was not repeated here")
     n = rec.plateau
     if plateau is not None:
@@ -451,20 +465,25 @@ def analyse_fit_file(path: Path, *, plateau: int | None = None,
     if point.get("gate_voltage") is not None:
         _extrapolation("operating_point", point["gate_voltage"], rec.gate_range,
                        "gate voltages of the fitted data", "V", shown, allow_extrapolation,
-                       option_error, notes)
+                       option_error, notes, recorded)
     if "hold_time" in point:
         _extrapolation("hold_time", point["hold_time"], rec.hold_time_range,
                        "hold times of the fitted data", "s", shown, allow_extrapolation,
-                       option_error, notes)
+                       option_error, notes, recorded)
     return _finish(m, np.asarray(rec.values), np.asarray(rec.covariance), n, point, notes,
                    samples=samples, seed=seed, shown=shown, dof=rec.dof, fit=None, data=None,
-                   source_file=shown, source_path=path, gate_range=rec.gate_range,
+                   source_file=recorded, source_path=path, gate_range=rec.gate_range,
                    hold_range=rec.hold_time_range, source_text=rec.source)
 
 
-def add_thermal_check(analysis: PumpAnalysis, path: Path, *, shown: str | None = None
-                      ) -> PumpAnalysis:
-    """Attach the thermal-activation check of a temperature-series file to an analysis."""
+def add_thermal_check(analysis: PumpAnalysis, path: Path, *, shown: str | None = None,
+                      recorded: str | None = None) -> PumpAnalysis:
+    """Attach the thermal-activation check of a temperature-series file to an analysis.
+
+    ``shown`` names the file in messages, ``recorded`` (default ``shown``) in the check's
+    ``file`` and the note."""
     check = read_thermal(path, shown=shown or str(path))
+    if recorded:
+        check = replace(check, file=recorded)
     note = f"escape regime from {check.file}: {check.verdict} ({check.reason})"
     return replace(analysis, thermal=check, notes=analysis.notes + (note,))

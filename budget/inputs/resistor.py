@@ -71,21 +71,13 @@ from ..quantity import ModuleResult, Quantity
 from .context import InputContext
 from .corrections import (
     TEMPERATURE_KEYS,
-    assemble,
     bounded_or_standard,
+    drift_result,
+    reference_level,
     relative_term,
     temperature_term,
 )
-from .history import (
-    HISTORY_KEYS,
-    History,
-    drift_figure,
-    drift_quantity,
-    history_diagnostics,
-    parse_when,
-    predict_drift,
-    read_history,
-)
+from .history import HISTORY_KEYS, History, parse_when, read_history
 
 __all__ = ["KEYS", "evaluate"]
 
@@ -109,24 +101,16 @@ def voltage_term(ctx: InputContext, hist: History, name: str
         return None, None, {"voltage": "no voltage-coefficient correction requested"}
     gamma = ctx.number("voltage_coefficient", 0.0)
     u_g, hw_g = bounded_or_standard(ctx, "voltage_coefficient_uncertainty",
-                                    "voltage_coefficient_bound")
-    if u_g == 0 and hw_g == 0:
-        raise ctx.spec_error("voltage_coefficient_uncertainty",
-                             "is required with a voltage correction (or give "
-                             "voltage_coefficient_bound)")
+                                    "voltage_coefficient_bound",
+                                    required_with="with a voltage correction")
     v_work = ctx.number("working_voltage_V")
-    hist_v = hist.voltage if hist.voltage is not None and np.isfinite(hist.voltage).any() else None
-    if "calibration_voltage_V" in ctx.table or hist_v is None:
-        v_cal = ctx.number("calibration_voltage_V")
-        v_from = "stated in the spec"
-    else:
-        v_cal = float(np.nanmean(hist_v))
-        v_from = "mean voltage of the calibrations (voltage_V column)"
+    v_cal, v_from, dv_i = reference_level(ctx, "calibration_voltage_V", hist.voltage,
+                                          what="voltage", column_name="voltage_V")
     dv = v_work - v_cal
     notes = []
     factors = None
-    if hist_v is not None:
-        factors = 1.0 + gamma * np.where(np.isfinite(hist_v), hist_v - v_cal, 0.0)
+    if dv_i is not None:
+        factors = 1.0 + gamma * dv_i
         if gamma != 0:
             notes.append("history values referred to V_cal with the nominal voltage coefficient "
                          "before the fit")
@@ -155,19 +139,7 @@ def evaluate(ctx: InputContext) -> ModuleResult:
     q_temp, f_temp, d_temp = temperature_term(ctx, name=f"{ctx.name}_temp", what="resistor",
                                               history_temperature=hist.temperature)
     q_volt, f_volt, d_volt = voltage_term(ctx, hist, f"{ctx.name}_volt")
-    values = hist.values.copy()
-    for factors in (f_temp, f_volt):
-        if factors is not None:
-            values = values / factors
-    pred = predict_drift(ctx, hist, values, at)
-    main = drift_quantity(ctx, hist, pred, name=f"{ctx.name}_cal", unit=UNIT,
-                          what="resistance at reference conditions" if (q_temp or q_volt)
-                          else "resistance")
-    terms = [(s, q) for s, q in (("temp", q_temp), ("volt", q_volt)) if q is not None]
-    reference = ctx.number("nominal", pred.value, positive=True)
-    diagnostics = history_diagnostics(hist, values, pred, unit=UNIT)
-    diagnostics.update(d_temp)
-    diagnostics.update(d_volt)
-    diagnostics["figures"] = [drift_figure(ctx, hist, values, pred, unit=UNIT,
-                                           what="reference resistor", reference=reference)]
-    return assemble(ctx, main, terms, diagnostics)
+    return drift_result(ctx, hist, at, [("temp", q_temp, f_temp, d_temp),
+                                        ("volt", q_volt, f_volt, d_volt)], unit=UNIT,
+                        what="resistance at reference conditions" if (q_temp or q_volt)
+                        else "resistance", figure_what="reference resistor")

@@ -7,6 +7,7 @@ third line after the header — the same numbering as the ``rows`` field of a Fi
 from __future__ import annotations
 
 import io
+import re
 from collections.abc import Iterable
 from pathlib import Path
 
@@ -15,7 +16,33 @@ import pandas as pd
 
 from ..errors import DataError, did_you_mean
 
-__all__ = ["read_table", "numeric_column", "date_column", "row_ranges"]
+__all__ = ["read_text", "decode_text", "read_table", "numeric_column", "date_column",
+           "row_ranges"]
+
+
+def decode_text(raw: bytes, shown: str) -> str:
+    """The text of a data file's bytes: UTF-8, a leading byte-order mark dropped.
+
+    Raises
+    ------
+    DataError
+        NUL bytes in the first 64 KiB (a binary file), or bytes that are not UTF-8 (with the
+        offset and line of the first bad byte).
+    """
+    if b"\x00" in raw[:65536]:
+        raise DataError("not a text file (contains NUL bytes)", file=shown)
+    try:
+        return raw.decode("utf-8-sig")
+    except UnicodeDecodeError as exc:
+        line = raw[: exc.start].count(b"\n") + 1
+        raise DataError(f"not UTF-8 text (bad byte at offset {exc.start}, line {line})",
+                        file=shown) from None
+
+
+def read_text(path: Path, shown: str | None = None) -> str:
+    """Read a data file as text (see :func:`decode_text`); ``shown`` names it in messages
+    (default ``str(path)``)."""
+    return decode_text(path.read_bytes(), shown or str(path))
 
 
 def read_table(path: Path, required: Iterable[str], optional: Iterable[str] = (), *,
@@ -35,15 +62,7 @@ def read_table(path: Path, required: Iterable[str], optional: Iterable[str] = ()
         Fewest data rows accepted. Default 1.
     """
     shown = shown or str(path)
-    raw = path.read_bytes()
-    if b"\x00" in raw[:65536]:
-        raise DataError("not a text file (contains NUL bytes)", file=shown)
-    try:
-        text = raw.decode("utf-8-sig")
-    except UnicodeDecodeError as exc:
-        line = raw[: exc.start].count(b"\n") + 1
-        raise DataError(f"not UTF-8 text (bad byte at offset {exc.start}, line {line})",
-                        file=shown) from None
+    text = read_text(path, shown)
     lines = [ln for ln in text.splitlines() if ln.strip() and not ln.lstrip().startswith("#")]
     if not lines:
         raise DataError("file is empty (no header row)", file=shown)
@@ -96,18 +115,36 @@ def numeric_column(df: pd.DataFrame, column: str, *, shown: str, allow_blank: bo
     return values
 
 
+#: ISO 8601 calendar date, optionally with a time and a zone (the only forms accepted:
+#: "05/03/2026" would silently mean 3 May in one country and 5 March in another, and words such
+#: as "today" would make a record depend on when it was computed)
+_ISO = re.compile(r"^\d{4}-\d{2}-\d{2}([T ]\d{2}:\d{2}(:\d{2}(\.\d+)?)?(Z|[+-]\d{2}(:?\d{2})?)?)?$")
+
+
+def parse_iso(text: str) -> pd.Timestamp | None:
+    """An ISO 8601 date or date-time as a naive UTC Timestamp, or None when it is not one."""
+    t = str(text).strip()
+    if not _ISO.match(t):
+        return None
+    try:
+        ts = pd.Timestamp(t)
+    except (ValueError, TypeError, OverflowError):
+        return None
+    if pd.isna(ts):
+        return None
+    if ts.tzinfo is not None:
+        ts = ts.tz_convert("UTC").tz_localize(None)
+    return ts
+
+
 def date_column(df: pd.DataFrame, column: str, *, shown: str) -> pd.DatetimeIndex:
-    """Parse ISO 8601 dates (or date-times), refusing unparseable ones by row."""
+    """Parse ISO 8601 dates (or date-times), refusing anything else by row."""
     out = []
     for i, v in enumerate(df[column]):
-        try:
-            ts = pd.Timestamp(str(v).strip())
-        except (ValueError, TypeError):
-            ts = pd.NaT
-        if ts is pd.NaT or pd.isna(ts):
-            raise DataError(f"not an ISO 8601 date: {v!r}", file=shown, row=i + 1, field=column)
-        if ts.tzinfo is not None:
-            ts = ts.tz_convert("UTC").tz_localize(None)
+        ts = parse_iso(v)
+        if ts is None:
+            raise DataError(f"not an ISO 8601 date (YYYY-MM-DD[THH:MM[:SS]]): {v!r}", file=shown,
+                            row=i + 1, field=column)
         out.append(ts)
     return pd.DatetimeIndex(out)
 

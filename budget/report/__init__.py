@@ -11,7 +11,6 @@ signing step: :func:`render_pdf_layout` and :func:`read_signature_box` (see
 :mod:`budget.report.render`). Heavy imports (matplotlib, WeasyPrint) happen on first use only.
 """
 
-from .record import load_record, record_from_text
 from .render import (
     SIGNATURE_FIELD_ID,
     SIGNATURE_FIELD_MM,
@@ -29,5 +28,6 @@ from .render import (
 )
 
 __all__ = ["render_html", "render_pdf", "render_pdf_layout", "RenderedPdf", "SignatureBox",
-           "DataOnlyFetcher", "read_signature_box", "looks_signed", "load_record",
-           "record_from_text", "document_info", "read_document_info", "SIGNATURE_FIELD_ID", "SIGNATURE_FIELD_MM", "SIGNATURE_INFO_KEY"]
+           "DataOnlyFetcher", "read_signature_box", "looks_signed", "document_info",
+           "read_document_info", "SIGNATURE_FIELD_ID", "SIGNATURE_FIELD_MM",
+           "SIGNATURE_INFO_KEY"]
