@@ -6,7 +6,8 @@ usage (one line on stderr naming file, line or row, and field; no traceback; not
 
 Adding a command: write ``_add_NAME(sub)`` that registers the subparser with
 ``set_defaults(func=_cmd_NAME)``, write ``_cmd_NAME(args) -> int``, and list ``_add_NAME`` in
-:data:`COMMANDS`.
+:data:`COMMANDS`. The text a command shows is built by a renderer in :mod:`budget.text`, which
+returns a string; this module only prints it.
 """
 
 from __future__ import annotations
@@ -20,7 +21,6 @@ from pathlib import Path
 
 from . import __version__
 from .errors import BudgetError, UsageError
-from .fmt import fmt_dof, fmt_num, fmt_share, fmt_u, fmt_value
 
 EXIT_OK, EXIT_CHECK_FAILED, EXIT_BAD_INPUT, EXIT_INTERRUPTED = 0, 1, 2, 130
 
@@ -67,59 +67,6 @@ def _add_group(sub, name: str, *, help: str, description: str):
 def _cmd_group_help(args) -> int:
     args.group_parser.print_help()
     return EXIT_BAD_INPUT
-
-
-# --------------------------------------------------------------------------- tables
-def _table(headers: list[str], rows: list[list[str]], right: set[int] | None = None) -> str:
-    right = right if right is not None else set(range(1, len(headers)))
-    widths = [max(len(h), *(len(r[i]) for r in rows)) if rows else len(h)
-              for i, h in enumerate(headers)]
-
-    def line(cells):
-        return "  ".join(c.rjust(w) if i in right else c.ljust(w)
-                         for i, (c, w) in enumerate(zip(cells, widths)))
-    out = [line(headers), "  ".join("-" * w for w in widths)]
-    out += [line(r) for r in rows]
-    return "\n".join(out)
-
-
-def budget_text(b) -> str:
-    """The budget table(s) and result lines of a Budget, as printed by ``budget run``."""
-    out = [b.title, "=" * len(b.title)]
-    for m in b.measurands:
-        unit = f" {m.unit}" if m.unit else ""
-        out.append("")
-        out.append(f"{m.name} = {m.expression}")
-        rows = []
-        for t in sorted(m.terms, key=lambda t: -t.variance_share):
-            rows.append([t.name, fmt_value(t.value, t.standard_uncertainty) + (f" {t.unit}" if t.unit not in ("", "1") else ""),
-                         fmt_u(t.standard_uncertainty), t.distribution, fmt_dof(t.dof),
-                         fmt_num(t.sensitivity, 4), fmt_u(t.contribution), fmt_share(t.variance_share)])
-        out.append(_table(["input", "estimate", "u(x)", "distribution", "ν", "c", "|c·u|",
-                           "share of u_c²"], rows))
-        out.append("")
-        p = m.coverage_probability
-        out.append(f"  {m.name} = {fmt_value(m.value, m.standard_uncertainty)}{unit}, "
-                   f"u_c = {fmt_u(m.standard_uncertainty)}{unit}, ν_eff = {fmt_dof(m.effective_dof)}")
-        out.append(f"  result: {m.name} = ({fmt_value(m.value, m.expanded_uncertainty)} ± "
-                   f"{fmt_u(m.expanded_uncertainty)}){unit}, U with k = {m.coverage_factor:.2f} "
-                   f"for a coverage probability of about {100 * p:g} %")
-        if m.second_order_variance:
-            out.append(f"  includes second-order terms: {fmt_u(math.sqrt(abs(m.second_order_variance)))}"
-                       f"{unit} in quadrature")
-        mc = b.mc(m.name)
-        if mc is not None:
-            verdict = "validated" if mc.validated else "NOT validated"
-            out.append(f"  Monte Carlo ({mc.trials:,} trials{', adaptive' if mc.adaptive else ''}): "
-                       f"y = {fmt_value(mc.value, mc.standard_uncertainty)}, "
-                       f"u = {fmt_u(mc.standard_uncertainty)}, {100 * p:g} % {mc.interval_kind} "
-                       f"interval [{fmt_value(mc.interval_low, mc.standard_uncertainty)}, "
-                       f"{fmt_value(mc.interval_high, mc.standard_uncertainty)}]")
-            out.append(f"  linear result {verdict} (JCGM 101 §8: d_low = {fmt_num(mc.d_low, 2)}, "
-                       f"d_high = {fmt_num(mc.d_high, 2)}, δ = {fmt_num(mc.tolerance, 2)})")
-    for note in b.run.get("notes", []):
-        out.append(f"note: {note}")
-    return "\n".join(out)
 
 
 # --------------------------------------------------------------------------- run
@@ -176,6 +123,7 @@ def _cmd_run(args) -> int:
     if args.json:
         check_writable(args.json)
     _check_archive_option(args)
+    from .text import budget_text
     b = _evaluate_spec(args)
     print(budget_text(b))
     if args.json:
@@ -227,179 +175,18 @@ def _add_validate(sub) -> None:
 def _cmd_validate(args) -> int:
     from .outputs import check_writable, write_atomic
     from .references import run_all
+    from .text import validate_text
     if args.json:
         check_writable(args.json)
     checks = run_all()
-    rows = [[c.case, c.quantity, f"{c.published:.10g}", f"{c.computed:.10g}",
-             f"{c.tolerance:.2g}", "pass" if c.passed else "FAIL"] for c in checks]
-    print(_table(["case", "quantity", "published", "computed", "tolerance", "result"], rows,
-                 right={2, 3, 4}))
-    print()
-    for src in dict.fromkeys(f"{c.case}: {c.source}" for c in checks):
-        print(f"source  {src}")
-    failed = [c for c in checks if not c.passed]
-    print(f"\n{len(checks) - len(failed)} of {len(checks)} checks passed")
+    print(validate_text(checks))
     if args.json:
         write_atomic(args.json, json.dumps([c.to_dict() for c in checks], indent=2,
                                            ensure_ascii=False) + "\n")
-    return EXIT_CHECK_FAILED if failed else EXIT_OK
+    return EXIT_OK if all(c.passed for c in checks) else EXIT_CHECK_FAILED
 
 
 # --------------------------------------------------------------------------- explain
-_LABEL = 20          # width of the label column of the fixed-section answer
-_WIDTH = 100         # the answer fits an 100-column terminal
-
-
-def _section(label: str, text: str) -> list[str]:
-    import textwrap
-    out = []
-    for k, para in enumerate(str(text).split("\n")):
-        lines = textwrap.wrap(para, _WIDTH - _LABEL, break_on_hyphens=False) or [""]
-        for j, ln in enumerate(lines):
-            head = label if (k == 0 and j == 0) else ""
-            out.append(f"{head:<{_LABEL}}{ln}".rstrip())
-    return out
-
-
-def _unit(u: str) -> str:
-    return f" {u}" if u not in ("", "1") else ""
-
-
-def _explain_overview_text(ov) -> str:
-    out = [ov.title, "=" * len(ov.title)]
-    for mo in ov.measurands:
-        m = mo.measurand
-        out += ["", f"{m.name} = {m.expression}   (terms by share of u_c², largest first)"]
-        rows, sources = [], []
-        for r in mo.rows:
-            t = r.term
-            rows.append([t.name, fmt_value(t.value, t.standard_uncertainty) + _unit(t.unit),
-                         fmt_u(t.standard_uncertainty), t.distribution, fmt_dof(t.dof),
-                         fmt_num(t.sensitivity, 4), fmt_u(t.contribution),
-                         fmt_share(t.variance_share), t.evaluation])
-            sources.append(r.source)
-        headers = ["input", "estimate", "u(x)", "distribution", "ν", "c", "|c·u|", "share",
-                   "type"]
-        # the source column gets what is left of the 100 columns (at least 12 characters)
-        used = len(_table(headers, rows).split("\n")[1])
-        room = max(12, _WIDTH - used - 2)
-        for row, src in zip(rows, sources):
-            row.append(src if len(src) <= room else src[:room - 1] + "…")
-        table = _table(headers + ["source"], rows, right={1, 2, 4, 5, 6, 7})
-        out += [ln.rstrip() for ln in table.split("\n")]
-        mu = _unit(m.unit)
-        out.append(f"  {m.name} = {fmt_value(m.value, m.standard_uncertainty)}{mu}, "
-                   f"u_c = {fmt_u(m.standard_uncertainty)}{mu}, U = "
-                   f"{fmt_u(m.expanded_uncertainty)}{mu} (k = {m.coverage_factor:.2f}, "
-                   f"ν_eff = {fmt_dof(m.effective_dof)})")
-    out += ["", "budget explain SPEC TERM answers for one term"]
-    return "\n".join(out)
-
-
-def _distribution_words(d: dict, unit: str) -> str:
-    kind = d.get("kind", "")
-    if kind in ("normal", "student-t"):
-        extra = f", ν = {fmt_dof(d.get('dof'))}" if kind == "student-t" else ""
-        return f"{kind} (centre {d.get('loc', 0):.10g}, scale {d.get('scale', 0):.6g}{extra})"
-    if "low" in d:
-        return f"{kind} on [{d['low']:.10g}, {d['high']:.10g}]{_unit(unit)}"
-    return kind
-
-
-def _diagnostic_lines(d: dict, prefix: str = "") -> list[str]:
-    out = []
-    for k, v in d.items():
-        key = f"{prefix}{k}"
-        if k == "figures" and isinstance(v, list):
-            titles = [f.get("title") or f.get("id", "") for f in v if isinstance(f, dict)]
-            out.append(f"{key}: {'; '.join(titles)} (drawn in the report)")
-        elif isinstance(v, dict):
-            out += _diagnostic_lines(v, key + ".")
-        elif isinstance(v, list):
-            if not v:
-                out.append(f"{key}: none")
-            elif len(v) <= 6 and all(isinstance(x, (int, float, str, bool)) or x is None
-                                     for x in v):
-                out.append(f"{key}: " + ", ".join(fmt_num(x, 6) if isinstance(x, float)
-                                                  else str(x) for x in v))
-            else:
-                out.append(f"{key}: [{len(v)} entries; see --json]")
-        elif isinstance(v, float):
-            out.append(f"{key}: {fmt_num(v, 6)}")
-        else:
-            out.append(f"{key}: {v}")
-    return out
-
-
-def _explain_term_text(expl) -> str:
-    out: list[str] = []
-    shown: set[str] = set()          # modules whose diagnostics were printed already
-    for a in expl.answers:
-        t, unit, munit = a.term, _unit(a.term.unit), _unit(a.measurand_unit)
-        head = f"{t.name} in the budget of {a.measurand}   ({expl.title})"
-        out += ["", head, "-" * min(len(head), _WIDTH)] if out else [head, "-" * min(len(head), _WIDTH)]
-        out += _section("What it is", a.description or "(no description in the spec)")
-        out += _section("Estimate", f"{t.name} = {t.value:.12g}{unit}")
-        out += _section("Std uncertainty", f"u({t.name}) = {fmt_u(t.standard_uncertainty)}{unit}"
-                        f" (k = 1; full precision {t.standard_uncertainty:.6g})")
-        out += _section("Distribution", _distribution_words(a.distribution, t.unit))
-        out += _section("  why", a.distribution_reason or "(not stated)")
-        out += _section("Degrees of freedom", f"ν = {fmt_dof(t.dof)}")
-        out += _section("  why", a.dof_reason or "(not stated)")
-        c_line = f"c = ∂{a.measurand}/∂{t.name} = {a.derivative or '(not recorded)'}"
-        out += _section("Sensitivity", c_line)
-        check = ("" if a.derivative_value is None else
-                 f"; the derivative above evaluated at the estimates gives {a.derivative_value:.10g}")
-        out += _section("", f"= {t.sensitivity:.10g}{munit}{' per ' + t.unit if unit else ''}"
-                        f" at the input estimates{check}")
-        for name, expr in a.model:
-            out += _section("  model", f"{name} = {expr}")
-        if a.module_expression:
-            out += _section("  module", f"{a.module_input} = {a.module_expression} (the "
-                            f"'{a.module_kind}' module's expression, inlined into the model)")
-        out += _section("  how obtained", "exact symbolic partial derivative of the model with "
-                        "every earlier output and input-module expression substituted, "
-                        "evaluated at the input estimates (JCGM 100 eq. 10-11)")
-        out += _section("Contribution", f"c·u = {t.sensitivity * t.standard_uncertainty:.4g}"
-                        f"{munit}, |c·u| = {fmt_u(t.contribution)}{munit}; share of u_c² = "
-                        f"{fmt_share(t.variance_share)}")
-        kind = ("statistical analysis of series of observations (JCGM 100 §4.2)"
-                if t.evaluation == "A" else "other means than statistics of observations "
-                "(JCGM 100 §4.3)")
-        out += _section("Evaluation", f"Type {t.evaluation}: {kind}")
-        out += _section("Source", f"{a.method or '(not stated)'} [origin: {a.origin or '?'}]")
-        for f in a.files:
-            out += _section("  file", f"{f.path}" + (f", rows {f.rows}" if f.rows else ""))
-            out += _section("  sha256", f.sha256)
-        out += _section("Correlated with", ", ".join(f"{n} (r = {r:.3g})" for n, r in
-                                                     a.correlations) or "none")
-        if a.module_input in shown:
-            out += _section(f"Module '{a.module_kind}'", f"input [inputs.{a.module_input}]; "
-                            "its diagnostics are shown above")
-        elif a.module_input:
-            shown.add(a.module_input)
-            diag = _diagnostic_lines(a.diagnostics)
-            more = len(diag) - 40
-            diag = diag[:40] + ([f"… {more} more lines; see --json"] if more > 0 else [])
-            out += _section(f"Module '{a.module_kind}'", f"input [inputs.{a.module_input}]")
-            for ln in diag:
-                out += _section("", ln)
-        else:
-            out += _section("Module diagnostics", "none (not produced by an input module)")
-        for n in a.notes:
-            out += _section("Note", n)
-        for k, w in enumerate(a.what_if):
-            change = "" if k == 0 or w.relative_change is None else \
-                f" ({100 * w.relative_change:+.1f} %)"
-            out += _section("What if" if k == 0 else "",
-                            f"{w.label + ':':<20}U = {fmt_u(w.expanded_uncertainty)}{munit}{change}"
-                            f"; u_c = {fmt_u(w.standard_uncertainty)}, k = {w.coverage_factor:.2f}"
-                            f", ν_eff = {fmt_dof(w.effective_dof)}")
-        for ctn in a.cautions:
-            out += _section("Caution", ctn)
-    return "\n".join(out)
-
-
 def _add_explain(sub) -> None:
     p = sub.add_parser("explain", help="where each number of a budget comes from",
                        description="Without TERM: every term of every measurand, sorted by "
@@ -422,6 +209,7 @@ def _cmd_explain(args) -> int:
     from .explain import explain_term, overview
     from .outputs import check_writable, write_atomic
     from .record import load_record
+    from .text import explain_overview_text, explain_term_text
     if args.json:
         check_writable(args.json)
     if args.record:
@@ -439,10 +227,10 @@ def _cmd_explain(args) -> int:
         term = args.term
     if term is None:
         answer = overview(b, args.measurand)
-        print(_explain_overview_text(answer))
+        print(explain_overview_text(answer))
     else:
         answer = explain_term(b, term, args.measurand)
-        print(_explain_term_text(answer))
+        print(explain_term_text(answer))
     if args.json:
         try:
             text = json.dumps(answer.to_dict(), indent=2, ensure_ascii=False, allow_nan=False)
@@ -455,65 +243,6 @@ def _cmd_explain(args) -> int:
 
 
 # --------------------------------------------------------------------------- compare
-def _en_rows(rows) -> list[list[str]]:
-    out = []
-    for e in rows:
-        verdict = "–" if e.en is None else ("pass" if abs(e.en) <= 1 else "FAIL")
-        shared = ", ".join(e.shared) or "none"
-        out.append([e.a, e.b, fmt_value(e.difference, e.expanded_uncertainty or abs(e.difference)),
-                    fmt_u(e.expanded_uncertainty), "–" if e.en is None else f"{e.en:.2f}",
-                    verdict, shared if len(shared) <= 30 else shared[:29] + "…"])
-    return out
-
-
-def _compare_text(c, files: list[str]) -> str:
-    unit = _unit(c.unit)
-    head = f"Comparison of runs — {c.measurand}" + (f" ({c.unit})" if unit else "")
-    out = [head, "=" * len(head)]
-    rows = []
-    for r, f in zip(c.runs, files):
-        name = Path(f).name
-        rows.append([r.label, name if len(name) <= 24 else name[:23] + "…", r.date,
-                     fmt_value(r.value, r.expanded_uncertainty),
-                     f"{fmt_u(r.stated_expanded_uncertainty)} ({r.stated_coverage_factor:.2f})",
-                     fmt_u(r.expanded_uncertainty)])
-    out.append(_table(["run", "record", "date", "value", "U stated (k)", "U used (k = 2)"],
-                      rows, right={3, 4, 5}))
-    out = [ln.rstrip() for block in out for ln in block.split("\n")]
-    for r in c.runs:
-        out += _section(f"  {r.label}", r.title)
-    if c.reference is not None:
-        r = c.reference
-        src = f", from the record “{r.title}”" if c.reference_kind == "record" else ""
-        out += ["", f"reference: {fmt_value(r.value, r.expanded_uncertainty)} ± "
-                    f"{fmt_u(r.expanded_uncertainty)}{unit} (k = 2){src}"]
-    if c.mean is not None:
-        m = c.mean
-        out += ["", f"weighted mean x̄ = {fmt_value(m.value, m.internal_uncertainty)}{unit}, "
-                    f"internal u = {fmt_u(m.internal_uncertainty)}, external u = "
-                    f"{fmt_u(m.external_uncertainty)} (= R_B × internal)",
-                f"Birge ratio R_B = {fmt_num(m.birge_ratio, 3)}, χ² = {fmt_num(m.chi2, 4)} "
-                f"with ν = {m.dof}, p = {fmt_num(m.p_value, 3)}"]
-        if not math.isclose(m.uncertainty_with_shared, m.internal_uncertainty, rel_tol=1e-9):
-            out.append(f"u(x̄) with the shared terms' covariance = "
-                       f"{fmt_u(m.uncertainty_with_shared)}{unit}")
-    hdr = ["result", "against", "difference", "U(diff)", "E_n", "", "shared terms left out"]
-    what = "the reference" if c.reference is not None else "the weighted mean (run included in it)"
-    out += ["", f"E_n against {what}, k = 2 (ISO 13528):", _table(hdr, _en_rows(c.en),
-                                                                   right={2, 3, 4})]
-    if c.pairwise:
-        out += ["", "pairwise E_n:", _table(hdr, _en_rows(c.pairwise), right={2, 3, 4})]
-    out += ["", "shared terms (same source digest; correlation 1, left out of differences):"]
-    if not c.shared:
-        out.append("  none")
-    for s in c.shared:
-        basis = s.basis + (" " + ", ".join(d[:16] + "…" for d in s.digests) if s.digests else "")
-        out += _section(f"  {s.name}", f"{', '.join(s.runs)} — {basis} (Type {s.evaluation})")
-    for n in c.notes:
-        out += _section("note", n)
-    return "\n".join(ln.rstrip() for block in out for ln in block.split("\n"))
-
-
 def _add_compare(sub) -> None:
     p = sub.add_parser("compare", help="compare runs: weighted mean, Birge ratio, E_n",
                        description="Compare result records of several runs: a table of runs, "
@@ -545,6 +274,7 @@ def _cmd_compare(args) -> int:
     from .compare import ReferenceValue, compare_runs
     from .outputs import check_writable, write_atomic
     from .record import load_record
+    from .text import compare_text
     records = list(args.records)
     reference, ref_file = None, None
     if args.reference:
@@ -570,7 +300,7 @@ def _cmd_compare(args) -> int:
         raise UsageError("give at least one RECORD.json", field="RECORD")
     c = compare_runs(runs, measurand=args.measurand, reference=reference,
                      pairwise=args.pairwise, files=records + ([ref_file] if ref_file else []))
-    print(_compare_text(c, records))
+    print(compare_text(c, records))
     if args.pdf:
         from .report.compare_render import compare_pdf
         write_atomic(args.pdf, compare_pdf(c, files=[Path(f).name for f in records],
@@ -767,6 +497,7 @@ def _add_identity(sub) -> None:
 
 def _cmd_identity_create(args) -> int:
     from .signing import create_identity
+    from .text import identity_text
     out = Path(args.out)
     for f in ("identity.p12", "identity.pem"):  # refuse before asking for a passphrase
         if (out / f).exists() and not args.force:
@@ -774,11 +505,7 @@ def _cmd_identity_create(args) -> int:
                              field="--out")
     pw = _passphrase("Passphrase for the new identity: ", confirm=True)
     ident = create_identity(args.name, args.role, out, pw, force=args.force)
-    role = f" ({ident.role})" if ident.role else ""
-    print(f"identity for {ident.name}{role}")
-    print(f"  private key and certificate: {ident.p12_path} (keep it and its passphrase safe)")
-    print(f"  certificate for verifiers:   {ident.pem_path}")
-    print(f"  SHA-256 fingerprint: {ident.fingerprint}")
+    print(identity_text(ident))
     return EXIT_OK
 
 
@@ -831,7 +558,11 @@ def _cmd_sign(args) -> int:
                          field=missing.split(" ")[0])
     # check the evidence before asking for the passphrase; errors name the file it came from
     record_file = args.record or f"{args.report} (embedded record)"
-    pdf, note = _final_certificate(pdf, record_from_text(record, file=record_file), record_file)
+    from .report import final_from_draft
+    pdf, final = final_from_draft(pdf, record_from_text(record, file=record_file),
+                                  record_file=record_file)
+    note = (" (the final certificate, rendered from the reviewed draft's record without the "
+            "DRAFT watermark)") if final else ""
     manifest = input_manifest(record, spec, spec_name=args.spec)
     pw = _passphrase(f"Passphrase for {args.identity}: ")
     try:
@@ -844,33 +575,6 @@ def _cmd_sign(args) -> int:
     write_atomic(args.output, signed)
     print(f"signed {args.report} -> {args.output}{note}")
     return EXIT_OK
-
-
-def _final_certificate(pdf: bytes, b, record_file: str) -> tuple[bytes, str]:
-    """A certificate *draft* is signed as the final certificate rendered from the same record
-    (``b``, the Budget read from the file named ``record_file``).
-
-    The draft carries the SHA-256 of the record it shows; the record given to ``sign`` must have
-    that digest, so the approver signs exactly the numbers they reviewed, and the DRAFT
-    watermark disappears only in the signed file.
-    """
-    import hashlib
-
-    from .errors import DataError
-    from .report import document_info, read_document_info, render_html, render_pdf_layout
-    from .report.render import DOCUMENT_INFO_KEY, RECORD_INFO_KEY
-    info = read_document_info(pdf)
-    if info.get(DOCUMENT_INFO_KEY) != "certificate-draft":
-        return pdf, ""
-    digest = hashlib.sha256(b.to_json().encode("utf-8")).hexdigest()
-    if digest != info.get(RECORD_INFO_KEY):
-        raise DataError("this record is not the one the certificate draft was rendered from "
-                        "(its SHA-256 differs from the draft's)",
-                        file=record_file, field="record")
-    rendered = render_pdf_layout(render_html(b, certificate=True, draft=False),
-                                 info=document_info(b, certificate=True, draft=False))
-    return rendered.pdf, (" (the final certificate, rendered from the reviewed draft's record "
-                          "without the DRAFT watermark)")
 
 
 def _add_verify(sub) -> None:
@@ -893,23 +597,16 @@ def _cmd_verify(args) -> int:
     import tempfile
 
     from .archive import is_archive, recompute, restore
+    from .text import recompute_text, signatures_text, verdict_text
     from .verify import verify_pdf
     _quiet_library_logs()
     pdf = _read_input(args.signed, "signed")
     if args.inputs and not Path(args.inputs).is_dir():
         raise UsageError("is not a folder", file=args.inputs, field="--inputs")
     res = verify_pdf(pdf, args.trust, file=args.signed)
-    yes = {True: "yes", False: "NO"}
-    for s in res.signatures:
-        role = f" ({s.role})" if s.role else ""
-        print(f"signature '{s.field}': {s.signer or 'unknown signer'}{role}, signed "
-              f"{s.signing_time or 'at an unknown time'} (signer's clock)")
-        print(f"  intact: {yes[s.intact]}   trusted: {yes[s.trusted]}   "
-              f"changes after signing: {s.modification}")
-    if res.manifest is not None:
-        m = res.manifest
-        print(f"evidence: record, spec {m.get('spec', {}).get('file', '?')} "
-              f"and {len(m.get('files', []))} input file(s) in the manifest")
+    found = signatures_text(res)
+    if found:  # shown before the re-run, which takes a while and may fail
+        print(found)
     problems = list(res.problems)
     if args.inputs and res.spec is not None and res.record is not None and \
             res.manifest is not None:
@@ -917,20 +614,12 @@ def _cmd_verify(args) -> int:
             folder = restore(args.inputs, tmp).parent if is_archive(args.inputs) \
                 else Path(args.inputs)
             chk = recompute(res.spec, res.record, res.manifest, folder)
-        for f in chk.files:
-            print(f"input {f.path}: {f.status}")
-        print(f"recomputed record: {'identical' if chk.record_identical else 'DIFFERENT'}")
+        print(recompute_text(chk))
         problems += list(chk.problems)
     elif args.inputs:
         problems.append("no embedded spec, record and manifest to re-run")
-    if problems:
-        for p in problems:
-            print(f"FAILED: {p}")
-        print(f"verification failed ({len(problems)} problem{'s' if len(problems) > 1 else ''})")
-        return EXIT_CHECK_FAILED
-    print("verified: intact, trusted, unchanged since signing"
-          + ("; inputs and record reproduced" if args.inputs else ""))
-    return EXIT_OK
+    print(verdict_text(problems, inputs_checked=bool(args.inputs)))
+    return EXIT_CHECK_FAILED if problems else EXIT_OK
 
 
 # --------------------------------------------------------------------------- report

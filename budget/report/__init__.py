@@ -19,6 +19,7 @@ from .render import (
     RenderedPdf,
     SignatureBox,
     document_info,
+    final_from_draft,
     looks_signed,
     read_document_info,
     read_signature_box,
@@ -28,6 +29,6 @@ from .render import (
 )
 
 __all__ = ["render_html", "render_pdf", "render_pdf_layout", "RenderedPdf", "SignatureBox",
-           "DataOnlyFetcher", "read_signature_box", "looks_signed", "document_info",
+           "DataOnlyFetcher", "read_signature_box", "looks_signed", "document_info", "final_from_draft",
            "read_document_info", "SIGNATURE_FIELD_ID", "SIGNATURE_FIELD_MM",
            "SIGNATURE_INFO_KEY"]

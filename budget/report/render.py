@@ -229,6 +229,42 @@ def read_document_info(pdf: bytes) -> dict[str, str]:
             if "/" + k in info}
 
 
+def final_from_draft(pdf: bytes, budget: Budget, *, record_file: str | None = None
+                     ) -> tuple[bytes, bool]:
+    """The PDF to sign: a certificate *draft* becomes the final certificate rendered again from
+    the same record; anything else is returned unchanged.
+
+    The draft carries the SHA-256 of the record it shows (:func:`document_info`); ``budget``
+    must have that digest, so the approver signs exactly the numbers they reviewed, and the DRAFT
+    watermark disappears only in the signed file.
+
+    Returns
+    -------
+    pdf : bytes
+    final : bool
+        True when a draft was replaced by the final certificate.
+
+    Raises
+    ------
+    DataError
+        When ``budget`` is not the record the draft was rendered from.
+    """
+    import hashlib
+
+    from ..errors import DataError
+    info = read_document_info(pdf)
+    if info.get(DOCUMENT_INFO_KEY) != "certificate-draft":
+        return pdf, False
+    digest = hashlib.sha256(budget.to_json().encode("utf-8")).hexdigest()
+    if digest != info.get(RECORD_INFO_KEY):
+        raise DataError("this record is not the one the certificate draft was rendered from "
+                        "(its SHA-256 differs from the draft's)", file=record_file,
+                        field="record")
+    rendered = render_pdf_layout(render_html(budget, certificate=True, draft=False),
+                                 info=document_info(budget, certificate=True, draft=False))
+    return rendered.pdf, True
+
+
 def render_pdf_layout(html: str, *, fetcher=None, info: dict[str, str] | None = None
                       ) -> RenderedPdf:
     """Lay out ``html`` on A4 pages and write the PDF; locate the signature field.

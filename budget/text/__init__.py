@@ -1,0 +1,32 @@
+"""Plain-text renderers of library results, as the ``budget`` command shows them.
+
+Each renderer is a free function of a result object that returns a string (lines joined by
+``"\\n"``, no trailing newline); none of them prints, reads arguments or writes files — that
+is :mod:`budget.cli`'s job. Numbers are rounded by :mod:`budget.fmt` only.
+
+Modules
+-------
+tables          the generic column table and the label-column layout of fixed-section answers
+budget_table    ``budget run``: the budget table and result lines of a Budget
+explain_text    ``budget explain``: the overview and the fixed-section answer for one term
+compare_text    ``budget compare``: runs, weighted mean, Birge ratio, E_n
+evidence_text   ``budget validate``, ``budget identity create``, ``budget verify``
+"""
+
+from __future__ import annotations
+
+from .budget_table import budget_text
+from .compare_text import compare_text
+from .evidence_text import (
+    identity_text,
+    recompute_text,
+    signatures_text,
+    validate_text,
+    verdict_text,
+)
+from .explain_text import explain_overview_text, explain_term_text
+from .tables import section, table
+
+__all__ = ["budget_text", "compare_text", "explain_overview_text", "explain_term_text",
+           "identity_text", "recompute_text", "section", "signatures_text", "table",
+           "validate_text", "verdict_text"]

@@ -1,0 +1,70 @@
+"""The budget table and result lines of a Budget, as ``budget run`` shows them."""
+
+from __future__ import annotations
+
+import math
+from typing import TYPE_CHECKING
+
+from ..fmt import fmt_dof, fmt_num, fmt_share, fmt_u, fmt_value
+from .tables import table
+
+if TYPE_CHECKING:  # pragma: no cover - annotations only
+    from ..result import Budget
+
+__all__ = ["budget_text"]
+
+_HEADERS = ["input", "estimate", "u(x)", "distribution", "ν", "c", "|c·u|", "share of u_c²"]
+
+
+def budget_text(b: Budget) -> str:
+    """The budget table(s) and result lines of a Budget.
+
+    Parameters
+    ----------
+    b : Budget
+        An evaluated budget (from :func:`budget.evaluate` or a stored record).
+
+    Returns
+    -------
+    str
+        The title, then for each measurand its model, its terms by share of u_c² (largest
+        first), the estimate with u_c and ν_eff, the result with U and k, the second-order
+        contribution if any and the Monte Carlo comparison if it ran; then the run's notes.
+        Numbers are rounded by :mod:`budget.fmt` (two significant digits of uncertainties).
+    """
+    out = [b.title, "=" * len(b.title)]
+    for m in b.measurands:
+        unit = f" {m.unit}" if m.unit else ""   # unlike the estimate column, shows a unit "1"
+        out.append("")
+        out.append(f"{m.name} = {m.expression}")
+        rows = []
+        for t in sorted(m.terms, key=lambda t: -t.variance_share):
+            rows.append([t.name, fmt_value(t.value, t.standard_uncertainty)
+                         + (f" {t.unit}" if t.unit not in ("", "1") else ""),
+                         fmt_u(t.standard_uncertainty), t.distribution, fmt_dof(t.dof),
+                         fmt_num(t.sensitivity, 4), fmt_u(t.contribution),
+                         fmt_share(t.variance_share)])
+        out.append(table(_HEADERS, rows))
+        out.append("")
+        p = m.coverage_probability
+        out.append(f"  {m.name} = {fmt_value(m.value, m.standard_uncertainty)}{unit}, "
+                   f"u_c = {fmt_u(m.standard_uncertainty)}{unit}, ν_eff = {fmt_dof(m.effective_dof)}")
+        out.append(f"  result: {m.name} = ({fmt_value(m.value, m.expanded_uncertainty)} ± "
+                   f"{fmt_u(m.expanded_uncertainty)}){unit}, U with k = {m.coverage_factor:.2f} "
+                   f"for a coverage probability of about {100 * p:g} %")
+        if m.second_order_variance:
+            out.append(f"  includes second-order terms: "
+                       f"{fmt_u(math.sqrt(abs(m.second_order_variance)))}{unit} in quadrature")
+        mc = b.mc(m.name)
+        if mc is not None:
+            verdict = "validated" if mc.validated else "NOT validated"
+            out.append(f"  Monte Carlo ({mc.trials:,} trials{', adaptive' if mc.adaptive else ''}): "
+                       f"y = {fmt_value(mc.value, mc.standard_uncertainty)}, "
+                       f"u = {fmt_u(mc.standard_uncertainty)}, {100 * p:g} % {mc.interval_kind} "
+                       f"interval [{fmt_value(mc.interval_low, mc.standard_uncertainty)}, "
+                       f"{fmt_value(mc.interval_high, mc.standard_uncertainty)}]")
+            out.append(f"  linear result {verdict} (JCGM 101 §8: d_low = {fmt_num(mc.d_low, 2)}, "
+                       f"d_high = {fmt_num(mc.d_high, 2)}, δ = {fmt_num(mc.tolerance, 2)})")
+    for note in b.run.get("notes", []):
+        out.append(f"note: {note}")
+    return "\n".join(out)

@@ -1,0 +1,207 @@
+"""The answers of ``budget explain`` as text: the overview of every term, and the
+fixed-section answer for one term (the auditor's "where does this number come from?")."""
+
+from __future__ import annotations
+
+from typing import TYPE_CHECKING
+
+from ..fmt import fmt_dof, fmt_num, fmt_share, fmt_u, fmt_value
+from .tables import WIDTH, section, table
+from .tables import unit_suffix as _unit
+
+if TYPE_CHECKING:  # pragma: no cover - annotations only
+    from ..explain import Explanation, Overview
+
+__all__ = ["diagnostic_lines", "distribution_words", "explain_overview_text",
+           "explain_term_text"]
+
+_MAX_DIAGNOSTIC_LINES = 40   # longer module diagnostics are cut; --json holds them all
+
+
+def explain_overview_text(ov: Overview) -> str:
+    """Every term of every measurand of an :func:`budget.explain.overview`, largest share first.
+
+    Parameters
+    ----------
+    ov : Overview
+        The overview answer.
+
+    Returns
+    -------
+    str
+        Per measurand a table of the terms (estimate, u, distribution, ν, c, |c·u|, share,
+        Type A/B and the source, cut to fit :data:`~budget.text.tables.WIDTH` columns), then
+        the result line; then a hint how to ask about one term.
+    """
+    out = [ov.title, "=" * len(ov.title)]
+    for mo in ov.measurands:
+        m = mo.measurand
+        out += ["", f"{m.name} = {m.expression}   (terms by share of u_c², largest first)"]
+        rows, sources = [], []
+        for r in mo.rows:
+            t = r.term
+            rows.append([t.name, fmt_value(t.value, t.standard_uncertainty) + _unit(t.unit),
+                         fmt_u(t.standard_uncertainty), t.distribution, fmt_dof(t.dof),
+                         fmt_num(t.sensitivity, 4), fmt_u(t.contribution),
+                         fmt_share(t.variance_share), t.evaluation])
+            sources.append(r.source)
+        headers = ["input", "estimate", "u(x)", "distribution", "ν", "c", "|c·u|", "share",
+                   "type"]
+        # the source column gets what is left of the 100 columns (at least 12 characters)
+        used = len(table(headers, rows).split("\n")[1])
+        room = max(12, WIDTH - used - 2)
+        for row, src in zip(rows, sources):
+            row.append(src if len(src) <= room else src[:room - 1] + "…")
+        tab = table(headers + ["source"], rows, right={1, 2, 4, 5, 6, 7})
+        out += [ln.rstrip() for ln in tab.split("\n")]
+        mu = _unit(m.unit)
+        out.append(f"  {m.name} = {fmt_value(m.value, m.standard_uncertainty)}{mu}, "
+                   f"u_c = {fmt_u(m.standard_uncertainty)}{mu}, U = "
+                   f"{fmt_u(m.expanded_uncertainty)}{mu} (k = {m.coverage_factor:.2f}, "
+                   f"ν_eff = {fmt_dof(m.effective_dof)})")
+    out += ["", "budget explain SPEC TERM answers for one term"]
+    return "\n".join(out)
+
+
+def distribution_words(d: dict, unit: str) -> str:
+    """A distribution's ``to_dict()`` in words: ``"rectangular on [-1, 1] Ω"``.
+
+    Parameters
+    ----------
+    d : dict
+        The distribution as stored in the record (``kind`` plus its parameters).
+    unit : str
+        The quantity's unit, shown after bounds.
+    """
+    kind = d.get("kind", "")
+    if kind in ("normal", "student-t"):
+        extra = f", ν = {fmt_dof(d.get('dof'))}" if kind == "student-t" else ""
+        return f"{kind} (centre {d.get('loc', 0):.10g}, scale {d.get('scale', 0):.6g}{extra})"
+    if "low" in d:
+        return f"{kind} on [{d['low']:.10g}, {d['high']:.10g}]{_unit(unit)}"
+    return kind
+
+
+def diagnostic_lines(d: dict, prefix: str = "") -> list[str]:
+    """An input module's diagnostics as ``key: value`` lines.
+
+    Parameters
+    ----------
+    d : dict
+        JSON-ready diagnostics; nested dicts become dotted keys.
+    prefix : str, default ""
+        Put before every key (used for the nesting).
+
+    Returns
+    -------
+    list of str
+        One line per leaf. Figures are listed by title (the report draws them); lists of up
+        to six plain values are shown, longer ones are counted; floats get 6 significant digits.
+    """
+    out = []
+    for k, v in d.items():
+        key = f"{prefix}{k}"
+        if k == "figures" and isinstance(v, list):
+            titles = [f.get("title") or f.get("id", "") for f in v if isinstance(f, dict)]
+            out.append(f"{key}: {'; '.join(titles)} (drawn in the report)")
+        elif isinstance(v, dict):
+            out += diagnostic_lines(v, key + ".")
+        elif isinstance(v, list):
+            if not v:
+                out.append(f"{key}: none")
+            elif len(v) <= 6 and all(isinstance(x, (int, float, str, bool)) or x is None
+                                     for x in v):
+                out.append(f"{key}: " + ", ".join(fmt_num(x, 6) if isinstance(x, float)
+                                                  else str(x) for x in v))
+            else:
+                out.append(f"{key}: [{len(v)} entries; see --json]")
+        elif isinstance(v, float):
+            out.append(f"{key}: {fmt_num(v, 6)}")
+        else:
+            out.append(f"{key}: {v}")
+    return out
+
+
+def explain_term_text(expl: Explanation) -> str:
+    """The fixed-section answer for one term, once per measurand whose budget holds it.
+
+    Parameters
+    ----------
+    expl : Explanation
+        From :func:`budget.explain.explain_term`.
+
+    Returns
+    -------
+    str
+        Sections in a fixed order: what it is, estimate, standard uncertainty, distribution
+        and ν with their reasons, the sensitivity (symbolic derivative and its value), the
+        contribution, Type A/B, source files with SHA-256, correlations, the module's
+        diagnostics (once per module; at most 40 lines), notes, what-if lines and cautions.
+    """
+    out: list[str] = []
+    shown: set[str] = set()          # modules whose diagnostics were shown already
+    for a in expl.answers:
+        t, unit, munit = a.term, _unit(a.term.unit), _unit(a.measurand_unit)
+        head = f"{t.name} in the budget of {a.measurand}   ({expl.title})"
+        out += ["", head, "-" * min(len(head), WIDTH)] if out else [head, "-" * min(len(head), WIDTH)]
+        out += section("What it is", a.description or "(no description in the spec)")
+        out += section("Estimate", f"{t.name} = {t.value:.12g}{unit}")
+        out += section("Std uncertainty", f"u({t.name}) = {fmt_u(t.standard_uncertainty)}{unit}"
+                       f" (k = 1; full precision {t.standard_uncertainty:.6g})")
+        out += section("Distribution", distribution_words(a.distribution, t.unit))
+        out += section("  why", a.distribution_reason or "(not stated)")
+        out += section("Degrees of freedom", f"ν = {fmt_dof(t.dof)}")
+        out += section("  why", a.dof_reason or "(not stated)")
+        c_line = f"c = ∂{a.measurand}/∂{t.name} = {a.derivative or '(not recorded)'}"
+        out += section("Sensitivity", c_line)
+        check = ("" if a.derivative_value is None else
+                 f"; the derivative above evaluated at the estimates gives {a.derivative_value:.10g}")
+        out += section("", f"= {t.sensitivity:.10g}{munit}{' per ' + t.unit if unit else ''}"
+                       f" at the input estimates{check}")
+        for name, expr in a.model:
+            out += section("  model", f"{name} = {expr}")
+        if a.module_expression:
+            out += section("  module", f"{a.module_input} = {a.module_expression} (the "
+                           f"'{a.module_kind}' module's expression, inlined into the model)")
+        out += section("  how obtained", "exact symbolic partial derivative of the model with "
+                       "every earlier output and input-module expression substituted, "
+                       "evaluated at the input estimates (JCGM 100 eq. 10-11)")
+        out += section("Contribution", f"c·u = {t.sensitivity * t.standard_uncertainty:.4g}"
+                       f"{munit}, |c·u| = {fmt_u(t.contribution)}{munit}; share of u_c² = "
+                       f"{fmt_share(t.variance_share)}")
+        kind = ("statistical analysis of series of observations (JCGM 100 §4.2)"
+                if t.evaluation == "A" else "other means than statistics of observations "
+                "(JCGM 100 §4.3)")
+        out += section("Evaluation", f"Type {t.evaluation}: {kind}")
+        out += section("Source", f"{a.method or '(not stated)'} [origin: {a.origin or '?'}]")
+        for f in a.files:
+            out += section("  file", f"{f.path}" + (f", rows {f.rows}" if f.rows else ""))
+            out += section("  sha256", f.sha256)
+        out += section("Correlated with", ", ".join(f"{n} (r = {r:.3g})" for n, r in
+                                                    a.correlations) or "none")
+        if a.module_input in shown:
+            out += section(f"Module '{a.module_kind}'", f"input [inputs.{a.module_input}]; "
+                           "its diagnostics are shown above")
+        elif a.module_input:
+            shown.add(a.module_input)
+            diag = diagnostic_lines(a.diagnostics)
+            more = len(diag) - _MAX_DIAGNOSTIC_LINES
+            diag = diag[:_MAX_DIAGNOSTIC_LINES] + ([f"… {more} more lines; see --json"]
+                                                   if more > 0 else [])
+            out += section(f"Module '{a.module_kind}'", f"input [inputs.{a.module_input}]")
+            for ln in diag:
+                out += section("", ln)
+        else:
+            out += section("Module diagnostics", "none (not produced by an input module)")
+        for n in a.notes:
+            out += section("Note", n)
+        for k, w in enumerate(a.what_if):
+            change = "" if k == 0 or w.relative_change is None else \
+                f" ({100 * w.relative_change:+.1f} %)"
+            out += section("What if" if k == 0 else "",
+                           f"{w.label + ':':<20}U = {fmt_u(w.expanded_uncertainty)}{munit}{change}"
+                           f"; u_c = {fmt_u(w.standard_uncertainty)}, k = {w.coverage_factor:.2f}"
+                           f", ν_eff = {fmt_dof(w.effective_dof)}")
+        for ctn in a.cautions:
+            out += section("Caution", ctn)
+    return "\n".join(out)
