@@ -16,6 +16,7 @@ from .inputs import InputContext, run_module
 from .inputs.direct import evaluate_direct, observations_of
 from .model import Model, build_model
 from .propagate import McmSettings, compare_lpu_mcm, monte_carlo, propagate_linear
+from .propagate.mcm import adaptive_batch_size
 from .quantity import Quantity
 from .result import Budget, Measurand, MonteCarlo, Term
 from .spec import Spec, check_trials
@@ -183,6 +184,17 @@ def evaluate(spec: Spec, *, trials: int | None | str = "spec", seed: int | None 
     except BudgetError as exc:
         raise _at_spec(exc, spec) from None
     measurands = tuple(_measurand(spec, model, lin[o], qs) for o in model.outputs)
+    # A first-order term that vanishes at the estimates (Y = X² or abs(X) at X = 0) drops an
+    # uncertain input from u_c without a trace; say so rather than let u_c look exact.
+    for m in measurands:
+        flat = [t.name for t in m.terms if t.sensitivity == 0.0 and t.standard_uncertainty > 0]
+        if flat:
+            notes.append(f"{m.name}: the sensitivity coefficient of {', '.join(flat)} is zero at "
+                         "the input estimates, so the linear propagation gives "
+                         f"{'it' if len(flat) == 1 else 'them'} no first-order contribution; "
+                         + ("check with propagation_order = 2 or the Monte Carlo result"
+                            if spec.propagation_order == 1 else
+                            "the second-order terms are included; compare with Monte Carlo"))
     sd = np.sqrt(np.clip(np.diag(cov), 0, None))
     with np.errstate(divide="ignore", invalid="ignore"):
         cm = np.where(np.outer(sd, sd) > 0, cov / np.outer(sd, sd), 0.0)
@@ -197,6 +209,15 @@ def evaluate(spec: Spec, *, trials: int | None | str = "spec", seed: int | None 
     if seed is None:
         seed = int(np.random.SeedSequence().entropy % (2 ** 63))
     mcs: tuple[MonteCarlo, ...] = ()
+    if enabled and n_trials is None and spec.max_trials < adaptive_batch_size(
+            spec.coverage_probability):
+        # the adaptive procedure runs whole batches: a cap below one batch would be overrun by
+        # the first batch while the notes claimed the run stopped at the cap
+        raise SpecError(f"must be at least one adaptive batch, M = max(⌈100/(1 − p)⌉, 10⁴) = "
+                        f"{adaptive_batch_size(spec.coverage_probability):,} trials (JCGM 101 "
+                        f"§7.9.4); got {spec.max_trials:,}", file=spec.path,
+                        line=spec.line_of(("monte_carlo",), "max_trials"),
+                        field="monte_carlo.max_trials")
     if enabled:
         settings = McmSettings(trials=n_trials, seed=seed,
                                coverage_probability=spec.coverage_probability,

@@ -29,6 +29,7 @@ def dof_out(nu: float) -> float | None:
 
 
 def dof_in(nu: float | None) -> float:
+    """Degrees of freedom read from JSON: ``None`` stands for infinity (inverse of dof_out)."""
     return math.inf if nu is None else float(nu)
 
 

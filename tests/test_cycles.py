@@ -201,7 +201,8 @@ def test_flicker_records_widened_while_naive_fails():
     # that cutoff; with 1/(8T) it is ≈ 1.15× the Allan floor (ln-law, SP 1065 §flicker FM;
     # measured with this generator while writing the test), so the floor convention covers a
     # little less than 95 %: 0.923 was found with 1000 records of this generator (another
-    # seed). Bounds: ours ≥ 0.923 − 3.1 sd of a binomial fraction of 200; the naive s/√n
+    # seed), in line with 2Φ(1.96/√1.15) − 1 = 0.932 for a variance 1.15× the one used
+    # (derivation). Bounds: ours ≥ 0.923 − 3.1 sd of a binomial fraction of 200; the naive s/√n
     # covered 0.213 and must stay below 0.5; the verdict must flag ≥ 90 % of the records
     # (0.989 found).
     rng = np.random.default_rng(31)

@@ -33,6 +33,7 @@ def test_same_seed_gives_byte_identical_record(tmp_path):
     a, b = (o.read_bytes() for o in outs)
     assert a == b
     rec = json.loads(a)
+    # the --seed given above and the trials = 2000 of evidence_helpers.SPEC
     assert rec["run"]["seed"] == 12345 and rec["monte_carlo"][0]["trials"] == 2000
     assert rec["run"]["files"][0]["path"] == "data/cal.csv"  # a data-file input is included
     # the same in this process (another interpreter state altogether)

@@ -132,6 +132,7 @@ def test_comparison_file_with_aging_from_last_row(tmp_path):
       "noise": "pink"}, "inputs.f.noise"),
     ({"offset_bound": 1e-11, "drift": "linear"}, "inputs.f.drift"),
     ({"file": "cmp.csv", "offset": 0.0, "at": "2026-11-01"}, "inputs.f.offset"),
+    ({"offset": -2.0, "offset_uncertainty": 1e-11}, "inputs.f.offset"),   # f/f_nom − 1 < −1
 ])
 def test_bad_options(tmp_path, table, field):
     write_comparisons(tmp_path, ["2026-10-01,1e-11", "2026-10-31,1.1e-11"])
@@ -151,6 +152,7 @@ def test_nominal_required_positive(tmp_path):
     (["2026-10-01,1e-11", "yesterday,1e-11"], "2026-11-01", 2, "date"),
     (["2026-10-01,1e-11", "2026-10-02,abc"], "2026-11-01", 2, "fractional_offset"),
     (["2026-10-05,1e-11", "2026-10-01,1e-11"], "2026-09-01", 2, "date"),  # before first
+    (["2026-10-01,1e-11", "2026-10-02,500000000.0"], "2026-11-01", 2, "fractional_offset"),  # Hz
 ])
 def test_bad_comparison_file(tmp_path, rows, at, row, col):
     write_comparisons(tmp_path, rows)

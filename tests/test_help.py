@@ -37,6 +37,8 @@ def test_the_commands_the_issues_ask_for_exist():
 
 @pytest.mark.parametrize("name,sub,short", COMMANDS, ids=[c[0] for c in COMMANDS])
 def test_command_has_help_and_is_in_readme(name, sub, short):
+    # lengths are a floor against empty or placeholder text (a few words; a sentence), not a
+    # style rule
     assert short and len(short) > 10, f"'{name}' has no one-line help"
     assert sub.description and len(sub.description) > 40, f"'{name}' has no description"
     for action in sub._actions:

@@ -442,6 +442,31 @@ def test_second_order_square_of_normal(tmp_path):
     assert m.standard_uncertainty ** 2 == pytest.approx(4.125, rel=1e-12)
 
 
+def test_vanishing_sensitivity_is_noted(tmp_path):
+    # Y = X² at X = 0: ∂Y/∂X = 2X = 0 (by hand), so the first order gives u_c = 0 although
+    # u(X) = 0.5; the record must say so. Second order: V(X²) = 4μ²σ² + 2σ⁴ = 2·0.5⁴ = 0.125
+    # (moments of the normal distribution, as in the test above).
+    text = """
+        [budget]
+        propagation_order = {order}
+        [model]
+        Y = "X ** 2"
+        [inputs.X]
+        value = 0.0
+        standard_uncertainty = 0.5
+    """
+    first = run(tmp_path, text.format(order=1))
+    assert first.measurand("Y").standard_uncertainty == 0.0
+    assert any("sensitivity coefficient of X is zero" in n and "propagation_order = 2" in n
+               for n in first.run["notes"])
+    second = run(tmp_path, text.format(order=2))
+    assert second.measurand("Y").standard_uncertainty ** 2 == pytest.approx(0.125, rel=1e-12)
+    assert any("second-order terms are included" in n for n in second.run["notes"])
+    # a model whose sensitivities do not vanish carries no such note
+    assert not any("is zero at the input estimates" in n
+                   for n in run(tmp_path, WS_SPEC).run["notes"])
+
+
 def test_second_order_with_correlations_refused(tmp_path):
     p = tmp_path / "spec.toml"
     with pytest.raises(SpecError) as info:
@@ -486,6 +511,23 @@ def test_chained_outputs_and_their_covariance(tmp_path):
     assert b.correlation_matrix[0][1] == pytest.approx(1.0, rel=1e-12)
     # the term rows of B are the inputs x and y, with sensitivities 2 (by hand)
     assert {t.name: t.sensitivity for t in b.measurand("B").terms} == {"x": 2.0, "y": 2.0}
+
+
+def test_linear_result_serialises_to_plain_json():
+    # contract for result objects: a JSON-ready to_dict(); numbers by hand as in the
+    # Welch–Satterthwaite example above (c = 1, 2; u_c = 0.5; ν = ∞ here, written as null)
+    import json
+
+    from budget.distributions import Distribution
+    from budget.propagate import propagate_linear
+    from budget.quantity import Quantity
+    qs = [Quantity(name=n, value=v, standard_uncertainty=u, distribution=Distribution.normal(v, u))
+          for n, v, u in (("X1", 10.0, 0.3), ("X2", 5.0, 0.2))]
+    model = build_model({"Y": "X1 + 2 * X2"}, quantities={"X1", "X2"}, constants={})
+    lin, _ = propagate_linear(model, qs, np.eye(2), coverage_probability=0.95)
+    d = json.loads(json.dumps(lin["Y"].to_dict(), allow_nan=False))
+    assert d["sensitivities"] == [1.0, 2.0] and d["effective_dof"] is None
+    assert d["standard_uncertainty"] == pytest.approx(0.5, rel=1e-12)
 
 
 def test_derivative_text_recorded_for_the_auditor(tmp_path):

@@ -25,7 +25,7 @@ from scipy import optimize, stats
 
 from budget import evaluate, load_spec
 from budget.distributions import Distribution
-from budget.errors import ComputationError
+from budget.errors import ComputationError, SpecError
 from budget.model import build_model
 from budget.propagate import mcm
 from budget.propagate.mcm import McmSettings, coverage_intervals, monte_carlo
@@ -292,6 +292,26 @@ def test_adaptive_stops_at_max_trials():
     assert res.trials <= 50_000
 
 
+def test_max_trials_below_one_batch_is_refused(tmp_path):
+    # M = max(⌈100/(1 − p)⌉, 10⁴) = 10⁴ at p = 0.95 (JCGM 101 §7.9.4): whole batches only, so a
+    # cap of 5000 could never hold and is a located spec error instead of an overrun
+    assert mcm.adaptive_batch_size(0.95) == 10_000
+    assert mcm.adaptive_batch_size(0.999) == 100_000
+    with pytest.raises(SpecError) as info:
+        run(tmp_path, """
+            [model]
+            Y = "X"
+            [monte_carlo]
+            trials = "adaptive"
+            max_trials = 5000
+            [inputs.X]
+            value = 0.0
+            standard_uncertainty = 1.0
+        """)
+    assert info.value.field == "monte_carlo.max_trials" and info.value.line == 6
+    assert "10,000" in info.value.message
+
+
 # --------------------------------------------------------------------------- correlated sampling
 def test_correlated_gaussian_pair_through_sums(tmp_path):
     # Y1 = a + b and Y2 = a − b with u_a = u_b = 1 and r = 0.8: V(Y1) = 2 + 2r = 3.6,
@@ -462,7 +482,8 @@ def test_same_seed_same_result_and_different_seed_differs():
 
 
 def test_non_finite_trials_are_refused(tmp_path):
-    # sqrt of a rectangular quantity on [−1, 1] is undefined for half the trials
+    # sqrt(x + 1.5) with x rectangular on [−2, 0] is undefined for the quarter of the trials
+    # with x < −1.5
     p = tmp_path / "spec.toml"
     with pytest.raises(ComputationError) as info:
         run(tmp_path, """
@@ -481,8 +502,25 @@ def test_non_finite_trials_are_refused(tmp_path):
     assert err.field == "model.Y" and err.file == str(p)
 
 
+def test_results_serialise_to_plain_json():
+    # the project's contract for result objects: frozen dataclasses with a JSON-ready to_dict()
+    import json
+    res = mc_of({"Y": "X"}, [q("X", Distribution.normal(0.0, 1.0))], trials=10_000)["Y"]
+    d = json.loads(json.dumps(res.to_dict(), allow_nan=False))
+    assert d["trials"] == 10_000 and d["symmetric"] == list(res.symmetric)
+    v = compare_lpu_mcm(0.0, 1.96, 1.0, -1.95, 1.97, ndig=2)
+    # δ = 0.05 for u = 1.0 at two digits (see test_numerical_tolerance_examples); d = 0.01
+    assert json.loads(json.dumps(v.to_dict())) == {"tolerance": pytest.approx(0.05),
+                                                   "d_low": pytest.approx(0.01),
+                                                   "d_high": pytest.approx(0.01),
+                                                   "validated": True}
+
+
 def test_histogram_counts_cover_the_samples():
     res = mc_of({"Y": "X"}, [q("X", Distribution.normal(0.0, 1.0))], trials=100_000)["Y"]
     assert len(res.histogram_edges) == len(res.histogram_counts) + 1
-    # the histogram spans the central 99.9 % (0.05 % cut each side): ~99.9 % of the trials
+    # the histogram spans the central 99.9 % (0.05 % cut each side): ~99.9 % of the trials.
+    # Its edges are the sample's own 0.05 % and 99.95 % quantiles, so the count is fixed up to
+    # the handling of the edge values; 60 trials (far above the ±2 of interpolated quantiles)
+    # only guards against a wrong cut, e.g. 1 % (1000 trials off) or no cut (100 off).
     assert sum(res.histogram_counts) == pytest.approx(0.999 * 100_000, abs=60)

@@ -132,6 +132,7 @@ def test_covariance_scaled_when_scatter_exceeds_n_std(tmp_path):
     f = write_scan(tmp_path / "scan.csv", v, y, np.full(v.size, 1e-4))
     a = analyse_data(f, model="decay-cascade", plateau=1, operating_point=-0.545, steps=3,
                      samples=1000)
+    # expected 9 (3²); χ²_ν/ν with ν = 296 has sd 9·√(2/296) ≈ 0.74, so [7, 11] is ±2.7 sd
     assert 7 < a.fit.reduced_chi2 < 11
     assert a.fit.scale == pytest.approx(a.fit.reduced_chi2)
     assert any("reduced χ²" in n and "> 1" in n for n in a.notes)

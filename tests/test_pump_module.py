@@ -50,7 +50,7 @@ def test_single_quantity_with_provenance(tmp_path):
     assert q.provenance.origin == "module:pump"
     assert q.provenance.notes[0].startswith("model extrapolation, not a measurement")
     assert q.provenance.files[0].path == "scan.csv" and q.provenance.files[0].rows == "1-181"
-    assert "seed 20100430" in q.provenance.method
+    assert "seed 20100430" in q.provenance.method      # the module's default (pump_fit.DEFAULT_SEED)
     # the truth (derived from TRUTH with the published formula) is covered at k = 3
     d_true = CascadeModel(3).deviation(np.array([TRUTH]), {"gate_voltage": -0.545}, 1)[0]
     assert abs(q.value - d_true) < 3 * q.standard_uncertainty

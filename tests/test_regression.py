@@ -52,6 +52,8 @@ def test_h3_prediction_at_30C(h3):
 
 def test_h3_case_for_validate_uses_the_same_code(h3):
     checks = h3_case()
+    # the eight published H.3 numbers: y1, s(y1), y2, s(y2), r(y1, y2), residual s,
+    # b(30 °C) and its u (REFERENCES.md)
     assert len(checks) == 8
     assert all(c.passed for c in checks), [c for c in checks if not c.passed]
     assert all("H.3" in c.source for c in checks)
@@ -203,6 +205,15 @@ def test_to_dict_is_json_ready(h3):
     import json
     json.dumps(h3.to_dict(), allow_nan=False)
     assert h3.to_dict()["chi2"] is None  # unweighted: no χ²
+
+
+@pytest.mark.parametrize("scale", [1e160, 1e-170])
+def test_covariance_beyond_float64_is_refused(scale):
+    # u² of 1e160 overflows float64 (largest ≈ 1.8e308) and of 1e-170 underflows below the
+    # smallest subnormal ≈ 4.9e-324 (IEEE 754 binary64): refused, never passed on as inf or 0
+    x = [0.0, 1.0, 2.0]
+    with pytest.raises(ComputationError, match="float64"):
+        fit(x, [scale, 1.1 * scale, 0.9 * scale], [scale] * 3)
 
 
 @pytest.mark.parametrize("args, kwargs, words", [

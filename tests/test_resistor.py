@@ -124,6 +124,8 @@ def test_inflation_when_scatter_exceeds_stated(tmp_path):
     r = run_module(ctx(tmp_path, at=AT))
     q = r.quantities[0]
     d = r.diagnostics
+    # scatter 4u: R_B² = 16·χ²_10/10 (12 calibrations, 2 parameters), so R_B ≤ 1.5 needs
+    # χ²_10 ≤ 1.41, probability 8e-4 (scipy.stats.chi2.cdf): > 1.5 fails only for a real error
     assert d["inflated"] and d["birge_ratio"] > 1.5
     assert q.dof == 12 - 2                          # n − p
     assert q.distribution.kind == "student-t"
@@ -289,6 +291,13 @@ def test_measurement_before_first_calibration(tmp_path):
         run_module(ctx(tmp_path, at="2023-12-01"))
     assert (e.value.row, e.value.field) == (2, "date")   # row 2 holds the earliest date
     assert "before the first calibration" in e.value.message
+
+
+def test_zero_resistance_is_refused(tmp_path):
+    # the corrections are relative (R_cal·(1 + δ)) and the figure is in parts of R: a value of 0
+    # has no relative scale, so it is a located data error rather than a division by zero
+    e = _bad(tmp_path, HEAD + "2024-01-01,0,100,2\n2024-06-01,0,100,2\n")
+    assert e.field == "value" and e.file.endswith("hist.csv") and "0 Ω" in e.message
 
 
 def test_linear_drift_needs_two_dates(tmp_path):

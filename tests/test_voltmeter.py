@@ -125,6 +125,8 @@ def test_stability_per_day(tmp_path):
       "calibration_date": "2026-02-01", "at": "2026-01-01"}, "inputs.g.at"),
     ({"gain": 1.0, "gain_uncertainty": 1e-8, "fit": "origin"}, "inputs.g.fit"),
     ({"gain": -1.0, "gain_uncertainty": 1e-8}, "inputs.g.gain"),
+    # 1/G overflows float64 (largest ≈ 1.8e308, IEEE 754) for this subnormal G
+    ({"gain": 1e-320, "gain_uncertainty": 1e-8, "gain_is": "reading-ratio"}, "inputs.g.gain"),
 ])
 def test_bad_options(tmp_path, table, field):
     write(tmp_path)
@@ -139,6 +141,8 @@ def test_bad_options(tmp_path, table, field):
     ("reference_V,reading_V\n1,1\nnan,2\n3,3\n", 2, "reference_V"),
     ("reference_V,reading_V,reading_uncertainty_V\n1,1,1e-8\n2,2,-1e-8\n3,3,1e-8\n", 2,
      "reading_uncertainty_V"),
+    # a surplus field would make pandas shift the row's values one column left
+    ("reference_V,reading_V\n1,1\n2,2,7\n3,3\n", 2, None),
 ])
 def test_bad_table(tmp_path, text, row, col):
     write(tmp_path, text=text)

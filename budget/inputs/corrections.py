@@ -15,6 +15,7 @@ import math
 import numpy as np
 
 from ..distributions import Distribution
+from ..errors import DataError
 from ..quantity import FileRef, ModuleResult, Provenance, Quantity
 from .context import InputContext
 from .history import History, drift_figure, drift_quantity, history_diagnostics, predict_drift
@@ -218,6 +219,12 @@ def drift_result(ctx: InputContext, hist: History, at, corrections: list[tuple],
         if factors is not None:
             values = values / factors
     pred = predict_drift(ctx, hist, values, at)
+    if pred.value == 0:
+        # every other row of these modules is relative to the calibrated value (the corrections
+        # multiply it, the figure shows parts in 10^6 of it): a value of 0 has no such scale
+        raise DataError(f"the history predicts {what} = 0 {unit} at the measurement date; a "
+                        "calibrated value of 0 cannot carry relative corrections",
+                        file=hist.shown, field="value")
     main = drift_quantity(ctx, hist, pred, name=f"{ctx.name}_cal", unit=unit, what=what,
                           extra_notes=extra_notes)
     reference = ctx.number("nominal", pred.value, positive=True)

@@ -9,7 +9,8 @@ Keys of a typed-in ``[inputs.NAME]`` table:
   bounded ones take ``low``/``high`` or ``value`` + ``half_width``; triangular may take ``mode``;
   trapezoidal needs ``beta`` (top width / base width); student-t takes ``value``,
   ``standard_uncertainty`` (its scale) and ``dof``;
-* ``observations = [...]``: mean, u = s/√n, ν = n − 1, Type A (JCGM 100 §4.2);
+* ``observations = [...]``: mean, u = s/√n, ν = n − 1, Type A (JCGM 100 §4.2); at least two
+  readings, not all equal (equal readings carry no scatter to evaluate);
 * optional ``dof``, ``unit``, ``description``, ``reason`` (why this distribution),
   ``source`` (certificate or document reference), ``evaluation`` ("A" or "B").
 
@@ -61,7 +62,15 @@ def observations_of(ctx: InputContext) -> np.ndarray | None:
             raise ctx.spec_error("observations", f"entry {i + 1} is not a finite number: {v!r}")
     if len(obs) < 2:
         raise ctx.spec_error("observations", f"needs at least 2 readings; got {len(obs)}")
-    return np.asarray(obs, dtype=float)
+    arr = np.asarray(obs, dtype=float)
+    # Identical readings give s = 0: s/√n = 0 would make the input an exact constant with no
+    # budget row (a silent wrong number). Their uncertainty is set by the indication's
+    # resolution instead (JCGM 100 F.2.2.1), which the user has to state.
+    if np.ptp(arr) == 0:
+        raise ctx.spec_error("observations", "all readings are equal, so s/√n = 0 is no "
+                             "uncertainty; give value and standard_uncertainty instead (e.g. "
+                             "from the resolution, JCGM 100 F.2.2.1)")
+    return arr
 
 
 def evaluate_direct(ctx: InputContext) -> Quantity:

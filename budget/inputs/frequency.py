@@ -66,6 +66,7 @@ import numpy as np
 import pandas as pd
 
 from ..distributions import Distribution
+from ..errors import DataError
 from ..quantity import ModuleResult, Provenance, Quantity
 from .context import InputContext
 from .corrections import bounded_or_standard, relative_term
@@ -90,6 +91,12 @@ def _offset_from_file(ctx: InputContext, name: str) -> tuple[Quantity, pd.Timest
     df = read_table(path, ("date", "fractional_offset"), ("uncertainty",), shown=shown)
     dates = date_column(df, "date", shown=shown)
     y = numeric_column(df, "fractional_offset", shown=shown)
+    # a fractional offset f/f_nom − 1 of ±1 or more means f ≤ 0 or a value typed in Hz
+    far = np.flatnonzero(np.abs(y) >= 1)
+    if far.size:
+        raise DataError(f"a fractional offset (f/f_nom − 1) must lie in (−1, 1); got "
+                        f"{df['fractional_offset'].iloc[far[0]]!r}", file=shown,
+                        row=int(far[0]) + 1, field="fractional_offset")
     u = (numeric_column(df, "uncertainty", shown=shown, positive=True)
          if "uncertainty" in df else None)
     rows = np.arange(1, len(df) + 1)
@@ -128,6 +135,9 @@ def _offset_typed(ctx: InputContext, name: str) -> Quantity | None:
     if not any(k in ctx.table for k in _OFFSET_KEYS):
         return None
     y = ctx.number("offset", 0.0)
+    if not -1 < y < 1:   # f/f_nom − 1 ≤ −1 is a frequency ≤ 0; ≥ 1 is almost surely Hz, not 1
+        raise ctx.spec_error("offset", f"is fractional (f/f_nom − 1) and must lie in (−1, 1); "
+                                       f"got {y!r}")
     u, hw = bounded_or_standard(ctx, "offset_uncertainty", "offset_bound",
                                 required_with="with 'offset'")
     if "offset_dof" in ctx.table and hw > 0:

@@ -6,6 +6,7 @@ third line after the header — the same numbering as the ``rows`` field of a Fi
 
 from __future__ import annotations
 
+import csv
 import io
 import re
 from collections.abc import Iterable
@@ -66,6 +67,16 @@ def read_table(path: Path, required: Iterable[str], optional: Iterable[str] = ()
     lines = [ln for ln in text.splitlines() if ln.strip() and not ln.lstrip().startswith("#")]
     if not lines:
         raise DataError("file is empty (no header row)", file=shown)
+    # A data row with more fields than the header makes pandas take the first column as the
+    # row index, shifting every value one column to the left: refuse it by row instead.
+    # (Shorter rows are left to pandas: their missing cells read as blank and each column's
+    # own check decides whether a blank is allowed.)
+    rows = csv.reader(lines, skipinitialspace=True)
+    width = len(next(rows))
+    for i, fields in enumerate(rows, start=1):
+        if len(fields) > width:
+            raise DataError(f"has {len(fields)} fields; the header has {width}", file=shown,
+                            row=i)
     try:
         df = pd.read_csv(io.StringIO("\n".join(lines)), dtype=str, keep_default_na=False,
                          skipinitialspace=True)

@@ -181,7 +181,10 @@ def _from_certificate(ctx: InputContext, name: str) -> tuple[Quantity, dict]:
         u, how = big_u / k, f"u = U/k with U = {big_u:g}, k = {k:g} from the certificate"
     dof = ctx.number("gain_dof", math.inf, positive=True) if "gain_dof" in ctx.table else math.inf
     if convention == "reading-ratio":
-        g, u_g = 1.0 / value, u / value ** 2
+        g = 1.0 / value
+        u_g = u * g * g      # u(G)/G², written so that a tiny G overflows instead of dividing by 0
+        if not (math.isfinite(g) and math.isfinite(u_g)):
+            raise ctx.spec_error("gain", f"1/G is not a finite number for G = {value!r}")
         how += "; g = 1/G, u(g) = u(G)/G²"
     else:
         g, u_g = value, u

@@ -58,12 +58,44 @@ class LinearResult:
     coverage_probability: float
     expanded_uncertainty: float
 
+    def to_dict(self) -> dict:
+        """JSON-ready fields (arrays become lists of floats; an infinite ν becomes None)."""
+        return {"name": self.name, "value": float(self.value),
+                "standard_uncertainty": float(self.standard_uncertainty),
+                "names": list(self.names),
+                "sensitivities": [float(v) for v in self.sensitivities],
+                "contributions": [float(v) for v in self.contributions],
+                "variance_shares": [float(v) for v in self.variance_shares],
+                "second_order_variance": float(self.second_order_variance),
+                "effective_dof": (None if math.isinf(self.effective_dof)
+                                  else float(self.effective_dof)),
+                "coverage_factor": float(self.coverage_factor),
+                "coverage_probability": float(self.coverage_probability),
+                "expanded_uncertainty": float(self.expanded_uncertainty)}
+
 
 def coverage_factor(p: float, dof: float, rounding: str = "floor") -> float:
     """k = t_p(ν): the two-sided Student-t quantile for coverage probability ``p``.
 
-    ``dof`` may be ``inf`` (then the normal quantile). ``rounding`` "floor" truncates a
-    fractional ν to the next lower integer (at least 1); "interpolate" uses it as it is.
+    Parameters
+    ----------
+    p : float
+        Coverage probability, in (0, 1) (e.g. 0.95; 0.9545 gives k = 2 for ν = ∞).
+    dof : float
+        Effective degrees of freedom ν; ``inf`` (or above 1e7) gives the normal quantile.
+    rounding : {"floor", "interpolate"}
+        "floor" (default) truncates a fractional ν to the next lower integer, at least 1
+        (JCGM 100 G.4.1 note 1); "interpolate" uses the fractional ν as it is.
+
+    Returns
+    -------
+    float
+        The coverage factor k (dimensionless).
+
+    Raises
+    ------
+    SpecError
+        ``p`` outside (0, 1).
     """
     if not 0 < p < 1:
         raise SpecError(f"coverage probability must lie in (0, 1); got {p!r}")

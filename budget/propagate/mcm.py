@@ -35,7 +35,8 @@ from ..quantity import Quantity
 from .lpu import correlation_groups
 from .validate import numerical_tolerance
 
-__all__ = ["McmSettings", "McmResult", "monte_carlo", "CHUNK", "coverage_intervals"]
+__all__ = ["McmSettings", "McmResult", "monte_carlo", "CHUNK", "coverage_intervals",
+           "adaptive_batch_size"]
 
 VALIDATION_DIVISOR = 5  # adaptive stop at δ/5 (JCGM 101 §8.2), see the module docstring
 CHUNK = 200_000  # trials per chunk: ~1.6 MB per input, fixed so that results are reproducible
@@ -85,6 +86,15 @@ class McmResult:
     stabilised: bool
     batches: int
 
+    def to_dict(self) -> dict:
+        """JSON-ready fields (values in the output's unit; tuples become lists)."""
+        return {"name": self.name, "trials": self.trials, "value": self.value,
+                "standard_uncertainty": self.standard_uncertainty,
+                "symmetric": list(self.symmetric), "shortest": list(self.shortest),
+                "histogram_counts": list(self.histogram_counts),
+                "histogram_edges": list(self.histogram_edges), "adaptive": self.adaptive,
+                "stabilised": self.stabilised, "batches": self.batches}
+
 
 def coverage_intervals(sorted_y: np.ndarray, p: float) -> tuple[tuple[float, float],
                                                                 tuple[float, float]]:
@@ -92,7 +102,20 @@ def coverage_intervals(sorted_y: np.ndarray, p: float) -> tuple[tuple[float, flo
 
     JCGM 101 §7.7: q = pM + ½ rounded down; symmetric: r = (M − q)/2 (rounded up to an integer
     when needed), interval [y_(r), y_(r+q)] in 1-based order statistics; shortest: the r* that
-    minimises y_(r+q) − y_(r) for r = 1 … M − q.
+    minimises y_(r+q) − y_(r) for r = 1 … M − q (the first such r on ties).
+
+    Parameters
+    ----------
+    sorted_y : numpy.ndarray
+        The M output samples in ascending order (M ≥ 2), in the output's unit.
+    p : float
+        Coverage probability, in (0, 1).
+
+    Returns
+    -------
+    tuple
+        ``((low, high), (low, high))``: the symmetric and the shortest interval, in the
+        samples' unit.
     """
     m = sorted_y.size
     q = int(p * m + 0.5)
@@ -185,7 +208,7 @@ def monte_carlo(model: Model, quantities: Sequence[Quantity], corr: np.ndarray,
         samples = run(settings.trials, 0, settings.trials)
         batches, stabilised = 1, True
     else:
-        batch = max(math.ceil(100 / (1 - p)), 10_000)
+        batch = adaptive_batch_size(p)
         parts: list[dict[str, np.ndarray]] = []
         stats: list[dict[str, tuple[float, float, float, float]]] = []
         stabilised = False
@@ -226,6 +249,22 @@ def monte_carlo(model: Model, quantities: Sequence[Quantity], corr: np.ndarray,
             histogram_edges=tuple(float(e) for e in edges), adaptive=settings.trials is None,
             stabilised=stabilised, batches=batches)
     return results
+
+
+def adaptive_batch_size(coverage_probability: float) -> int:
+    """Trials per batch of the adaptive procedure, M = max(⌈100/(1 − p)⌉, 10⁴) (JCGM 101 §7.9.4).
+
+    Parameters
+    ----------
+    coverage_probability : float
+        p, in (0, 1).
+
+    Returns
+    -------
+    int
+        M; the procedure always runs whole batches, so ``max_trials`` must be at least M.
+    """
+    return max(math.ceil(100 / (1 - coverage_probability)), 10_000)
 
 
 def _batch_stats(y: np.ndarray, p: float) -> tuple[float, float, float, float]:

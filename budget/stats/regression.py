@@ -163,6 +163,19 @@ class Fit:
         }
 
 
+def _check_representable(cov: np.ndarray) -> None:
+    """Refuse a covariance that float64 cannot hold.
+
+    Squares of uncertainties beyond about 1e154 overflow to inf, below about 1e-162 they
+    underflow to 0; either would pass on a wrong uncertainty (infinite, or an exact value).
+    The unscaled covariance (XᵀWX)⁻¹ of finite data with u > 0 has a positive diagonal.
+    """
+    if not (np.all(np.isfinite(cov)) and np.all(np.diag(cov) > 0)):
+        raise ComputationError("the fit's covariance cannot be represented in float64 (the "
+                               "values or uncertainties are too large or too small to square); "
+                               "give the data in another unit")
+
+
 def fit(x: np.ndarray | list[float], y: np.ndarray | list[float],
         u: np.ndarray | list[float] | None = None, *, model: str = "line", x0: float = 0.0,
         inflate: str = "chi2-test", alpha: float = 0.05) -> Fit:
@@ -246,9 +259,11 @@ def fit(x: np.ndarray | list[float], y: np.ndarray | list[float],
     # p ≤ 2: numpy's small dense solvers are exact enough on a triangular factor and cheap
     beta_s = np.linalg.solve(r, q.T @ (ya / ua))
     r_inv = np.linalg.inv(r)
-    cov_s = r_inv @ r_inv.T
-    params = beta_s / col
-    cov = cov_s / np.outer(col, col)
+    with np.errstate(over="ignore", under="ignore", invalid="ignore"):
+        cov_s = r_inv @ r_inv.T
+        params = beta_s / col
+        cov = cov_s / np.outer(col, col)
+    _check_representable(cov)
 
     resid = ya - design @ params
     nu = n - p
@@ -288,7 +303,10 @@ def fit(x: np.ndarray | list[float], y: np.ndarray | list[float],
                 verdict = f"stated uncertainties kept as they are ({test})"
             else:
                 verdict = f"scatter consistent with the stated uncertainties ({test})"
-    cov = cov * scale
+    with np.errstate(over="ignore", invalid="ignore"):
+        cov = cov * scale
+    if not np.all(np.isfinite(cov)):
+        _check_representable(cov)
     return Fit(model=model, x0=float(x0), params=tuple(float(v) for v in params),
                cov=tuple(tuple(float(v) for v in row) for row in cov), n=n, nu=nu,
                weighted=weighted, residuals=tuple(float(v) for v in resid),
