@@ -329,8 +329,9 @@ class _Checker:
 
     def ident(self, section: tuple[str, ...], name: str) -> None:
         if not _IDENT.match(name):
-            err = self.error(section, name, "a name must start with a letter and hold only "
-                                            "letters, digits and underscores")
+            err = self.error(section, name, "a name must start with an ASCII letter (A-Z, a-z) "
+                                            "and hold only ASCII letters, digits and "
+                                            "underscores")
             if err.line is None or (section + (name,)) in self.lines:  # a table [section.name]
                 err.line = self.line(section + (name,))
             raise err

@@ -246,7 +246,7 @@ CASES = [
     ("attribute in the model", edit(('Y = "a * b + c"', 'Y = "a.real * b"  # HERE')),
      ModelError, "model.Y", ["Attribute", "column 1"]),
     ("bad output name", edit(('Y = "a * b + c"', '"2Y" = "a * b"  # HERE')),
-     SpecError, "model.2Y", ["must start with a letter"]),
+     SpecError, "model.2Y", ["must start with an ASCII letter"]),
     ("model not a table", edit(("[budget]", "model = 1  # HERE\n[budget]"), ("[model]", ""),
                                ('Y = "a * b + c"', "")),
      SpecError, "model", ["must be a table"]),
@@ -292,7 +292,7 @@ def test_bad_input_name_is_located(tmp_path):
                           "standard_uncertainty = 0.1"))
     with pytest.raises(SpecError) as info:
         load_and_evaluate(tmp_path, text)
-    assert info.value.field == "inputs.a-b" and "must start with a letter" in info.value.message
+    assert info.value.field == "inputs.a-b" and "must start with an ASCII letter" in info.value.message
     assert info.value.line == marked_line(text)
 
 

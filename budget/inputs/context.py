@@ -124,6 +124,8 @@ class InputContext:
         p = Path(name)
         if not p.is_absolute():
             p = self.folder / p
+        if p.is_dir():
+            raise self.spec_error(key, f"is a folder, not a data file: {name}")
         if not p.is_file():
             raise self.spec_error(key, f"file not found: {name}")
         return p
