@@ -13,6 +13,7 @@ from pathlib import Path
 
 import numpy as np
 import pytest
+from published_examples import EA402_SPEC
 from scipy import stats
 
 from budget import evaluate, load_spec
@@ -150,35 +151,7 @@ def test_h2_method_2_from_individual_sets():
 
 
 # --------------------------------------------------------------------------- EA-4/02 S3
-EA402_SPEC = """
-    [budget]
-    coverage_probability = 0.9545
-    [model]
-    R_X = "(R_S + dR_D + dR_TS) * r_C * r - dR_TX"
-    [inputs.R_S]
-    value = 10000.053
-    expanded_uncertainty = 0.005
-    coverage_factor = 2
-    [inputs.dR_D]
-    value = 0.020
-    distribution = "rectangular"
-    half_width = 0.010
-    [inputs.dR_TS]
-    value = 0.0
-    distribution = "rectangular"
-    half_width = 0.00275
-    [inputs.r_C]
-    value = 1.0
-    distribution = "triangular"
-    half_width = 1.0e-6
-    [inputs.r]
-    value = 1.0000105
-    standard_uncertainty = 0.07e-6
-    [inputs.dR_TX]
-    value = 0.0
-    distribution = "rectangular"
-    half_width = 0.0055
-"""
+
 
 
 def test_ea402_s3(tmp_path):

@@ -21,6 +21,7 @@ from pathlib import Path
 
 import numpy as np
 import pytest
+from published_examples import EA402_SPEC_MC
 from scipy import optimize, stats
 
 from budget import evaluate, load_spec
@@ -157,46 +158,14 @@ def test_ea402_s3_monte_carlo_agrees_with_lpu(tmp_path):
     # EA-4/02 S3 (REFERENCES.md): u = 8.3 mΩ. The model is linear to better than 10⁻⁶, so the
     # Monte Carlo standard deviation must match u within half a digit plus 5 standard errors
     # (κ ≤ 3 for this sum of normal, rectangular and triangular terms: SE ≤ u·√(2/(4M))).
-    mc = run(tmp_path, EA402_SPEC).mc("R_X")
+    mc = run(tmp_path, EA402_SPEC_MC).mc("R_X")
     u = 8.33e-3
     assert mc.standard_uncertainty * 1e3 == pytest.approx(8.3, abs=0.05 + 5e3 * u * math.sqrt(
         2 / (4 * 200_000)))
     assert mc.value == pytest.approx(10000.178, abs=5e-4 + 5 * u / math.sqrt(200_000))
 
 
-# EA-4/02 M:2022 S3 inputs (REFERENCES.md), as in tests/test_lpu.py, with a Monte Carlo section
-EA402_SPEC = """
-    [budget]
-    coverage_probability = 0.9545
-    [model]
-    R_X = "(R_S + dR_D + dR_TS) * r_C * r - dR_TX"
-    [monte_carlo]
-    trials = 200000
-    seed = 402
-    [inputs.R_S]
-    value = 10000.053
-    expanded_uncertainty = 0.005
-    coverage_factor = 2
-    [inputs.dR_D]
-    value = 0.020
-    distribution = "rectangular"
-    half_width = 0.010
-    [inputs.dR_TS]
-    value = 0.0
-    distribution = "rectangular"
-    half_width = 0.00275
-    [inputs.r_C]
-    value = 1.0
-    distribution = "triangular"
-    half_width = 1.0e-6
-    [inputs.r]
-    value = 1.0000105
-    standard_uncertainty = 0.07e-6
-    [inputs.dR_TX]
-    value = 0.0
-    distribution = "rectangular"
-    half_width = 0.0055
-"""
+
 
 
 # --------------------------------------------------------------------------- coverage intervals
