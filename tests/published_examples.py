@@ -13,6 +13,7 @@ EA402_SPEC = """
     value = 10000.053
     expanded_uncertainty = 0.005
     coverage_factor = 2
+    coverage_probability = 0.9545   # EA-4/02 §5: k = 2 of a normal distribution
     [inputs.dR_D]
     value = 0.020
     distribution = "rectangular"

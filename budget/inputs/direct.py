@@ -4,9 +4,13 @@ from repeated ``observations``.
 Keys of a typed-in ``[inputs.NAME]`` table:
 
 * ``value`` and ``standard_uncertainty`` (normal by default), or ``expanded_uncertainty`` with
-  ``coverage_factor`` (u = U/k, as a certificate states it);
+  ``coverage_factor`` (u = U/k, as a certificate states it) and optional
+  ``coverage_probability`` (the p the certificate states k for, default 0.95): unless ``dof`` is
+  given, ν follows from k = t_p(ν) (:func:`budget.coverage.dof_from_coverage_factor`, JCGM 100
+  G.4–G.6), so that k = 2.87 at 95 % gives ν = 3.7; k below 1 is refused;
 * ``distribution`` = normal, rectangular, triangular, arcsine, trapezoidal or student-t;
-  bounded ones take ``low``/``high`` or ``value`` + ``half_width``; triangular may take ``mode``;
+  bounded ones take ``low``/``high`` or ``value`` + ``half_width``; a triangular's ``value`` (or
+  ``mode``) is its mode c, so its estimate is the expectation (a + b + c)/3 (JCGM 101 §6.4.5);
   trapezoidal needs ``beta`` (top width / base width); student-t takes ``value``,
   ``standard_uncertainty`` (its scale) and ``dof``;
 * ``observations = [...]``: mean, u = s/√n, ν = n − 1, Type A (JCGM 100 §4.2); at least two
@@ -24,6 +28,7 @@ from typing import Any
 
 import numpy as np
 
+from ..coverage import DEFAULT_CERTIFICATE_PROBABILITY, describe_inference, dof_from_coverage_factor
 from ..distributions import KINDS, Distribution
 from ..errors import BudgetError, SpecError, did_you_mean
 from ..quantity import Provenance, Quantity
@@ -32,6 +37,7 @@ from .context import InputContext
 __all__ = ["KEYS", "evaluate_direct", "observations_of"]
 
 KEYS = frozenset({"value", "standard_uncertainty", "expanded_uncertainty", "coverage_factor",
+                  "coverage_probability",
                   "distribution", "low", "high", "half_width", "mode", "beta", "dof", "unit",
                   "description", "reason", "source", "evaluation", "observations"})
 
@@ -116,6 +122,9 @@ def evaluate_direct(ctx: InputContext) -> Quantity:
         raise ctx.spec_error("distribution", f"unknown distribution {kind!r}"
                                              f"{did_you_mean(kind, KINDS)} (known: {', '.join(KINDS)})")
     dof = ctx.option("dof", float, math.inf, check=lambda x: x > 0, must="> 0")
+    inferred = _dof_from_k(ctx)
+    if inferred is not None:
+        dof = inferred[0]
     try:
         dist = _distribution(ctx, kind, dof)
     except SpecError:
@@ -126,15 +135,54 @@ def evaluate_direct(ctx: InputContext) -> Quantity:
     u = dist.std if kind != "student-t" else dist.scale
     if kind == "student-t":
         dof = dist.dof
-    dof_reason = (f"ν = {dof:g}, as stated" if math.isfinite(dof) else
-                  "ν = ∞: the uncertainty is taken as exactly known (no reliability stated)")
+    if inferred is not None:
+        dof_reason = inferred[1]
+    elif math.isfinite(dof):
+        dof_reason = f"ν = {dof:g}, as stated"
+    else:
+        dof_reason = "ν = ∞: the uncertainty is taken as exactly known (no reliability stated)"
+    notes: tuple[str, ...] = ()
+    if kind == "triangular" and dist.loc != (dist.low + dist.high) / 2:
+        c = dist.loc
+        notes = (f"triangular: the stated {'value' if 'value' in t else 'mode'} {c!r} is the "
+                 f"mode c; the estimate is the expectation (a + b + c)/3 = {value!r} and "
+                 "u = √((a² + b² + c² − ab − ac − bc)/18) (JCGM 101 §6.4.5)",)
     how = f"typed in ({source})" if source else "typed in"
     prov = Provenance(origin="spec" if u > 0 else "constant",
                       method=f"{how}; u from the {kind} distribution's standard deviation"
                       if kind != "normal" else how,
                       distribution_reason=reason or _REASONS[kind], dof_reason=dof_reason,
-                      notes=())
+                      notes=notes)
     return _quantity(ctx, value, u, dist, unit, dof, evaluation or "B", description, prov)
+
+
+def _dof_from_k(ctx: InputContext) -> tuple[float, str] | None:
+    """ν from a stated coverage factor (module docstring), or None when it does not apply."""
+    t = ctx.table
+    if "coverage_probability" in t and "coverage_factor" not in t:
+        raise ctx.spec_error("coverage_probability", "only goes with expanded_uncertainty and "
+                                                     "coverage_factor")
+    if "coverage_factor" not in t:
+        return None
+    k = ctx.number("coverage_factor", positive=True)
+    if k < 1:
+        raise ctx.spec_error("coverage_factor", "must be at least 1 (a smaller k would make "
+                                                f"U smaller than u); got {k!r}")
+    if "dof" in t:
+        if "coverage_probability" in t:
+            raise ctx.spec_error("coverage_probability", "give dof or coverage_probability, not "
+                                                         "both (ν follows from k and p)")
+        return None
+    p = ctx.option("coverage_probability", float, DEFAULT_CERTIFICATE_PROBABILITY,
+                   check=lambda x: 0 < x < 1, must="in (0, 1)")
+    try:
+        nu = dof_from_coverage_factor(k, p)
+    except BudgetError as exc:
+        raise ctx.spec_error(exc.field or "coverage_factor", exc.message) from None
+    how = describe_inference(k, p, nu)
+    if "coverage_probability" not in t:
+        how += f"; p = {100 * p:g} % assumed (no coverage_probability given)"
+    return nu, how
 
 
 def _distribution(ctx: InputContext, kind: str, dof: float) -> Distribution:
@@ -191,8 +239,17 @@ def _distribution(ctx: InputContext, kind: str, dof: float) -> Distribution:
     if kind == "rectangular":
         return Distribution.rectangular(low, high)
     if kind == "triangular":
-        mode = ctx.number("mode") if "mode" in t else None
-        return Distribution.triangular(low, high, mode)
+        # ``value`` with low/high names the mode c (the most likely value), not the estimate:
+        # the estimate is the expectation (a + b + c)/3 (JCGM 101 §6.4.5). Ignoring it would
+        # put the estimate at the midpoint without a word.
+        if "mode" in t and "value" in t and "half_width" not in t:
+            raise ctx.spec_error("mode", "give the mode as value or as mode, not both")
+        key = "mode" if "mode" in t else ("value" if "value" in t else None)
+        mode = ctx.number(key) if key else None
+        try:
+            return Distribution.triangular(low, high, mode)
+        except BudgetError as exc:
+            raise ctx.spec_error(key or "mode", exc.message) from None
     if kind == "arcsine":
         return Distribution.arcsine(low, high)
     beta = ctx.number("beta")

@@ -32,9 +32,15 @@ gain_is : {"correction", "reading-ratio"}
 gain_uncertainty : float
     Standard uncertainty of ``gain`` (same convention as ``gain``).
 gain_expanded_uncertainty, gain_coverage_factor : float
-    Alternatively U and k of the certificate; u = U/k.
+    Alternatively U and k of the certificate; u = U/k. k must be at least 1.
+gain_coverage_probability : float
+    The coverage probability the certificate states k for (default 0.95). Unless ``gain_dof``
+    is given, ν follows from k = t_p(ν) (:func:`budget.coverage.dof_from_coverage_factor`,
+    JCGM 100 G.4–G.6): k = 2.87 at 95 % gives ν = 3.7, k = 2 at 95 % gives ν = 60, and k = 2 at
+    0.9545 gives ν = ∞.
 gain_dof : float
-    Degrees of freedom of the certificate's uncertainty. Default infinite.
+    Degrees of freedom of the certificate's uncertainty. Default: inferred from k as above with
+    U and k, else infinite.
 working_voltage_V : float
     Size of the measured voltage (|ΔV|, V). Required for the linearity from the table and for
     ``resolution_V``, which are absolute in volts and enter relative to it.
@@ -46,7 +52,8 @@ resolution_V : float
     Size of one digit of the reading (V): half a digit bounds the rounding error, rectangular
     (JCGM 100 F.2.2.1), relative to ``working_voltage_V``.
 stability : float
-    Relative half-width of the change allowed since calibration (rectangular).
+    Relative half-width of the change allowed since calibration (rectangular); below 1 (a
+    relative bound of 1 or more would allow a gain of zero or of the opposite sign).
 stability_per_day, calibration_date, at
     Alternatively a bound growing linearly with time: stability_per_day × days between
     ``calibration_date`` and ``at`` (ISO 8601). Not together with ``stability``.
@@ -65,6 +72,7 @@ import math
 import numpy as np
 import pandas as pd
 
+from ..coverage import DEFAULT_CERTIFICATE_PROBABILITY, describe_inference, dof_from_coverage_factor
 from ..distributions import Distribution
 from ..errors import BudgetError, DataError
 from ..quantity import ModuleResult, Provenance, Quantity
@@ -78,11 +86,12 @@ __all__ = ["KEYS", "evaluate"]
 
 KEYS = frozenset({"file", "fit", "inflate", "consistency_level", "gain", "gain_is",
                   "gain_uncertainty", "gain_expanded_uncertainty", "gain_coverage_factor",
+                  "gain_coverage_probability",
                   "gain_dof", "working_voltage_V", "linearity", "resolution_V", "stability",
                   "stability_per_day", "calibration_date", "at"})
 
 _CERT_KEYS = ("gain", "gain_is", "gain_uncertainty", "gain_expanded_uncertainty",
-              "gain_coverage_factor", "gain_dof")
+              "gain_coverage_factor", "gain_coverage_probability", "gain_dof")
 
 
 def _from_table(ctx: InputContext, name: str) -> tuple[Quantity, float, dict]:
@@ -179,7 +188,32 @@ def _from_certificate(ctx: InputContext, name: str) -> tuple[Quantity, dict]:
         big_u = ctx.number("gain_expanded_uncertainty", nonnegative=True)
         k = ctx.number("gain_coverage_factor", positive=True)
         u, how = big_u / k, f"u = U/k with U = {big_u:g}, k = {k:g} from the certificate"
-    dof = ctx.number("gain_dof", math.inf, positive=True) if "gain_dof" in ctx.table else math.inf
+    dof_reason = ""
+    if "gain_coverage_probability" in ctx.table and "gain_coverage_factor" not in ctx.table:
+        raise ctx.spec_error("gain_coverage_probability", "only goes with "
+                                                          "gain_coverage_factor")
+    if "gain_coverage_factor" in ctx.table:
+        k = ctx.number("gain_coverage_factor", positive=True)
+        if k < 1:
+            raise ctx.spec_error("gain_coverage_factor", "must be at least 1 (a smaller k would "
+                                                         f"make U smaller than u); got {k!r}")
+    if "gain_dof" in ctx.table:
+        if "gain_coverage_probability" in ctx.table:
+            raise ctx.spec_error("gain_coverage_probability", "give gain_dof or "
+                                 "gain_coverage_probability, not both (ν follows from k and p)")
+        dof = ctx.number("gain_dof", positive=True)
+    elif "gain_coverage_factor" in ctx.table:
+        p = ctx.option("gain_coverage_probability", float, DEFAULT_CERTIFICATE_PROBABILITY,
+                       check=lambda x: 0 < x < 1, must="in (0, 1)")
+        try:
+            dof = dof_from_coverage_factor(k, p)
+        except BudgetError as exc:
+            raise ctx.spec_error("gain_coverage_factor", exc.message) from None
+        dof_reason = describe_inference(k, p, dof)
+        if "gain_coverage_probability" not in ctx.table:
+            dof_reason += f"; p = {100 * p:g} % assumed (no gain_coverage_probability given)"
+    else:
+        dof = math.inf
     if convention == "reading-ratio":
         g = 1.0 / value
         u_g = u * g * g      # u(G)/G², written so that a tiny G overflows instead of dividing by 0
@@ -201,8 +235,9 @@ def _from_certificate(ctx: InputContext, name: str) -> tuple[Quantity, dict]:
         description="voltmeter gain correction factor from its calibration certificate",
         provenance=Provenance(origin="module:voltmeter", method=how,
                               distribution_reason=dist_reason,
-                              dof_reason=("stated on the certificate" if math.isfinite(dof)
-                                          else "infinite: none stated on the certificate")))
+                              dof_reason=dof_reason or (
+                                  "stated on the certificate" if math.isfinite(dof)
+                                  else "infinite: none stated on the certificate")))
     return q, {"calibration": {"certificate_value": value, "convention": convention,
                                "g": g, "u_g": u_g}}
 
@@ -271,11 +306,19 @@ def evaluate(ctx: InputContext) -> ModuleResult:
         if "stability" in ctx.table:
             hw = ctx.number("stability", positive=True)
             how = f"stated relative bound ±{hw:g} since calibration"
+            key = "stability"
         else:
             rate = ctx.number("stability_per_day", positive=True)
             days = _days(ctx)
             hw = rate * days
             how = f"±{rate:g} per day × {days:.1f} days since calibration"
+            key = "stability_per_day"
+        if hw >= 1:
+            # the factor (1 + δ) with |δ| up to 1 or more reaches a gain of zero or below: no
+            # voltmeter specification means that; most likely ppm were typed as a fraction
+            raise ctx.spec_error(key, f"gives a relative bound of {hw:g}, at least 1 (a gain "
+                                      "change of 100 % or more); give it as a fraction, e.g. "
+                                      "2e-6 for 2 ppm")
         if hw > 0:
             terms.append(("stab", relative_term(
                 ctx, name=f"{ctx.name}_stab", value=0.0, half_width=hw,

@@ -1,0 +1,173 @@
+"""Coverage factor ↔ degrees of freedom (issue 11, items 2, 4, 6 and 7 for typed-in inputs).
+
+Oracles: JCGM 100:2008 Table G.2 (k = t_p(ν)), scipy.stats.t (an open reference library for the
+Student-t quantile and distribution function) and scipy.stats.triang (triangular moments).
+"""
+
+from __future__ import annotations
+
+import math
+import textwrap
+from pathlib import Path
+
+import pytest
+from scipy import stats
+
+from budget import evaluate
+from budget.coverage import coverage_probability_of, dof_from_coverage_factor
+from budget.errors import BudgetError, SpecError
+from budget.inputs import InputContext, run_module
+from budget.spec import parse_spec
+
+
+def spec_of(text: str):
+    return parse_spec(textwrap.dedent(text), file="spec.toml")
+
+
+@pytest.mark.parametrize("nu", [1.0, 1.5, 3.7, 10.0, 60.0, 250.0])
+def test_round_trip_with_scipy_t(nu):
+    # scipy.stats.t.ppf is the oracle for t_p(ν); the inverse must give ν back
+    for p in (0.95, 0.9545, 0.99):
+        k = stats.t.ppf((1 + p) / 2, nu)
+        if k - stats.norm.ppf((1 + p) / 2) <= 0.005:
+            continue                     # within the rounding band: ν = ∞ by rule (see below)
+        assert dof_from_coverage_factor(k, p) == pytest.approx(nu, rel=1e-8)
+
+
+@pytest.mark.parametrize("nu,k", [(1, 13.97), (2, 4.53), (3, 3.31), (4, 2.87), (5, 2.65),
+                                  (6, 2.52), (7, 2.43), (8, 2.37), (9, 2.32), (10, 2.28)])
+def test_table_g2_factors_give_their_dof(nu, k):
+    # JCGM 100 Table G.2, p = 95.45 %: the published (rounded) k gives back its ν to ±0.2
+    # (rounding k to two decimals moves ν by at most that much for ν ≤ 10, derived)
+    assert dof_from_coverage_factor(k, 0.9545) == pytest.approx(nu, abs=0.2)
+
+
+def test_issue_case_k_287_at_95_percent():
+    # issue 11 item 2: k = 2.87 stated for 95 % → ν = 3.7; scipy.stats.t.ppf(0.975, 3.6927) = 2.87
+    nu = dof_from_coverage_factor(2.87, 0.95)
+    assert nu == pytest.approx(3.69, abs=0.005)
+    assert stats.t.ppf(0.975, nu) == pytest.approx(2.87, rel=1e-9)
+
+
+def test_normal_quantiles_give_infinite_dof_and_small_k_is_refused():
+    # k = 2 for 95.45 % and k = 1.96 for 95 % are the normal quantiles (JCGM 100 Table G.2, ν = ∞)
+    assert math.isinf(dof_from_coverage_factor(2.0, 0.9545))
+    assert math.isinf(dof_from_coverage_factor(1.96, 0.95))
+    # k = 2 stated for 95 %: t_0.975(ν) = 2 at ν = 60.4 (scipy.stats.t.ppf(0.975, 60.4) = 2.000)
+    assert stats.t.ppf(0.975, dof_from_coverage_factor(2.0, 0.95)) == pytest.approx(2.0)
+    with pytest.raises(BudgetError, match="normal quantile"):
+        dof_from_coverage_factor(1.65, 0.95)          # 1.65 is a 90 % normal factor
+    with pytest.raises(BudgetError, match="below 1"):
+        dof_from_coverage_factor(0.9, 0.5)            # refused whatever p (issue 11 item 6)
+
+
+def test_coverage_probability_of_a_fixed_k():
+    # issue 11 item 7 (EA-4/02 M:2022 §5, memory): P(|t_3| ≤ 2) ≈ 0.86; oracle scipy.stats.t.cdf
+    assert coverage_probability_of(2.0, 3) == pytest.approx(2 * stats.t.cdf(2.0, 3) - 1,
+                                                            rel=1e-12)
+    assert coverage_probability_of(2.0, 3) == pytest.approx(0.861, abs=5e-4)
+    assert coverage_probability_of(2.0, math.inf) == pytest.approx(0.9545, abs=5e-5)
+
+
+CERT = """
+    [budget]
+    dof_rounding = "interpolate"
+    [model]
+    Y = "X"
+    [monte_carlo]
+    trials = 400000
+    seed = 11
+    [inputs.X]
+    value = 10.0
+    expanded_uncertainty = 0.287
+    coverage_factor = 2.87
+"""
+
+
+def test_certificate_u_and_k_keep_their_expanded_uncertainty():
+    # issue 11 item 2: Y = X must give back the certificate's own U = 0.287, not 1.96·0.1
+    b = evaluate(spec_of(CERT))
+    m = b.measurand("Y")
+    assert m.effective_dof == pytest.approx(dof_from_coverage_factor(2.87, 0.95), rel=1e-12)
+    assert m.expanded_uncertainty == pytest.approx(0.287, rel=1e-9)
+    prov = b.input("X").provenance
+    assert "ν = 3.7 inferred from k = 2.87 at 95 %" in prov.dof_reason
+    assert "assumed" in prov.dof_reason                      # p was not stated
+    # synthetic truth: the true X is t_ν-distributed about the estimate with scale U/k
+    # (JCGM 101 §6.4.9.7); the Monte Carlo interval must be 10 ± 0.287 (scipy.stats.t.ppf)
+    mc = b.mc("Y")
+    assert mc.interval_low == pytest.approx(10 - 0.287, abs=0.006)
+    assert mc.interval_high == pytest.approx(10 + 0.287, abs=0.006)
+
+
+def test_stated_probability_and_explicit_dof():
+    text = CERT.replace("coverage_factor = 2.87", "coverage_factor = 2.0\n"
+                        "    coverage_probability = 0.9545")
+    assert math.isinf(evaluate(spec_of(text), monte_carlo_enabled=False)
+                      .measurand("Y").effective_dof)
+    text = CERT.replace("coverage_factor = 2.87", "coverage_factor = 2.87\n    dof = 12")
+    b = evaluate(spec_of(text), monte_carlo_enabled=False)
+    assert b.input("X").dof == 12 and "as stated" in b.input("X").provenance.dof_reason
+    text = CERT.replace("coverage_factor = 2.87", "coverage_factor = 2.87\n    dof = 12\n"
+                        "    coverage_probability = 0.95")
+    with pytest.raises(SpecError) as e:
+        evaluate(spec_of(text))
+    assert e.value.field == "inputs.X.coverage_probability"
+
+
+@pytest.mark.parametrize("k,words", [(0.5, "at least 1"), (1.2, "normal quantile")])
+def test_small_k_refused_at_its_key(k, words):
+    with pytest.raises(SpecError, match=words) as e:
+        evaluate(spec_of(CERT.replace("coverage_factor = 2.87", f"coverage_factor = {k}")))
+    assert e.value.field == "inputs.X.coverage_factor" and e.value.line is not None
+
+
+def test_triangular_value_is_the_mode():
+    # issue 11 item 4: low = 0, high = 10, value = 2 → estimate (0 + 10 + 2)/3 = 4.0, u = 2.16
+    # (scipy.stats.triang with c = 0.2, loc = 0, scale = 10 as the oracle)
+    b = evaluate(spec_of("""
+        [model]
+        Y = "T"
+        [monte_carlo]
+        enabled = false
+        [inputs.T]
+        distribution = "triangular"
+        low = 0.0
+        high = 10.0
+        value = 2.0
+    """))
+    q = b.input("T")
+    ref = stats.triang(0.2, loc=0.0, scale=10.0)
+    assert q.value == pytest.approx(ref.mean(), rel=1e-12) and q.value == pytest.approx(4.0)
+    assert q.standard_uncertainty == pytest.approx(ref.std(), rel=1e-12)
+    assert round(q.standard_uncertainty, 2) == 2.16
+    assert any("mode" in n and "(a + b + c)/3" in n for n in q.provenance.notes)
+
+
+def _volt(tmp_path: Path, **table):
+    t = {"module": "voltmeter", "gain": 1.0000012, **table}
+    return run_module(InputContext(name="g", table=t, folder=tmp_path, spec_file="spec.toml"))
+
+
+def test_voltmeter_certificate_k_implies_dof(tmp_path):
+    (q,) = _volt(tmp_path, gain_expanded_uncertainty=2.87e-7,
+                 gain_coverage_factor=2.87).quantities
+    # ν from k = 2.87 at 95 % (scipy.stats.t.ppf(0.975, 3.69) = 2.87); sampled as t_ν (§6.4.9.7)
+    assert q.dof == pytest.approx(3.69, abs=0.005) and q.distribution.kind == "student-t"
+    assert q.standard_uncertainty == pytest.approx(1e-7, rel=1e-12)
+    assert "inferred from k = 2.87 at 95 %" in q.provenance.dof_reason
+    (q,) = _volt(tmp_path, gain_expanded_uncertainty=2e-7, gain_coverage_factor=2,
+                 gain_coverage_probability=0.9545).quantities
+    assert math.isinf(q.dof)
+
+
+@pytest.mark.parametrize("table,field", [
+    ({"gain_expanded_uncertainty": 1e-7, "gain_coverage_factor": 0.5}, "gain_coverage_factor"),
+    ({"gain_uncertainty": 1e-7, "stability": 1.0}, "stability"),
+    ({"gain_uncertainty": 1e-7, "gain_coverage_probability": 0.95},
+     "gain_coverage_probability"),
+])
+def test_voltmeter_refusals(tmp_path, table, field):
+    with pytest.raises(SpecError) as e:
+        _volt(tmp_path, **table)
+    assert e.value.field == f"inputs.g.{field}"
