@@ -27,15 +27,15 @@ import numpy as np
 import scipy.linalg
 from scipy.optimize import curve_fit
 
-from budget.inputs.pump_analysis import analyse_data
-from budget.inputs.pump_cascade import CascadeModel
-from budget.inputs.pump_escape import (
+from budget.inputs.pump.analysis import analyse_data
+from budget.inputs.pump.cascade import CascadeModel
+from budget.inputs.pump.escape import (
     BATEMAN_TOLERANCE,
     EscapeModel,
     bateman_probabilities,
     matrix_exponential_probabilities,
 )
-from budget.inputs.pump_fit import fit_least_squares
+from budget.inputs.pump.fit import fit_least_squares
 
 REPEATS = 5
 

@@ -22,7 +22,7 @@ sys.path.insert(0, str(Path(__file__).resolve().parents[1] / "tests"))
 
 from evidence_helpers import PASSPHRASE, make_pdf, write_spec_folder  # noqa: E402
 
-from budget import archive, signing  # noqa: E402
+from budget import archive, signing, verify  # noqa: E402
 from budget.engine import evaluate  # noqa: E402
 from budget.spec import load_spec  # noqa: E402
 
@@ -59,7 +59,7 @@ def main() -> None:
                                                record_json=record, spec_text=spec_bytes)
             t_sign = best(sign)
             signed = holder["s"]
-            t_verify = best(lambda: signing.verify_pdf(signed, ident.pem_path))
+            t_verify = best(lambda: verify.verify_pdf(signed, ident.pem_path))
             t_hash = best(lambda: hashlib.sha256(signed).hexdigest())
             print(f"{pages:2d} page(s), {len(signed) / 1e3:7.1f} kB: sign {t_sign * 1e3:7.1f} ms, "
                   f"verify {t_verify * 1e3:7.1f} ms, sha256 {t_hash * 1e6:7.1f} µs")

@@ -1,4 +1,4 @@
-"""Signed reports: signing identities, PAdES signatures with embedded evidence, verification.
+"""Signed reports: signing identities and PAdES signatures with embedded evidence.
 
 * :func:`create_identity` writes ``identity.p12`` (an EC P-256 private key and a self-signed
   X.509 certificate naming the signer and role, encrypted with a passphrase) and
@@ -8,9 +8,8 @@
   attachments (:data:`ATTACHMENTS`) and signs the document in the same revision, so the
   signature covers them: a PAdES baseline signature (ETSI EN 319 142-1, level B-B) made with
   pyHanko, with a visible signature block (signer's name, role, date; reason when given).
-* :func:`verify_pdf` (in :mod:`budget.verify`, re-exported here with ``VerifyResult`` and
-  ``SignatureCheck``) checks every signature: intact, valid, trusted, and that no later
-  revision changed content; the evidence is read from the signed revision.
+* Verification is :func:`budget.verify.verify_pdf`; both read attachments through
+  :mod:`budget.pdf_evidence`, which sits below them (neither imports the other).
 
 Passphrases and keys are used in memory only: never logged, never written except into the
 encrypted PKCS#12 file, never put into a record, a PDF or an error message.
@@ -28,13 +27,11 @@ from pathlib import Path
 from typing import Any
 
 from .errors import DataError, UsageError
+from .pdf_evidence import ATTACHMENTS, attachments_of, open_pdf, read_attachments
 
-__all__ = ["ATTACHMENTS", "Identity", "create_identity", "sign_pdf", "verify_pdf",
-           "read_attachments", "identity_of", "SIGNATURE_BOX"]
+__all__ = ["ATTACHMENTS", "Identity", "create_identity", "sign_pdf", "read_attachments",
+           "identity_of", "SIGNATURE_BOX"]
 
-#: Names of the attachments sign_pdf embeds (role -> file name inside the PDF).
-ATTACHMENTS = {"record": "budget-record.json", "spec": "budget-spec.toml",
-               "manifest": "budget-manifest.json"}
 #: Default visible signature block on the last page: (right margin, bottom margin, width,
 #: height) in PDF points (1/72 inch), measured from the page's lower-right corner.
 SIGNATURE_BOX = (56, 36, 250, 72)
@@ -204,58 +201,6 @@ def identity_of(p12_path: str | Path, passphrase: str | bytes) -> tuple[str, str
     return _subject_parts(cert.subject)
 
 
-# --------------------------------------------------------------------------- attachments
-def _name_tree_pairs(node, depth: int = 0):
-    """(name, filespec) pairs of a PDF name tree (flat /Names or nested /Kids)."""
-    if depth > 32:  # a name tree this deep is malformed (or a loop)
-        return
-    names = node.get("/Names")
-    if names is not None:
-        names = names.get_object()
-        for i in range(0, len(names) - 1, 2):
-            yield str(names[i]), names[i + 1].get_object()
-    for kid in node.get("/Kids", []) or []:
-        yield from _name_tree_pairs(kid.get_object(), depth + 1)
-
-
-def _attachments_of(root) -> dict[str, bytes]:
-    out: dict[str, bytes] = {}
-    try:
-        tree = root["/Names"]["/EmbeddedFiles"]
-    except KeyError:
-        return out
-    for name, spec in _name_tree_pairs(tree.get_object()):
-        try:
-            ef = spec["/EF"]
-            stream = (ef.get("/UF") or ef["/F"]).get_object()
-            out[name] = stream.data
-        except (KeyError, AttributeError, TypeError):
-            continue
-    return out
-
-
-def read_attachments(pdf_bytes: bytes) -> dict[str, bytes]:
-    """All embedded files of a PDF's latest revision, name -> bytes."""
-    reader = _reader(pdf_bytes)
-    return _attachments_of(reader.root)
-
-
-def _reader(pdf_bytes: bytes, file: str | None = None):
-    from pyhanko.pdf_utils.reader import PdfFileReader
-    if not pdf_bytes.lstrip()[:5] == b"%PDF-":
-        raise DataError("not a PDF file", file=file)
-    try:
-        r = PdfFileReader(io.BytesIO(pdf_bytes), strict=False)
-        _ = r.root
-    except Exception as exc:  # pyHanko raises several kinds on a damaged file
-        raise DataError(f"cannot read the PDF ({type(exc).__name__}: {exc})",
-                        file=file) from None
-    if r.encrypted:
-        raise DataError("encrypted PDFs are not supported", file=file)
-    return r
-
-
-# --------------------------------------------------------------------------- signing
 _LATIN = {"Ł": "L", "ł": "l", "Đ": "D", "đ": "d", "Œ": "OE", "œ": "oe", "ı": "i",
           "Ŋ": "N", "ŋ": "n", "Ħ": "H", "ħ": "h", "ſ": "s", "–": "-", "—": "-",
           "‘": "'", "’": "'", "“": '"', "”": '"'}
@@ -369,8 +314,8 @@ def sign_pdf(pdf_bytes: bytes, p12_path: str | Path, passphrase: str | bytes, *,
 
     key, cert, others = _load_p12(p12_path, passphrase)
     name, role = _subject_parts(cert.subject)
-    reader = _reader(pdf_bytes, "report")
-    existing = _attachments_of(reader.root)
+    reader = open_pdf(pdf_bytes, "report")
+    existing = attachments_of(reader.root)
     for fname, (data, _, _) in payload.items():
         if fname in existing and existing[fname] != data:
             raise UsageError(f"the report already carries a different {fname}; sign it with "
@@ -445,18 +390,3 @@ def _registry(others):
     cs.register_multiple(keys_internal.translate_pyca_cryptography_cert_to_asn1(c)
                          for c in others)
     return cs
-
-
-# --------------------------------------------------------------------------- verifying
-def verify_pdf(pdf_bytes: bytes, trust_pem, *, file: str | None = None):
-    """Check a signed report; see :func:`budget.verify.verify_pdf` (kept there, with
-    :class:`~budget.verify.VerifyResult`, so that this module stays about signing)."""
-    from .verify import verify_pdf as _verify
-    return _verify(pdf_bytes, trust_pem, file=file)
-
-
-def __getattr__(name: str):
-    if name in ("VerifyResult", "SignatureCheck"):
-        from . import verify
-        return getattr(verify, name)
-    raise AttributeError(f"module {__name__!r} has no attribute {name!r}")

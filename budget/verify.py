@@ -19,7 +19,7 @@ from pathlib import Path
 from typing import Any
 
 from .errors import DataError
-from .signing import ATTACHMENTS, _attachments_of, _reader
+from .pdf_evidence import ATTACHMENTS, attachments_of, open_pdf
 
 __all__ = ["verify_pdf", "VerifyResult", "SignatureCheck"]
 
@@ -214,7 +214,7 @@ def verify_pdf(pdf_bytes: bytes, trust_pem, *, file: str | None = None) -> Verif
         raise DataError("not a PDF file", file=file)
     empty = VerifyResult(False, False, False, "", "", None, (), None, None, None)
     try:
-        reader = _reader(pdf_bytes, file)
+        reader = open_pdf(pdf_bytes, file)
         sigs = sorted(reader.embedded_regular_signatures, key=lambda s: s.signed_revision)
     except DataError as exc:
         return _replace(empty, problems=(f"the PDF is damaged: {exc.message}",))
@@ -226,8 +226,8 @@ def verify_pdf(pdf_bytes: bytes, trust_pem, *, file: str | None = None) -> Verif
     problems = [p for c in checks for p in c.problems]
     last = sigs[-1]
     try:
-        signed = _attachments_of(reader.get_historical_resolver(last.signed_revision).root)
-        latest = _attachments_of(reader.root)
+        signed = attachments_of(reader.get_historical_resolver(last.signed_revision).root)
+        latest = attachments_of(reader.root)
     except Exception as exc:  # a damaged name tree
         signed, latest = {}, {}
         problems.append(f"the embedded files cannot be read: {type(exc).__name__}: {exc}")

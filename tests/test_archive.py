@@ -18,6 +18,7 @@ from budget import archive as ar
 from budget import cli
 from budget.engine import evaluate
 from budget.errors import DataError, UsageError
+from budget.recompute import recompute
 from budget.spec import load_spec
 
 
@@ -69,7 +70,7 @@ def test_restore_and_recompute_byte_identical(lab, tmp_path):
     again = evaluate(load_spec(restored)).to_json()
     assert again == budget.to_json()
     c = ar.read_archive(tmp_path / "arch")
-    chk = ar.recompute(c.spec_bytes, c.record_json, c.manifest, restored.parent)
+    chk = recompute(c.spec_bytes, c.record_json, c.manifest, restored.parent)
     assert chk.ok and chk.record_identical and [f.status for f in chk.files] == ["same"]
 
 
@@ -80,7 +81,7 @@ def test_recompute_names_the_changed_file(lab, tmp_path):
     cal = restored.parent / "data" / "cal.csv"
     cal.write_text(cal.read_text("utf-8").replace("2.0000021", "2.0000031"), encoding="utf-8")
     c = ar.read_archive(tmp_path / "arch")
-    chk = ar.recompute(c.spec_bytes, c.record_json, c.manifest, restored.parent)
+    chk = recompute(c.spec_bytes, c.record_json, c.manifest, restored.parent)
     assert not chk.ok and not chk.record_identical
     assert [f.status for f in chk.files] == ["changed"]
     assert any("data/cal.csv" in p for p in chk.problems)

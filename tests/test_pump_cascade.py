@@ -15,8 +15,8 @@ import pytest
 from scipy import stats
 from scipy.optimize import curve_fit
 
-from budget.inputs.pump_analysis import analyse_data
-from budget.inputs.pump_cascade import CascadeModel
+from budget.inputs.pump.analysis import analyse_data
+from budget.inputs.pump.cascade import CascadeModel
 
 # invented but typical: step width ~3/a ≈ 10 mV, δ_2 = a (V_2 − V_1) = 20
 A_TRUE, V1, V2, V3 = 300.0, -0.60, -0.60 + 20 / 300.0, -0.47

@@ -11,8 +11,8 @@ from pathlib import Path
 import numpy as np
 
 from budget.cli import main
-from budget.inputs.pump_cascade import CascadeModel
-from budget.inputs.pump_escape import EscapeModel
+from budget.inputs.pump.cascade import CascadeModel
+from budget.inputs.pump.escape import EscapeModel
 
 
 def scan(tmp_path: Path) -> Path:

@@ -20,8 +20,8 @@ import scipy.linalg
 from scipy import stats
 from scipy.integrate import solve_ivp
 
-from budget.inputs.pump_analysis import analyse_data
-from budget.inputs.pump_escape import (
+from budget.inputs.pump.analysis import analyse_data
+from budget.inputs.pump.escape import (
     EscapeModel,
     bateman_probabilities,
     matrix_exponential_probabilities,

@@ -15,9 +15,9 @@ import pytest
 
 from budget.errors import DataError, SpecError
 from budget.inputs import InputContext, run_module
-from budget.inputs.pump_cascade import CascadeModel
-from budget.inputs.pump_escape import EscapeModel
-from budget.inputs.pump_fitfile import fit_file_text, read_fit_file, record_from_dict
+from budget.inputs.pump.cascade import CascadeModel
+from budget.inputs.pump.escape import EscapeModel
+from budget.inputs.pump.fitfile import fit_file_text, read_fit_file, record_from_dict
 
 
 def make_scan(folder: Path) -> Path:

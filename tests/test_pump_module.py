@@ -17,7 +17,7 @@ import pytest
 from budget.errors import DataError, SpecError
 from budget.inputs import InputContext, run_module
 from budget.inputs.pump import KEYS
-from budget.inputs.pump_cascade import CascadeModel
+from budget.inputs.pump.cascade import CascadeModel
 
 TRUTH = [300.0, -0.60, -0.60 + 20 / 300.0, -0.47]   # a (1/V), V_1..V_3 (V); δ_2 = 20
 
@@ -50,7 +50,7 @@ def test_single_quantity_with_provenance(tmp_path):
     assert q.provenance.origin == "module:pump"
     assert q.provenance.notes[0].startswith("model extrapolation, not a measurement")
     assert q.provenance.files[0].path == "scan.csv" and q.provenance.files[0].rows == "1-181"
-    assert "seed 20100430" in q.provenance.method      # the module's default (pump_fit.DEFAULT_SEED)
+    assert "seed 20100430" in q.provenance.method      # the module's default (pump.fit.DEFAULT_SEED)
     # the truth (derived from TRUTH with the published formula) is covered at k = 3
     d_true = CascadeModel(3).deviation(np.array([TRUTH]), {"gate_voltage": -0.545}, 1)[0]
     assert abs(q.value - d_true) < 3 * q.standard_uncertainty
@@ -77,7 +77,7 @@ def test_discrepancy_allowance_is_its_own_row(tmp_path):
 
 
 def test_escape_model_through_the_spec(tmp_path):
-    from budget.inputs.pump_escape import EscapeModel
+    from budget.inputs.pump.escape import EscapeModel
     rng = np.random.default_rng(41)
     v = np.repeat(np.linspace(-0.34, -0.26, 3), 16)
     t = np.tile(np.geomspace(2e-9, 1.5e-5, 16), 3)

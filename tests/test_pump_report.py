@@ -1,6 +1,6 @@
 """The fixed-section text report and figure data of a pump analysis (library side of
 ``budget pump fit``). Checked against the project's own contracts: the section list of
-budget/inputs/pump_report.py, the fit-result format of budget/inputs/pump_fitfile.py and the
+budget/text/pump_text.py, the fit-result format of budget/inputs/pump/fitfile.py and the
 figure-dict format checked by budget/report/figures.check_figure. Data are synthetic.
 """
 
@@ -12,12 +12,13 @@ from pathlib import Path
 import numpy as np
 from scipy import constants
 
-from budget.inputs.pump_analysis import add_thermal_check, analyse_data, analyse_fit_file
-from budget.inputs.pump_cascade import CascadeModel
-from budget.inputs.pump_escape import EscapeModel
-from budget.inputs.pump_fitfile import record_from_dict
-from budget.inputs.pump_report import SECTIONS, figure_data, fit_report
+from budget.inputs.pump.analysis import add_thermal_check, analyse_data, analyse_fit_file
+from budget.inputs.pump.cascade import CascadeModel
+from budget.inputs.pump.escape import EscapeModel
+from budget.inputs.pump.figdata import figure_data
+from budget.inputs.pump.fitfile import record_from_dict
 from budget.report.figures import check_figure
+from budget.text.pump_text import SECTIONS, fit_report
 
 
 def cascade_analysis(tmp_path: Path):

@@ -16,7 +16,7 @@ import pytest
 from scipy import constants
 
 from budget.errors import DataError
-from budget.inputs.pump_thermal import read_thermal, thermal_check
+from budget.inputs.pump.thermal import read_thermal, thermal_check
 
 E_OVER_KB = constants.e / constants.k          # 11604.518... K/V (exact SI constants)
 TEMPS = np.array([0.8, 1.2, 1.8, 2.7, 4.0])     # K
@@ -47,7 +47,7 @@ def test_common_practice_slope_falls_with_temperature_in_thermal_regime():
     c = thermal_check(*thermal_rates(np.random.default_rng(1), alpha))
     assert all(np.diff(c.slopes) < 0)
     assert c.verdict == "thermal activation"
-    # 4 is the module's decision threshold (pump_thermal.DECISIVE: Δχ² of 4, i.e. a 2σ
+    # 4 is the module's decision threshold (pump.thermal.DECISIVE: Δχ² of 4, i.e. a 2σ
     # preference for one model)
     assert c.delta_chi2 > 4
     assert abs(c.lever_arm - alpha) < 3 * c.lever_arm_uncertainty

@@ -32,6 +32,7 @@ from scipy import special
 
 from .. import expression as ex
 from ..errors import ComputationError, SpecError
+from ..gradient import value_and_gradient
 from ..model import Model
 from ..quantity import Quantity
 
@@ -155,7 +156,7 @@ def propagate_linear(model: Model, quantities: Sequence[Quantity], corr: np.ndar
     results: dict[str, LinearResult] = {}
     cu_rows = []
     for name in model.outputs:
-        value, c = ex.value_and_gradient(model.trees[name], env, index)
+        value, c = value_and_gradient(model.trees[name], env, index)
         if not math.isfinite(value):
             raise ComputationError("the model gives a non-finite value at the input estimates "
                                    f"({value!r})", field=f"model.{name}")

@@ -6,7 +6,7 @@
     html = render_html(budget)                       # or certificate=True
     pdf = render_pdf(html)
 
-Templates: ``budget/templates/``. Figures: :mod:`budget.report.figures`. Signature field for the
+Templates: the top-level ``templates/`` folder (``budget/templates/`` in a wheel). Figures: :mod:`budget.report.figures`. Signature field for the
 signing step: :func:`render_pdf_layout` and :func:`read_signature_box` (see
 :mod:`budget.report.render`). Heavy imports (matplotlib, WeasyPrint) happen on first use only.
 """

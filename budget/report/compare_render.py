@@ -13,8 +13,7 @@ from collections.abc import Sequence
 
 from ..compare import Comparison, NormalisedError
 from ..fmt import fmt_num, fmt_u, fmt_value
-from .compare_figure import compare_figure
-from .figures import svg_data_uri
+from .figures import compare_figure, svg_data_uri
 
 __all__ = ["compare_html", "compare_pdf"]
 

@@ -1,6 +1,6 @@
-"""Figures of the report: matplotlib drawings turned into SVG text and ``data:`` URIs.
+"""Every figure the project draws: matplotlib drawings turned into SVG text and ``data:`` URIs.
 
-Three kinds of figure:
+The one place that draws (modules, the pump fit and the comparison only supply figure *data*):
 
 * :func:`share_figure` — horizontal bars of each term's share of u_c² for one measurand;
 * :func:`mc_figure` — the Monte Carlo histogram (as a probability density) with the linear
@@ -9,7 +9,8 @@ Three kinds of figure:
   intervals marked (y ± U from the law of propagation, and the Monte Carlo interval);
 * :func:`module_figure` — the generic renderer of the figure *data* that input modules put in
   ``diagnostics["figures"]`` (points with error bars, lines, bands; linear or log axes). The
-  Allan curve, the drift line with its band and the plateau fit all come through it.
+  Allan curve, the drift line with its band and the plateau fit all come through it;
+* :func:`compare_figure` — a comparison of runs, one labelled tick per run.
 
 No global matplotlib state is touched: every drawing builds its own ``Figure`` (not pyplot) and
 saves it with the SVG canvas, so importing :mod:`budget` or rendering a report never changes
@@ -35,7 +36,7 @@ from ..errors import DataError
 from ..fmt import fmt_dof, fmt_value
 from .text import pretty_label, sci, superscript
 
-__all__ = ["share_figure", "mc_figure", "module_figure", "check_figure", "svg_data_uri",
+__all__ = ["share_figure", "compare_figure", "mc_figure", "module_figure", "check_figure", "svg_data_uri",
            "linear_pdf", "MAX_POINTS"]
 
 #: Longest series drawn; longer ones are thinned evenly (the modules' own limit is ~400).
@@ -300,3 +301,45 @@ def module_figure(fig: dict[str, Any], where: str = "figure") -> str:
             # dates as decimal years (2026.4...) must not turn into "+2.026e3" offsets
             ax.ticklabel_format(useOffset=False, axis="x", style="plain")
         return _to_svg(mfig)
+
+
+# --------------------------------------------------------------------------- comparison
+_COMPARE_RC = {"svg.fonttype": "none", "svg.hashsalt": "qcs-budget-compare",
+       "font.family": ["DejaVu Sans"], "font.size": 8.0, "legend.fontsize": 7.0,
+       "axes.unicode_minus": True, "text.parse_math": False, "axes.grid": True,
+       "grid.alpha": 0.3, "axes.spines.top": False, "axes.spines.right": False}
+
+
+def compare_figure(fig: dict[str, Any], run_labels: Sequence[str]) -> str:
+    """SVG text of the comparison figure (``fig`` as built by :func:`budget.compare.compare_runs`):
+    each run with its expanded uncertainty as an error bar over the reference (or weighted-mean)
+    band, one x tick per run labelled with ``run_labels`` (which :func:`module_figure` cannot do).
+    """
+    import matplotlib
+    from matplotlib.figure import Figure
+
+    f = check_figure(fig, "comparison figure")
+    with matplotlib.rc_context(_COMPARE_RC):
+        mfig = Figure(figsize=(6.3, 2.5), layout="constrained")
+        ax = mfig.add_subplot()
+        for s in f["series"]:
+            label = s["label"] or None
+            if s["style"] == "band":
+                ax.fill_between(s["x"], s["y_low"], s["y_high"], color="#9fbad6", alpha=0.5,
+                                lw=0, label=label)
+            elif s["style"] == "line":
+                ax.plot(s["x"], s["y"], color="#1f4e79", lw=1.0, label=label)
+            else:
+                ax.errorbar(s["x"], s["y"], yerr=s.get("yerr"), fmt="o", ms=4, lw=1.0,
+                            capsize=3, color="#c0392b", label=label)
+        n = len(run_labels)
+        ax.set_xticks(range(1, n + 1), list(run_labels))
+        ax.set_xlim(0.5, n + 0.5)
+        ax.grid(axis="x", visible=False)
+        ax.set_xlabel(f["xlabel"])
+        ax.set_ylabel(f["ylabel"])
+        ax.ticklabel_format(axis="y", useOffset=False)
+        ax.legend(frameon=False, loc="best")
+        buf = io.StringIO()
+        mfig.savefig(buf, format="svg", metadata={"Date": None})
+        return buf.getvalue()

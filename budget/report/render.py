@@ -2,11 +2,12 @@
 
 Templates
 ---------
-The templates and the style sheet live *inside the package*, in ``budget/templates/``
+The templates and the style sheet live in the repository's top-level ``templates/`` folder
 (``report.html.j2``, ``certificate.html.j2``, ``base.html.j2``, ``_macros.html.j2``,
-``report.css``), and are loaded with :class:`jinja2.PackageLoader`, so they are found in an
-editable install and from a wheel alike (``pyproject.toml`` lists ``templates/*`` as package
-data). The style sheet is inlined into the HTML: the renderer fetches nothing.
+``report.css``). A wheel carries them as ``budget/templates/`` (``setup.py`` copies the folder
+into the build); a source checkout or editable install reads the top-level folder.
+:func:`template_dir` says which one is used. The style sheet is inlined into the HTML: the
+renderer fetches nothing.
 
 Safety
 ------
@@ -37,6 +38,7 @@ import re
 import urllib.parse
 from dataclasses import dataclass
 from functools import lru_cache
+from pathlib import Path
 from typing import Any
 
 from ..errors import ComputationError
@@ -46,7 +48,7 @@ from .text import FILTERS
 
 __all__ = ["render_html", "render_pdf", "render_pdf_layout", "RenderedPdf", "SignatureBox",
            "DataOnlyFetcher", "read_signature_box", "SIGNATURE_FIELD_ID", "SIGNATURE_FIELD_MM",
-           "SIGNATURE_INFO_KEY", "looks_signed"]
+           "SIGNATURE_INFO_KEY", "looks_signed", "template_dir"]
 
 SIGNATURE_FIELD_ID = "signature-field"
 SIGNATURE_FIELD_MM = (80.0, 28.0)            # width, height; fixed in report.css
@@ -54,10 +56,24 @@ SIGNATURE_INFO_KEY = "QcsSignatureBox"       # document-information key (letters
 _PX_TO_PT = 0.75                             # CSS px are 1/96 in, PDF points 1/72 in
 
 
+_PACKAGE_ROOT = Path(__file__).resolve().parent.parent      # .../budget
+
+
+def template_dir() -> Path:
+    """The folder the templates are read from: ``budget/templates`` inside an installed wheel,
+    else the repository's top-level ``templates/`` (source checkout, editable install)."""
+    for candidate in (_PACKAGE_ROOT / "templates", _PACKAGE_ROOT.parent / "templates"):
+        if (candidate / "report.html.j2").is_file():
+            return candidate
+    raise ComputationError("the report templates are missing from this installation "
+                           f"(looked in {_PACKAGE_ROOT / 'templates'} and "
+                           f"{_PACKAGE_ROOT.parent / 'templates'})", field="templates")
+
+
 @lru_cache(maxsize=1)
 def _environment():
     import jinja2
-    env = jinja2.Environment(loader=jinja2.PackageLoader("budget", "templates"),
+    env = jinja2.Environment(loader=jinja2.FileSystemLoader(str(template_dir())),
                              autoescape=True, undefined=jinja2.StrictUndefined,
                              trim_blocks=False, lstrip_blocks=False, keep_trailing_newline=True)
     env.filters.update(FILTERS)

@@ -9,7 +9,7 @@ from typing import TYPE_CHECKING
 from .tables import table
 
 if TYPE_CHECKING:  # pragma: no cover - annotations only
-    from ..archive import RecheckResult
+    from ..recompute import RecheckResult
     from ..references import Check
     from ..signing import Identity
     from ..verify import VerifyResult

@@ -10,7 +10,7 @@ Spec keys of ``[inputs.NAME]`` with ``module = "pump"``
 -------------------------------------------------------
 ``file``                   CSV of characterisation data (relative to the spec), **or**
 ``fit_file``               a fit-result file (TOML, or JSON by suffix; format documented in
-                           :mod:`budget.inputs.pump_fitfile`) from another fitting program.
+                           :mod:`budget.inputs.pump.fitfile`) from another fitting program.
 ``model``                  ``"decay-cascade"`` (plateau scan: columns ``gate_voltage`` [V],
                            ``n_mean``, optional ``n_std`` [electrons per cycle]) or
                            ``"sequential-escape"`` (escape record: ``hold_time_s`` [s],
@@ -59,12 +59,12 @@ from typing import Any
 
 import numpy as np
 
-from ..distributions import Distribution
-from ..quantity import ModuleResult, Provenance, Quantity
-from .context import InputContext
-from .pump_analysis import MODELS, PumpAnalysis, add_thermal_check, analyse_data, analyse_fit_file
-from .pump_fit import DEFAULT_SAMPLES, DEFAULT_SEED
-from .pump_report import figure_data
+from ...distributions import Distribution
+from ...quantity import ModuleResult, Provenance, Quantity
+from ..context import InputContext
+from .analysis import MODELS, PumpAnalysis, add_thermal_check, analyse_data, analyse_fit_file
+from .figdata import figure_data
+from .fit import DEFAULT_SAMPLES, DEFAULT_SEED
 
 __all__ = ["KEYS", "evaluate", "quantities_of", "json_ready"]
 

@@ -43,9 +43,9 @@ from typing import Any
 
 import numpy as np
 
-from ..errors import DataError, did_you_mean
-from .pump_cascade import CascadeModel
-from .pump_escape import EscapeModel
+from ...errors import DataError, did_you_mean
+from .cascade import CascadeModel
+from .escape import EscapeModel
 
 __all__ = ["FitRecord", "read_fit_file", "record_from_dict", "fit_file_text", "make_model", "KIND",
            "VERSION"]

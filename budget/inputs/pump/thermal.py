@@ -31,8 +31,8 @@ from typing import Any
 import numpy as np
 from scipy import constants, stats
 
-from ..errors import DataError
-from .tables import numeric_column, read_table, row_ranges
+from ...errors import DataError
+from ..tables import numeric_column, read_table, row_ranges
 
 __all__ = ["ThermalCheck", "read_thermal", "thermal_check", "DECISIVE", "P_ACCEPT"]
 

@@ -25,7 +25,7 @@ from typing import Any
 import numpy as np
 from scipy.optimize import least_squares
 
-from ..errors import DataError
+from ...errors import DataError
 
 __all__ = ["FitResult", "Prediction", "fit_least_squares", "predict_delta", "sample_parameters",
            "DIFFER_FRACTION",

@@ -17,10 +17,11 @@ from typing import Any
 
 import numpy as np
 
-from ..errors import BudgetError, DataError, SpecError
-from .pump_cascade import CascadeModel
-from .pump_escape import EscapeModel
-from .pump_fit import (
+from ...errors import BudgetError, DataError, SpecError
+from ..tables import numeric_column, read_table, row_ranges
+from .cascade import CascadeModel
+from .escape import EscapeModel
+from .fit import (
     DEFAULT_SAMPLES,
     DEFAULT_SEED,
     FitResult,
@@ -28,9 +29,8 @@ from .pump_fit import (
     fit_least_squares,
     predict_delta,
 )
-from .pump_fitfile import FitRecord, make_model, read_fit_file
-from .pump_thermal import ThermalCheck, read_thermal
-from .tables import numeric_column, read_table, row_ranges
+from .fitfile import FitRecord, make_model, read_fit_file
+from .thermal import ThermalCheck, read_thermal
 
 __all__ = ["PumpData", "PumpAnalysis", "read_pump_data", "analyse_data", "analyse_fit_file",
            "add_thermal_check", "MODELS", "SPACING_FACTOR"]
@@ -421,7 +421,7 @@ def analyse_fit_file(path: Path, *, plateau: int | None = None,
                      seed: int = DEFAULT_SEED, shown: str | None = None,
                      option_error: OptionError = _default_option_error,
                      recorded: str | None = None) -> PumpAnalysis:
-    """The pump term from a fit-result file (see :mod:`budget.inputs.pump_fitfile`).
+    """The pump term from a fit-result file (see :mod:`budget.inputs.pump.fitfile`).
 
     ``plateau``, ``operating_point`` and ``hold_time`` given here replace the file's values
     (a note records it); the sampling is the same as for raw data, so identical parameters,

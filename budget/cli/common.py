@@ -1,0 +1,150 @@
+"""What every command shares: the argument parser class, the progress bar, command groups,
+argument types, reading input files, evaluating a spec and the archive options.
+
+Exit codes: 0 ok, 1 a check failed, 2 bad input or usage, 130 interrupted (128 + signal).
+"""
+
+from __future__ import annotations
+
+import argparse
+import math
+import sys
+import time
+from pathlib import Path
+
+from ..errors import UsageError
+
+EXIT_OK, EXIT_CHECK_FAILED, EXIT_BAD_INPUT, EXIT_INTERRUPTED = 0, 1, 2, 130
+
+
+class Parser(argparse.ArgumentParser):
+    """argparse that reports usage errors as one line and exit code 2."""
+
+    def error(self, message: str):  # noqa: D401 - argparse API
+        raise UsageError(f"{self.prog}: {message}")
+
+
+class Progress:
+    """A progress bar on stderr for Monte Carlo runs longer than about two seconds."""
+
+    def __init__(self, enabled: bool):
+        self.enabled = enabled and sys.stderr.isatty()
+        self.start = time.monotonic()
+        self.shown = False
+
+    def __call__(self, done: int, total: int) -> None:
+        if not self.enabled or time.monotonic() - self.start < 2.0:
+            return
+        frac = min(done / max(total, 1), 1.0)
+        bar = "#" * int(30 * frac)
+        self.shown = True  # before writing: a Ctrl-C inside write() must still end the line
+        sys.stderr.write(f"\rMonte Carlo [{bar:<30}] {done:>12,} trials")
+        sys.stderr.flush()
+
+    def close(self) -> None:
+        if self.shown:
+            sys.stderr.write("\n")
+
+def add_group(sub, name: str, *, help: str, description: str):
+    """Register a command whose work is done by ACTION subcommands (``budget pump fit``);
+    without an ACTION it prints its help and exits 2. Returns the ACTION subparsers."""
+    p = sub.add_parser(name, help=help, description=description)
+    p.set_defaults(func=cmd_group_help, group_parser=p)
+    return p.add_subparsers(dest=f"{name}_command", metavar="ACTION", parser_class=Parser)
+
+
+def cmd_group_help(args) -> int:
+    args.group_parser.print_help()
+    return EXIT_BAD_INPUT
+
+
+def trials_arg(text: str):
+    if text == "adaptive":
+        return None
+    try:
+        return int(text.replace("_", ""))
+    except ValueError:
+        raise argparse.ArgumentTypeError(f"must be an integer or 'adaptive'; got {text!r}") from None
+
+
+def seed_arg(text: str) -> int:
+    try:
+        v = int(text)
+    except ValueError:
+        raise argparse.ArgumentTypeError(f"must be a non-negative integer; got {text!r}") from None
+    if v < 0:
+        raise argparse.ArgumentTypeError(f"must be a non-negative integer; got {text!r}")
+    return v
+
+
+def evaluate_spec(args):
+    from ..engine import evaluate
+    from ..spec import load_spec
+    spec = load_spec(args.spec)
+    progress = Progress(True)
+    try:
+        trials = getattr(args, "trials", "spec")
+        return evaluate(spec, trials=trials, seed=getattr(args, "seed", None),
+                        monte_carlo_enabled=False if getattr(args, "no_monte_carlo", False)
+                        else None, progress=progress)
+    finally:
+        progress.close()
+
+
+def number(text: str) -> float | None:
+    try:
+        v = float(text)
+    except ValueError:
+        return None
+    return v if math.isfinite(v) else None
+
+
+def positive_float(text: str) -> float:
+    v = number(text)
+    if v is None or v <= 0:
+        raise argparse.ArgumentTypeError(f"must be a number > 0; got {text!r}")
+    return v
+
+
+def finite_float(text: str) -> float:
+    v = number(text)
+    if v is None:
+        raise argparse.ArgumentTypeError(f"must be a finite number; got {text!r}")
+    return v
+
+
+def read_input(path: str, field: str) -> bytes:
+    from ..errors import DataError
+    try:
+        return Path(path).read_bytes()
+    except FileNotFoundError:
+        raise DataError("file not found", file=path, field=field) from None
+    except OSError as exc:
+        raise DataError(f"cannot read it ({exc.strerror})", file=path, field=field) from None
+
+
+def add_archive_options(p) -> None:
+    """``--archive DIR`` and ``--force-archive`` (shared by ``run`` and ``report``)."""
+    p.add_argument("--archive", metavar="DIR",
+                   help="also copy the spec, every input file and the record into DIR, "
+                        "content-addressed with a manifest of SHA-256 digests, so the budget "
+                        "can be recomputed later (e.g. by verify --inputs DIR)")
+    p.add_argument("--force-archive", action="store_true",
+                   help="replace an existing archive in DIR")
+
+
+def check_archive_option(args) -> None:
+    """Refuse an unusable --archive folder before any work is done."""
+    if getattr(args, "archive", None):
+        from ..archive import check_archive_target
+        check_archive_target(args.archive, force=args.force_archive)
+
+
+def write_archive_option(args, b) -> None:
+    if not getattr(args, "archive", None):
+        return
+    from ..archive import archive
+    from ..spec import load_spec
+    info = archive(load_spec(args.spec), b, args.archive, force=args.force_archive)
+    print(f"archive written to {info.path} (spec and {len(info.files)} input file"
+          f"{'' if len(info.files) == 1 else 's'})")

@@ -1,0 +1,129 @@
+"""``budget explain`` and ``budget compare``: reading a result for an auditor."""
+
+from __future__ import annotations
+
+import json
+from pathlib import Path
+
+from .. import __version__
+from ..errors import UsageError
+from .common import EXIT_OK, number
+
+
+def add_explain(sub) -> None:
+    p = sub.add_parser("explain", help="where each number of a budget comes from",
+                       description="Without TERM: every term of every measurand, sorted by "
+                                   "its share of u_c². With TERM: a fixed-section answer for "
+                                   "that term (estimate, distribution and ν with their reasons, "
+                                   "the partial derivative, contribution, sources and digests, "
+                                   "module diagnostics, what-if lines). Reads a spec, or a "
+                                   "stored result with --record.")
+    p.add_argument("spec", nargs="?", metavar="SPEC", help="budget spec file (TOML)")
+    p.add_argument("term", nargs="?", metavar="TERM", help="the term (input) to explain")
+    p.add_argument("--record", metavar="RESULT.json",
+                   help="explain a stored result record instead of evaluating a spec")
+    p.add_argument("--measurand", metavar="NAME", help="only this measurand")
+    p.add_argument("--json", metavar="OUT", help="write the answer as JSON to OUT")
+    p.set_defaults(func=_cmd_explain)
+
+
+def _cmd_explain(args) -> int:
+    from ..errors import ComputationError
+    from ..explain import explain_term, overview
+    from ..outputs import check_writable, write_atomic
+    from ..record import load_record
+    from ..text import explain_overview_text, explain_term_text
+    if args.json:
+        check_writable(args.json)
+    if args.record:
+        given = [x for x in (args.spec, args.term) if x]
+        if len(given) > 1:
+            raise UsageError("with --record give only TERM, not a spec", field="SPEC")
+        b = load_record(args.record)
+        term = given[0] if given else None
+    else:
+        if not args.spec:
+            raise UsageError("give a SPEC file, or --record RESULT.json", field="SPEC")
+        from ..engine import evaluate
+        from ..spec import load_spec
+        b = evaluate(load_spec(args.spec), monte_carlo_enabled=False)
+        term = args.term
+    if term is None:
+        answer = overview(b, args.measurand)
+        print(explain_overview_text(answer))
+    else:
+        answer = explain_term(b, term, args.measurand)
+        print(explain_term_text(answer))
+    if args.json:
+        try:
+            text = json.dumps(answer.to_dict(), indent=2, ensure_ascii=False, allow_nan=False)
+        except ValueError:  # a module put inf/NaN in its diagnostics (its contract says None)
+            raise ComputationError("the answer holds a non-finite number and cannot be "
+                                   "written as JSON", file=args.json, field="--json") from None
+        write_atomic(args.json, text + "\n")
+        print(f"\nanswer written to {args.json}")
+    return EXIT_OK
+
+
+
+def add_compare(sub) -> None:
+    p = sub.add_parser("compare", help="compare runs: weighted mean, Birge ratio, E_n",
+                       description="Compare result records of several runs: a table of runs, "
+                                   "the weighted mean with internal and external uncertainty, "
+                                   "Birge ratio, χ² and its p-value, and E_n (k = 2) of each "
+                                   "run against a reference or the weighted mean. Terms with "
+                                   "the same source digest in two records are treated as "
+                                   "shared.")
+    p.add_argument("records", nargs="*", metavar="RECORD.json", help="result records")
+    p.add_argument("--reference", nargs="+", metavar="REF",
+                   help="VALUE U (U with k = 2, in the measurand's unit) or a RECORD.json")
+    p.add_argument("--measurand", metavar="NAME",
+                   help="output to compare (default: the one named dev…, else the first)")
+    p.add_argument("--pairwise", action="store_true", help="also E_n of every pair of runs")
+    p.add_argument("--pdf", metavar="OUT.pdf", help="write the comparison as a PDF")
+    p.add_argument("--json", metavar="OUT", help="write the comparison as JSON")
+    p.set_defaults(func=_cmd_compare)
+
+
+def _cmd_compare(args) -> int:
+    from ..compare import ReferenceValue, compare_runs
+    from ..outputs import check_writable, write_atomic
+    from ..record import load_record
+    from ..text import compare_text
+    records = list(args.records)
+    reference, ref_file = None, None
+    if args.reference:
+        ref = list(args.reference)
+        # argparse gives --reference every word after it; the words that do not belong to it
+        # are further records
+        if number(ref[0]) is not None:
+            if len(ref) < 2 or number(ref[1]) is None:
+                raise UsageError("--reference takes VALUE U (two numbers) or one RECORD.json",
+                                 field="--reference")
+            reference = ReferenceValue(number(ref[0]), number(ref[1]))
+            records += ref[2:]
+        else:
+            ref_file = ref[0]
+            records += ref[1:]
+    for out in (args.pdf, args.json):
+        if out:
+            check_writable(out)
+    runs = [load_record(f) for f in records]
+    if ref_file is not None:
+        reference = load_record(ref_file)
+    if not runs:
+        raise UsageError("give at least one RECORD.json", field="RECORD")
+    c = compare_runs(runs, measurand=args.measurand, reference=reference,
+                     pairwise=args.pairwise, files=records + ([ref_file] if ref_file else []))
+    print(compare_text(c, records))
+    if args.pdf:
+        from ..report.compare_render import compare_pdf
+        write_atomic(args.pdf, compare_pdf(c, files=[Path(f).name for f in records],
+                                           software=f"qcs-budget {__version__}"))
+        print(f"\nPDF written to {args.pdf}")
+    if args.json:
+        d = {"records": records, "reference_record": ref_file, **c.to_dict()}
+        write_atomic(args.json, json.dumps(d, indent=2, ensure_ascii=False, allow_nan=False)
+                     + "\n")
+        print(f"\ncomparison written to {args.json}")
+    return EXIT_OK

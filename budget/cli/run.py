@@ -1,0 +1,74 @@
+"""``budget run`` and ``budget validate``."""
+
+from __future__ import annotations
+
+import argparse
+import json
+
+from .common import (
+    EXIT_CHECK_FAILED,
+    EXIT_OK,
+    add_archive_options,
+    check_archive_option,
+    evaluate_spec,
+    seed_arg,
+    trials_arg,
+    write_archive_option,
+)
+
+
+def add_run(sub) -> None:
+    p = sub.add_parser("run", help="evaluate a budget spec and print its budget table",
+                       description="Evaluate a budget spec (TOML): GUM law of propagation and "
+                                   "the JCGM 101 Monte Carlo check. Prints the budget table; "
+                                   "--json writes the result record.")
+    p.add_argument("spec", help="budget spec file (TOML)")
+    p.add_argument("--json", metavar="OUT", help="write the result record (JSON) to OUT")
+    p.add_argument("--trials", type=trials_arg, metavar="N", default=argparse.SUPPRESS,
+                   help="Monte Carlo trials (integer or 'adaptive'); overrides the spec")
+    p.add_argument("--seed", type=seed_arg, metavar="S", help="random seed; overrides the spec")
+    p.add_argument("--no-monte-carlo", action="store_true", help="skip the Monte Carlo method")
+    add_archive_options(p)
+    p.set_defaults(func=_cmd_run)
+
+
+def _cmd_run(args) -> int:
+    from ..outputs import check_writable, write_atomic
+    if args.json:
+        check_writable(args.json)
+    check_archive_option(args)
+    from ..text import budget_text
+    b = evaluate_spec(args)
+    print(budget_text(b))
+    if args.json:
+        write_atomic(args.json, b.to_json())
+        print(f"\nrecord written to {args.json}")
+    write_archive_option(args, b)
+    return EXIT_OK
+
+
+
+
+def add_validate(sub) -> None:
+    p = sub.add_parser("validate", help="reproduce the published reference examples",
+                       description="Run the built-in reference cases (GUM H.2 and H.3, "
+                                   "EA-4/02 S3, JCGM 101 §9.2, GUM Table G.2, SI constants, "
+                                   "NIST SP 1065 Allan deviations) "
+                                   "and compare each computed number with the published one. "
+                                   "Exit 0 only if every check passes.")
+    p.add_argument("--json", metavar="OUT", help="write the checks as JSON to OUT")
+    p.set_defaults(func=_cmd_validate)
+
+
+def _cmd_validate(args) -> int:
+    from ..outputs import check_writable, write_atomic
+    from ..references import run_all
+    from ..text import validate_text
+    if args.json:
+        check_writable(args.json)
+    checks = run_all()
+    print(validate_text(checks))
+    if args.json:
+        write_atomic(args.json, json.dumps([c.to_dict() for c in checks], indent=2,
+                                           ensure_ascii=False) + "\n")
+    return EXIT_OK if all(c.passed for c in checks) else EXIT_CHECK_FAILED
