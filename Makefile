@@ -5,7 +5,7 @@ VENV := .venv
 BIN := $(VENV)/bin
 STAMP := $(VENV)/.installed
 
-.PHONY: demo test bench clean lint
+.PHONY: demo test bench clean lint wheel-check
 
 $(STAMP): pyproject.toml
 	$(PY) -m venv $(VENV)
@@ -18,6 +18,10 @@ demo: $(STAMP)
 
 test: $(STAMP)
 	$(BIN)/python -m pytest
+
+# a wheel built from this checkout, installed in a fresh venv, renders a report (CI runs it)
+wheel-check: $(STAMP)
+	PY=$(abspath $(BIN)/python) .ci/wheel_check.sh
 
 lint: $(STAMP)
 	$(BIN)/ruff check budget tests benchmarks worked_examples
