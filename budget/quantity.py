@@ -62,6 +62,13 @@ class Provenance:
         Data files read (empty for typed-in values).
     notes : tuple of str
         Cautions and flags (extrapolation, inflated scatter, model extrapolation ...).
+    across_runs : str
+        Whether the error is the same in other runs that use the same source: ``"shared"``
+        (systematic: a calibration, a certificate, a model), ``"independent"`` (noise during the
+        run, resolution, Type A), or ``""`` (not stated; ``compare`` then applies its defaults).
+    shared_as : str
+        A declared common cause (``shared_as = "label"`` of a typed-in input): two records share
+        the term when their labels match. Default ``""`` (not declared).
     """
 
     origin: str = "spec"
@@ -70,6 +77,8 @@ class Provenance:
     dof_reason: str = ""
     files: tuple[FileRef, ...] = ()
     notes: tuple[str, ...] = ()
+    across_runs: str = ""
+    shared_as: str = ""
 
     def to_dict(self) -> dict[str, Any]:
         return {
@@ -79,6 +88,8 @@ class Provenance:
             "dof_reason": self.dof_reason,
             "files": [f.to_dict() for f in self.files],
             "notes": list(self.notes),
+            "across_runs": self.across_runs,
+            "shared_as": self.shared_as,
         }
 
     @classmethod
@@ -87,7 +98,8 @@ class Provenance:
                    distribution_reason=d.get("distribution_reason", ""),
                    dof_reason=d.get("dof_reason", ""),
                    files=tuple(FileRef(**f) for f in d.get("files", [])),
-                   notes=tuple(d.get("notes", [])))
+                   notes=tuple(d.get("notes", [])),
+                   across_runs=d.get("across_runs", ""), shared_as=d.get("shared_as", ""))
 
 
 @dataclass(frozen=True)

@@ -47,14 +47,16 @@ def test_offset_bound_rectangular(tmp_path):
 def test_aging_and_allan_rows_and_expression(tmp_path):
     r = run_module(ctx(tmp_path, offset=1e-11, offset_uncertainty=2e-12,
                        aging_per_day=5e-12, comparison_date="2026-11-01", at="2026-11-21",
-                       allan_deviation=3e-12, allan_tau_s=1.0, measurement_time_s=36000.0))
+                       allan_deviation=3e-12, allan_tau_s=1.0, measurement_time_s=36000.0,
+                       allan_tau_max_s=1e5))
     names = [q.name for q in r.quantities]
     assert names == ["f_offset", "f_aging", "f_stab"]
     assert r.expression == "500000000.0 * (1 + f_offset) * (1 + f_aging) * (1 + f_stab)"
     aging, stab = r.quantities[1], r.quantities[2]
-    assert aging.distribution.half_width == pytest.approx(5e-12 * 20)   # rate × 20 days
-    # white FM: σ_y(T) = σ_y(τ)·√(τ/T)
-    assert stab.standard_uncertainty == pytest.approx(3e-12 / math.sqrt(36000.0))
+    assert aging.distribution.half_width / 1e-12 == pytest.approx(5 * 20)   # rate × 20 days
+    # white FM: σ_y(T) = σ_y(τ)·√(τ/T) (compared in units of 1e-12: pytest.approx's default
+    # abs = 1e-12 would accept any number of order 1e-14)
+    assert stab.standard_uncertainty / 1e-12 == pytest.approx(3 / math.sqrt(36000.0), rel=1e-12)
     env = {q.name: q.value for q in r.quantities}
     assert compile_node(parse(r.expression))(env) == pytest.approx(F0 * (1 + 1e-11), rel=1e-15)
     json.dumps(r.diagnostics, allow_nan=False)
@@ -159,3 +161,37 @@ def test_bad_comparison_file(tmp_path, rows, at, row, col):
     with pytest.raises(DataError) as e:
         run_module(ctx(tmp_path, file="cmp.csv", at=at))
     assert (e.value.row, e.value.field) == (row, col)
+
+
+# ---- issue 11 item 13: the power law only inside its range ----------------------------------
+def test_allan_law_not_extrapolated_below_tau(tmp_path):
+    # a specification at τ says nothing about shorter averaging (NIST SP 1065: the power laws
+    # describe a noise type over the τ range where it dominates, memory)
+    with pytest.raises(SpecError) as e:
+        run_module(ctx(tmp_path, allan_deviation=1e-12, allan_tau_s=10.0, measurement_time_s=5.0))
+    assert e.value.field == "inputs.f.measurement_time_s" and "below allan_tau_s" in e.value.message
+
+
+def test_allan_white_fm_held_beyond_range_with_range_in_notes(tmp_path):
+    (q,) = run_module(ctx(tmp_path, allan_deviation=1e-12, allan_tau_s=1.0,
+                          measurement_time_s=36000.0)).quantities
+    # default range 1 s … 100 s (two decades, this project's rule); held at σ_y(100 s) =
+    # 1e-12·(100)^(-1/2) = 1e-13 (white FM, μ = −1, NIST SP 1065 power law, memory)
+    assert q.standard_uncertainty / F0 / 1e-13 == pytest.approx(1.0, rel=1e-12)
+    notes = " ".join(q.provenance.notes)
+    assert "1 s … 100 s" in notes and "held" in notes and "360 times" in notes
+
+
+def test_allan_rising_law_extrapolated_with_note(tmp_path):
+    (q,) = run_module(ctx(tmp_path, allan_deviation=1e-13, allan_tau_s=1.0,
+                          measurement_time_s=400.0, noise="random-walk-fm")).quantities
+    # random-walk FM, μ = +1: σ_y(T) = σ_y(τ)·√(T/τ) = 1e-13·20 (NIST SP 1065, memory)
+    assert q.standard_uncertainty / F0 / 1e-13 == pytest.approx(20.0, rel=1e-12)
+    assert any("extrapolated beyond" in n for n in q.provenance.notes)
+
+
+def test_allan_range_end_below_tau_refused(tmp_path):
+    with pytest.raises(SpecError) as e:
+        run_module(ctx(tmp_path, allan_deviation=1e-12, allan_tau_s=10.0, measurement_time_s=50.0,
+                       allan_tau_max_s=5.0))
+    assert e.value.field == "inputs.f.allan_tau_max_s"

@@ -296,8 +296,9 @@ def test_measurement_before_first_calibration(tmp_path):
 def test_zero_resistance_is_refused(tmp_path):
     # the corrections are relative (R_cal·(1 + δ)) and the figure is in parts of R: a value of 0
     # has no relative scale, so it is a located data error rather than a division by zero
+    # (issue 11 item 6: refused by row as soon as it is read, like a negative resistance)
     e = _bad(tmp_path, HEAD + "2024-01-01,0,100,2\n2024-06-01,0,100,2\n")
-    assert e.field == "value" and e.file.endswith("hist.csv") and "0 Ω" in e.message
+    assert (e.row, e.field) == (1, "value") and e.file.endswith("hist.csv") and "> 0" in e.message
 
 
 def test_linear_drift_needs_two_dates(tmp_path):

@@ -67,6 +67,9 @@ def _stability(ctx: InputContext, name: str) -> Quantity | None:
     if "stability_bound" not in ctx.table:
         return None
     bound = ctx.number("stability_bound", positive=True)
+    if bound >= 1:
+        # a relative change of 100 % or more is no stability bound (and 1 + δ could reach 0)
+        raise ctx.spec_error("stability_bound", f"is relative and must be < 1; got {bound!r}")
     return relative_term(
         ctx, name=name, value=0.0, half_width=bound,
         description="relative change of the amplifier between calibrations (stability bound)",
@@ -103,7 +106,8 @@ def evaluate(ctx: InputContext) -> ModuleResult:
     unit = ctx.option("unit", str, "Ω" if kind == "transresistance" else "1")
     what = f"amplifier {kind}"
     at = parse_when(ctx, "at")
-    hist = read_history(ctx, voltage=True)
+    hist = read_history(ctx, voltage=True, positive=kind == "transresistance",
+                        what=kind)
     q_temp, f_temp, d_temp = temperature_term(ctx, name=f"{ctx.name}_temp", what=what,
                                               history_temperature=hist.temperature)
     q_stab = _stability(ctx, f"{ctx.name}_stab")

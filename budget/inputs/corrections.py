@@ -18,7 +18,14 @@ from ..distributions import Distribution
 from ..errors import DataError
 from ..quantity import FileRef, ModuleResult, Provenance, Quantity
 from .context import InputContext
-from .history import History, drift_figure, drift_quantity, history_diagnostics, predict_drift
+from .history import (
+    History,
+    common_quantity,
+    drift_figure,
+    drift_quantity,
+    history_diagnostics,
+    predict_drift,
+)
 
 __all__ = ["assemble", "drift_result", "TEMPERATURE_KEYS", "bounded_or_standard",
            "reference_level", "relative_term", "temperature_term"]
@@ -235,4 +242,7 @@ def drift_result(ctx: InputContext, hist: History, at, corrections: list[tuple],
     diagnostics["figures"] = [drift_figure(ctx, hist, values, pred, unit=unit, what=figure_what,
                                            reference=reference)]
     terms = [(suffix, q) for suffix, q, _, _ in corrections if q is not None]
+    q_common = common_quantity(ctx, hist, pred, scale=pred.value, what=what)
+    if q_common is not None:
+        terms.insert(0, ("common", q_common))
     return assemble(ctx, main, terms, diagnostics)

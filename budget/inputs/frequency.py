@@ -27,7 +27,7 @@ offset_dof : float
     Degrees of freedom of ``offset_uncertainty``. Default infinite.
 file : str
     Comparison CSV with columns ``date`` (ISO 8601), ``fractional_offset`` and optional
-    ``uncertainty`` (standard uncertainty of each offset). Without ``uncertainty`` the fit is
+    ``uncertainty`` (standard uncertainty of each offset) and ``reference``. Without ``uncertainty`` the fit is
     unweighted with ν = n − p (Type A). Not together with ``offset`` keys.
 at : str or TOML date-time
     Measurement date (ISO 8601); required with ``file`` or ``comparison_date``.
@@ -49,6 +49,16 @@ measurement_time_s : float
     Duration T over which the mean frequency matters (s); required with ``allan_deviation``.
 noise : {"white-fm", "white-pm", "flicker-fm", "random-walk-fm"}
     Noise type behind the power law: μ = −1, −2, 0, +1 (σ_y ∝ τ^(μ/2)). Default ``"white-fm"``.
+allan_tau_max_s : float
+    Largest averaging time for which the stated noise type holds (s), e.g. from the
+    specification's table of σ_y(τ). Default 100 × ``allan_tau_s``. The power law is used only
+    on [``allan_tau_s``, ``allan_tau_max_s``]: T below ``allan_tau_s`` is refused; above
+    ``allan_tau_max_s`` a falling law (white PM/FM) is held at its value there (a flicker floor
+    assumed) and a rising one is extrapolated with a note. The range is in the notes.
+common_standard_uncertainty : float
+    Part of each comparison's ``uncertainty`` common to all comparisons (or to rows with the
+    same ``reference`` column text): generalised least squares and the row ``NAME_common``, as
+    in :mod:`budget.inputs.history`.
 
 Quantities
 ----------
@@ -70,7 +80,7 @@ from ..errors import DataError
 from ..quantity import ModuleResult, Provenance, Quantity
 from .context import InputContext
 from .corrections import bounded_or_standard, relative_term
-from .history import History, parse_when, predict_drift
+from .history import History, common_quantity, parse_when, predict_drift
 from .tables import date_column, numeric_column, read_table, row_ranges
 
 __all__ = ["KEYS", "evaluate", "NOISE_EXPONENTS"]
@@ -78,17 +88,22 @@ __all__ = ["KEYS", "evaluate", "NOISE_EXPONENTS"]
 #: Allan-variance power-law exponent μ (σ_y² ∝ τ^μ) of each noise type (NIST SP 1065, memory).
 NOISE_EXPONENTS = {"white-pm": -2, "white-fm": -1, "flicker-fm": 0, "random-walk-fm": 1}
 
+#: Default end of the range of the power law, as a multiple of allan_tau_s (two decades; a
+#: choice of this project, stated in the notes: beyond it a flicker floor is assumed).
+TAU_RANGE = 100.0
+
 _OFFSET_KEYS = ("offset", "offset_uncertainty", "offset_bound", "offset_dof")
-_FILE_KEYS = ("file", "drift", "inflate", "consistency_level")
+_FILE_KEYS = ("file", "drift", "inflate", "consistency_level", "common_standard_uncertainty")
 KEYS = frozenset({"nominal_Hz", "at", "aging_per_day", "days_since_comparison",
                   "comparison_date", "allan_deviation", "allan_tau_s", "measurement_time_s",
-                  "noise", *_OFFSET_KEYS, *_FILE_KEYS})
+                  "noise", "allan_tau_max_s", *_OFFSET_KEYS, *_FILE_KEYS})
 
 
-def _offset_from_file(ctx: InputContext, name: str) -> tuple[Quantity, pd.Timestamp, dict]:
+def _offset_from_file(ctx: InputContext, name: str
+                      ) -> tuple[Quantity, pd.Timestamp, dict, Quantity | None]:
     path = ctx.path_of(ctx.option("file", str), "file")
     shown = ctx.display(path)
-    df = read_table(path, ("date", "fractional_offset"), ("uncertainty",), shown=shown)
+    df = read_table(path, ("date", "fractional_offset"), ("uncertainty", "reference"), shown=shown)
     dates = date_column(df, "date", shown=shown)
     y = numeric_column(df, "fractional_offset", shown=shown)
     # a fractional offset f/f_nom − 1 of ±1 or more means f ≤ 0 or a value typed in Hz
@@ -100,35 +115,50 @@ def _offset_from_file(ctx: InputContext, name: str) -> tuple[Quantity, pd.Timest
     u = (numeric_column(df, "uncertainty", shown=shown, positive=True)
          if "uncertainty" in df else None)
     rows = np.arange(1, len(df) + 1)
+    refs = tuple(df["reference"].str.strip()) if "reference" in df else None
     hist = History(path=path, shown=shown, rows=rows, dates=dates, values=y, u=u,
-                   temperature=None, voltage=None, certificates=("",) * len(df), excluded=())
+                   temperature=None, voltage=None, certificates=("",) * len(df), excluded=(),
+                   references=refs)
     at = parse_when(ctx, "at")
     pred = predict_drift(ctx, hist, y, at, default_drift="constant", event="comparison")
     f = pred.fit
+    u_row = pred.u_independent
     if math.isfinite(pred.dof):
-        dist = Distribution.student_t(pred.value, pred.u, pred.dof)
+        dist = Distribution.student_t(pred.value, u_row, pred.dof)
         dist_reason = ("scaled and shifted Student t: the scale was estimated from the scatter "
                        "of the comparisons (JCGM 101 §6.4.9)")
         dof_reason = f"{f.nu} = n - p of the fit"
     else:
-        dist = Distribution.normal(pred.value, pred.u)
+        dist = Distribution.normal(pred.value, u_row)
         dist_reason = "normal: a linear combination of comparisons with stated uncertainties"
         dof_reason = "infinite: stated uncertainties, scatter consistent with them"
     q = Quantity(
-        name=name, value=pred.value, standard_uncertainty=pred.u, distribution=dist, unit="1",
+        name=name, value=pred.value, standard_uncertainty=u_row, distribution=dist, unit="1",
         dof=pred.dof, evaluation="A" if u is None or f.inflated else "B",
         description="fractional frequency offset of the reference, from comparisons",
         provenance=Provenance(
             origin="module:frequency",
-            method=(f"{'weighted' if f.weighted else 'unweighted'} least-squares "
+            method=(f"{_fit_kind(f.weighted, pred.u_common)} least-squares "
                     f"{'line' if f.model == 'line' else 'constant'} through {f.n} comparisons, "
                     f"evaluated at {at.isoformat()} (JCGM 100 H.3)"),
             distribution_reason=dist_reason, dof_reason=dof_reason,
-            files=(ctx.file_ref(path, row_ranges(rows)),), notes=pred.notes))
+            files=(ctx.file_ref(path, row_ranges(rows)),), notes=pred.notes,
+            across_runs="shared"))
     diag = {"comparison": {"fit": f.to_dict(), "predicted_offset": pred.value,
-                           "u": pred.u, "last_comparison": dates.max().isoformat(),
+                           "u": pred.u, "u_independent": pred.u_independent,
+                           "u_common": pred.u_common, "at": at.isoformat(),
+                           "independent_cov": [list(r) for r in pred.independent_cov],
+                           "last_comparison": dates.max().isoformat(),
                            "days_since_last_comparison": pred.days_past_last}}
-    return q, dates.max(), diag
+    # the common part is its own row, named NAME_common like the other history modules'
+    q_common = common_quantity(ctx, hist, pred, scale=1.0, what="fractional frequency offset")
+    return q, dates.max(), diag, q_common
+
+
+def _fit_kind(weighted: bool, u_common: float) -> str:
+    if u_common:
+        return "generalised"
+    return "weighted" if weighted else "unweighted"
 
 
 def _offset_typed(ctx: InputContext, name: str) -> Quantity | None:
@@ -202,26 +232,55 @@ def _aging(ctx: InputContext, name: str, last_comparison: pd.Timestamp | None
 
 
 def _stability(ctx: InputContext, name: str) -> tuple[Quantity | None, dict]:
-    keys = ("allan_deviation", "allan_tau_s", "measurement_time_s", "noise")
+    keys = ("allan_deviation", "allan_tau_s", "measurement_time_s", "noise", "allan_tau_max_s")
     if not any(k in ctx.table for k in keys):
         return None, {}
     sigma = ctx.number("allan_deviation", positive=True)
     tau = ctx.number("allan_tau_s", positive=True)
     t_meas = ctx.number("measurement_time_s", positive=True)
     noise = ctx.choice("noise", tuple(NOISE_EXPONENTS), "white-fm")
+    tau_max = ctx.number("allan_tau_max_s", TAU_RANGE * tau, positive=True)
+    if tau_max < tau:
+        raise ctx.spec_error("allan_tau_max_s", f"must be >= allan_tau_s = {tau:g} s; got "
+                                                f"{tau_max:g}")
+    if t_meas < tau:
+        # a specification at τ says nothing about shorter averaging (white PM and flicker
+        # can rise steeply below it): no power law is used downwards
+        raise ctx.spec_error("measurement_time_s", f"= {t_meas:g} s is below allan_tau_s = "
+                             f"{tau:g} s; the power law is not extrapolated below the "
+                             "specified averaging time (give σ_y at a τ <= T)")
     mu = NOISE_EXPONENTS[noise]
-    u = sigma * (t_meas / tau) ** (mu / 2)
+    notes = [f"power law of {noise} used over τ = {tau:g} s … {tau_max:g} s "
+             f"(allan_tau_s … allan_tau_max_s); T = {t_meas:g} s"]
+    t_used = t_meas
+    if t_meas > tau_max:
+        if mu < 0:
+            # a falling law cannot be trusted to keep falling: flicker FM sets a floor in every
+            # real oscillator, so σ_y is held at its value at the end of the range
+            t_used = tau_max
+            notes.append(f"T is {t_meas / tau_max:.3g} times the end of the range: σ_y is held "
+                         f"at its value at τ = {tau_max:g} s (a flicker floor assumed) instead of "
+                         f"falling further; give allan_tau_max_s from the specification to "
+                         "extend the range")
+        else:
+            notes.append(f"T is {t_meas / tau_max:.3g} times the end of the range: the rising "
+                         f"{noise} law is extrapolated beyond it")
+    u = sigma * (t_used / tau) ** (mu / 2)
     q = relative_term(
         ctx, name=name, value=0.0, u=u,
         description="frequency instability averaged over the measurement time",
-        method=(f"σ_y(T) = σ_y(τ)·(T/τ)^(μ/2) with σ_y({tau:g} s) = {sigma:g}, T = {t_meas:g} s,"
+        method=(f"σ_y(T) = σ_y(τ)·(T/τ)^(μ/2) with σ_y({tau:g} s) = {sigma:g}, T = {t_used:g} s,"
                 f" {noise} (μ = {mu}); the Allan deviation at τ = T is taken as the standard "
                 "uncertainty of the mean fractional frequency over T"),
         reason=("the mean of many fluctuations over T (central limit); for white frequency "
-                "noise the Allan variance at τ equals the variance of τ-averages"))
+                "noise the Allan variance at τ equals the variance of τ-averages"),
+        notes=tuple(notes))
+    q = dataclasses.replace(q, provenance=dataclasses.replace(q.provenance,
+                                                              across_runs="independent"))
     return q, {"stability": {"allan_deviation": sigma, "allan_tau_s": tau,
-                             "measurement_time_s": t_meas, "noise": noise, "mu": mu,
-                             "sigma_y_at_T": u}}
+                             "allan_tau_max_s": tau_max, "measurement_time_s": t_meas,
+                             "averaging_time_used_s": t_used, "held_at_range_end":
+                             t_used != t_meas, "noise": noise, "mu": mu, "sigma_y_at_T": u}}
 
 
 def _absolute(q: Quantity, name: str, nominal: float) -> Quantity:
@@ -251,9 +310,10 @@ def evaluate(ctx: InputContext) -> ModuleResult:
             if k in ctx.table:
                 raise ctx.spec_error(k, "give either a comparison file or a typed-in offset, "
                                         "not both")
-        q_off, last, d = _offset_from_file(ctx, f"{ctx.name}_offset")
+        q_off, last, d, q_common = _offset_from_file(ctx, f"{ctx.name}_offset")
         diagnostics.update(d)
     else:
+        q_common = None
         for k in _FILE_KEYS[1:]:
             if k in ctx.table:
                 raise ctx.spec_error(k, "applies only to a comparison file ('file')")
@@ -263,7 +323,7 @@ def evaluate(ctx: InputContext) -> ModuleResult:
     q_age = _aging(ctx, f"{ctx.name}_aging", last)
     q_stab, d = _stability(ctx, f"{ctx.name}_stab")
     diagnostics.update(d)
-    terms = [q for q in (q_off, q_age, q_stab) if q is not None]
+    terms = [q for q in (q_off, q_common, q_age, q_stab) if q is not None]
     if not terms:
         raise ctx.spec_error("nominal_Hz", "no uncertainty source for the frequency: give "
                              "offset_uncertainty or offset_bound, a comparison file, "

@@ -1,4 +1,5 @@
-"""Shared machinery of the calibration-history modules (``resistor``, ``amplifier``).
+"""Shared machinery of the calibration-history modules (``resistor``, ``amplifier``, and the
+comparison file of ``frequency``).
 
 A calibration history is a CSV file with one row per calibration:
 
@@ -8,7 +9,9 @@ column                 meaning
 date                   ISO 8601 date or date-time of the calibration (required)
 value                  calibrated value in the quantity's unit (required)
 expanded_uncertainty   U of the certificate, same unit (required, > 0)
-coverage_factor        k of the certificate (required, > 0); u_i = U_i / k_i
+coverage_factor        k of the certificate (required, >= 1); u_i = U_i / k_i
+reference              the calibrating laboratory's reference behind this calibration, free text
+                       (optional; see ``common_standard_uncertainty``)
 temperature_C          temperature at which the value was obtained, °C (optional)
 voltage_V              voltage applied during the calibration, V (optional, resistors)
 certificate            certificate identifier, free text (optional)
@@ -18,6 +21,21 @@ The values are fitted against time by weighted least squares (:mod:`budget.stats
 the mathematics of JCGM 100 H.3) with the time axis in days relative to the measurement date
 ``at``, so the first fitted parameter *is* the predicted value at ``at`` and its variance is the
 first diagonal element of the parameter covariance.
+
+Common part of the calibrations (``common_standard_uncertainty``)
+-----------------------------------------------------------------
+Calibrations made against the same reference standard share that standard's error: it does not
+average away (JCGM 100 §5.2, F.1.2.3). With the key ``common_standard_uncertainty`` = u_c (in the
+value's unit; the part of each listed standard uncertainty common to the calibrations) the
+covariance of the history values is V = diag(u_i² − u_c²) + u_c²·S, S_ij = 1 when rows i and j
+share a reference (every row when the file has no ``reference`` column; with the column, rows
+with the same non-blank text; a blank row shares with none). The fit is generalised least
+squares with V; the prediction ŷ = Σ a_i y_i then has the variance
+aᵀ diag(u_i² − u_c²) a + u_c²·aᵀSa. The second part is reported as its own budget row
+``NAME_common`` (relative, normal, about 0), so that it is visible and ``compare`` treats it as
+shared between runs; the first stays with ``NAME_cal``. When the calibrations scatter more than
+stated, only the independent part is inflated (the common part cannot show in the scatter).
+Every u_i must exceed u_c.
 """
 
 from __future__ import annotations
@@ -41,6 +59,7 @@ __all__ = [
     "DriftPrediction",
     "History",
     "decimal_year",
+    "common_quantity",
     "drift_figure",
     "drift_quantity",
     "history_diagnostics",
@@ -51,10 +70,13 @@ __all__ = [
 
 #: Option keys every history module accepts.
 HISTORY_KEYS = frozenset({"file", "at", "drift", "inflate", "consistency_level", "exclude_rows",
-                          "nominal"})
+                          "nominal", "common_standard_uncertainty"})
+
+#: Lowest coverage factor accepted on a certificate: k < 1 would state U < u (common practice).
+MIN_COVERAGE_FACTOR = 1.0
 
 REQUIRED = ("date", "value", "expanded_uncertainty", "coverage_factor")
-OPTIONAL = ("temperature_C", "voltage_V", "certificate")
+OPTIONAL = ("temperature_C", "voltage_V", "certificate", "reference")
 _DAY = pd.Timedelta(days=1)
 
 
@@ -72,6 +94,7 @@ class History:
     voltage: np.ndarray | None       # V, NaN where blank
     certificates: tuple[str, ...]
     excluded: tuple[int, ...]
+    references: tuple[str, ...] | None = None   # ``reference`` column; None without it
 
 
 @dataclass(frozen=True)
@@ -85,6 +108,11 @@ class DriftPrediction:
     dof: float
     days_past_last: float        # > 0: extrapolated past the last calibration
     notes: tuple[str, ...]
+    u_independent: float = 0.0   # part of u not common to the calibrations (= u without u_c)
+    u_common: float = 0.0        # part of u from the common reference (u_c·√(aᵀSa))
+    common_standard_uncertainty: float = 0.0   # u_c as stated
+    independent_cov: tuple[tuple[float, ...], ...] = ()   # parameter covariance without the
+    #                                                      common part (days relative to at)
 
 
 def parse_when(ctx: InputContext, key: str = "at", default=None) -> pd.Timestamp | None:
@@ -110,8 +138,12 @@ def parse_when(ctx: InputContext, key: str = "at", default=None) -> pd.Timestamp
     return ts
 
 
-def read_history(ctx: InputContext, *, voltage: bool = True) -> History:
-    """Read and check the calibration history named by ``file``; apply ``exclude_rows``."""
+def read_history(ctx: InputContext, *, voltage: bool = True, positive: bool = False,
+                 what: str = "value") -> History:
+    """Read and check the calibration history named by ``file``; apply ``exclude_rows``.
+
+    ``positive`` refuses values ≤ 0 (a resistance or a transresistance), naming ``what``.
+    A coverage factor below 1 is refused (it would state U < u)."""
     path = ctx.path_of(ctx.option("file", str), "file")
     shown = ctx.display(path)
     optional = OPTIONAL if voltage else tuple(c for c in OPTIONAL if c != "voltage_V")
@@ -120,11 +152,24 @@ def read_history(ctx: InputContext, *, voltage: bool = True) -> History:
     values = numeric_column(df, "value", shown=shown)
     big_u = numeric_column(df, "expanded_uncertainty", shown=shown, positive=True)
     k = numeric_column(df, "coverage_factor", shown=shown, positive=True)
+    low_k = np.flatnonzero(k < MIN_COVERAGE_FACTOR)
+    if low_k.size:
+        i = int(low_k[0])
+        raise DataError(f"a coverage factor below 1 states U smaller than u; got "
+                        f"{df['coverage_factor'].iloc[i]!r} (k >= 1 expected, usually 2)",
+                        file=shown, row=i + 1, field="coverage_factor")
+    if positive:
+        neg = np.flatnonzero(values <= 0)
+        if neg.size:
+            i = int(neg[0])
+            raise DataError(f"a {what} must be > 0; got {df['value'].iloc[i]!r} (give the "
+                            "magnitude)", file=shown, row=i + 1, field="value")
     temp = (numeric_column(df, "temperature_C", shown=shown, allow_blank=True)
             if "temperature_C" in df else None)
     volt = (numeric_column(df, "voltage_V", shown=shown, allow_blank=True)
             if "voltage_V" in df else None)
     certs = tuple(df["certificate"].str.strip()) if "certificate" in df else ("",) * len(df)
+    refs = tuple(df["reference"].str.strip()) if "reference" in df else None
 
     n = len(df)
     excluded = ctx.option("exclude_rows", list, [])
@@ -140,7 +185,38 @@ def read_history(ctx: InputContext, *, voltage: bool = True) -> History:
                    u=(big_u / k)[keep], temperature=None if temp is None else temp[keep],
                    voltage=None if volt is None else volt[keep],
                    certificates=tuple(c for c, m in zip(certs, keep) if m),
-                   excluded=tuple(sorted(set(excluded))))
+                   excluded=tuple(sorted(set(excluded))),
+                   references=None if refs is None else tuple(
+                       c for c, m in zip(refs, keep) if m))
+
+
+def common_covariance(ctx: InputContext, hist: History) -> tuple[float, np.ndarray | None]:
+    """u_c (``common_standard_uncertainty``, default 0) and the sharing matrix S (None when
+    u_c = 0). Refuses u_c ≥ u_i for any row, and u_c without stated uncertainties."""
+    if "common_standard_uncertainty" not in ctx.table:
+        return 0.0, None
+    uc = ctx.number("common_standard_uncertainty", nonnegative=True)
+    if uc == 0:
+        return 0.0, None
+    if hist.u is None:
+        raise ctx.spec_error("common_standard_uncertainty", "needs the stated uncertainty of "
+                             "each row (an 'uncertainty' column)")
+    over = np.flatnonzero(hist.u <= uc)
+    if over.size:
+        i = int(over[0])
+        raise DataError(f"its standard uncertainty U/k = {hist.u[i]:.6g} is not larger than "
+                        f"common_standard_uncertainty = {uc:.6g} (spec {ctx.spec_file}, "
+                        f"[inputs.{ctx.name}]); the common part is a part of each row's u",
+                        file=hist.shown, row=int(hist.rows[i]), field="expanded_uncertainty")
+    n = hist.u.size
+    if hist.references is None:
+        share = np.ones((n, n))
+    else:
+        ref = np.array(hist.references, dtype=object)
+        share = (ref[:, None] == ref[None, :]) & (ref[:, None] != "")
+        share = share.astype(float)
+        np.fill_diagonal(share, 1.0)
+    return uc, share
 
 
 def predict_drift(ctx: InputContext, hist: History, values: np.ndarray, at: pd.Timestamp, *,
@@ -166,11 +242,19 @@ def predict_drift(ctx: InputContext, hist: History, values: np.ndarray, at: pd.T
         raise DataError(f"a linear drift needs {event}s on at least two different dates; "
                         f"give drift = \"constant\" or more {event}s", file=hist.shown,
                         field="date")
+    uc, share = common_covariance(ctx, hist)
     try:
-        f = fit(days, values, hist.u, model=model, x0=0.0, inflate=policy, alpha=level)
+        if share is None:
+            f = fit(days, values, hist.u, model=model, x0=0.0, inflate=policy, alpha=level)
+        else:
+            v_obs = np.diag(hist.u ** 2 - uc ** 2) + uc ** 2 * share
+            f = fit(days, values, model=model, x0=0.0, inflate=policy, alpha=level, cov=v_obs)
     except BudgetError as exc:
         raise exc.located(file=hist.shown) from None
     value, u = f.predict(0.0)
+    u_ind, u_com, cov_ind = _split_common(f, days, hist.u, uc, share)
+    if share is not None:
+        u = math.hypot(u_ind, u_com)
     last = hist.dates.max()
     past = float((at - last) / _DAY)
     notes = []
@@ -186,23 +270,53 @@ def predict_drift(ctx: InputContext, hist: History, values: np.ndarray, at: pd.T
                      "cannot be checked against the stated uncertainties")
     if hist.excluded:
         notes.append(f"rows excluded by the spec (exclude_rows): {row_ranges(hist.excluded)}")
+    if share is not None:
+        groups = "one reference for all rows" if hist.references is None else (
+            f"{len(set(r for r in hist.references if r))} reference(s) in the 'reference' "
+            "column")
+        notes.append(f"generalised least squares with a common part u_c = {uc:.6g} of each "
+                     f"calibration's u ({groups}); it does not average away and is the row "
+                     "NAME_common (JCGM 100 §5.2, F.1.2.3)".replace("NAME", ctx.name))
     return DriftPrediction(fit=f, at=at, value=float(value), u=float(u), dof=f.dof,
-                           days_past_last=past, notes=tuple(notes))
+                           days_past_last=past, notes=tuple(notes), u_independent=float(u_ind),
+                           u_common=float(u_com), common_standard_uncertainty=float(uc),
+                           independent_cov=cov_ind)
+
+
+def _split_common(f: Fit, days: np.ndarray, u: np.ndarray | None, uc: float,
+                  share: np.ndarray | None) -> tuple[float, float, tuple]:
+    """The prediction's standard uncertainty split into the independent part (inflated with
+    the fit when the scatter exceeds the stated u) and the common part u_c·√(aᵀSa), and the
+    independent part of the parameter covariance (days relative to the date of ``at``)."""
+    c_all = f.covariance
+    if share is None:
+        return math.sqrt(max(c_all[0, 0], 0.0)), 0.0, f.cov
+    design = (np.column_stack([np.ones(days.size), days]) if f.model == "line"
+              else np.ones((days.size, 1)))
+    c0 = c_all / f.scale                       # (XᵀV⁻¹X)⁻¹ before any inflation
+    v_obs = np.diag(u ** 2 - uc ** 2) + uc ** 2 * share
+    b = c0 @ np.linalg.solve(v_obs, design).T  # β̂ = B y
+    c_common = uc ** 2 * (b @ share @ b.T)
+    c_ind = f.scale * (c0 - c_common)
+    u_com = math.sqrt(max(c_common[0, 0], 0.0))
+    u_ind = math.sqrt(max(c_ind[0, 0], 0.0))
+    return u_ind, u_com, tuple(tuple(float(v) for v in row) for row in c_ind)
 
 
 def drift_quantity(ctx: InputContext, hist: History, pred: DriftPrediction, *, name: str,
                    unit: str, what: str, extra_notes: tuple[str, ...] = ()) -> Quantity:
     """The calibration/drift row: the fitted value at ``at`` with the line's uncertainty."""
     f = pred.fit
+    u_row = pred.u_independent
     kind = "straight line" if f.model == "line" else "constant (weighted mean)"
     if math.isinf(pred.dof):
-        dist = Distribution.normal(pred.value, pred.u)
+        dist = Distribution.normal(pred.value, u_row)
         dist_reason = ("normal: the certificates state normal expanded uncertainties and the "
                        "prediction is a linear combination of them")
         dof_reason = ("infinite: the fit uses the certificates' stated uncertainties, which the "
                       "certificates give as reliable, and the scatter is consistent with them")
     else:
-        dist = Distribution.student_t(pred.value, pred.u, pred.dof)
+        dist = Distribution.student_t(pred.value, u_row, pred.dof)
         dist_reason = ("scaled and shifted Student t: the scale of the uncertainties was "
                        "estimated from the residuals of the fit (JCGM 101 §6.4.9)")
         dof_reason = (f"{f.nu} = n - p: the covariance was scaled by the residual scatter "
@@ -211,15 +325,49 @@ def drift_quantity(ctx: InputContext, hist: History, pred: DriftPrediction, *, n
     method = (f"weighted least-squares {kind} through {f.n} calibrations (u_i = U_i/k_i) "
               f"against time, evaluated at {pred.at.isoformat()} with the uncertainty of the "
               "fitted line from the full parameter covariance (JCGM 100 H.3)")
+    if pred.u_common > 0:
+        method = ("generalised " + method[len("weighted "):] + "; the part common to the "
+                  f"calibrations is the row {ctx.name}_common, not this one")
     ref = ctx.file_ref(hist.path, row_ranges(hist.rows))
-    return Quantity(name=name, value=pred.value, standard_uncertainty=pred.u, distribution=dist,
+    return Quantity(name=name, value=pred.value, standard_uncertainty=u_row, distribution=dist,
                     unit=unit, dof=pred.dof, evaluation="B",
                     description=f"{what} predicted at the measurement date from its "
                                 "calibration history",
                     provenance=Provenance(origin=f"module:{ctx.table.get('module')}",
                                           method=method, distribution_reason=dist_reason,
                                           dof_reason=dof_reason, files=(ref,),
-                                          notes=pred.notes + tuple(extra_notes)))
+                                          notes=pred.notes + tuple(extra_notes),
+                                          across_runs="shared"))
+
+
+def common_quantity(ctx: InputContext, hist: History, pred: DriftPrediction, *, scale: float,
+                    what: str) -> Quantity | None:
+    """The row ``NAME_common``: the relative error of the prediction that comes from the
+    reference common to the calibrations, normal about 0 with u = u_common/``scale``
+    (``scale`` is the predicted value for a resistance, 1 for a fractional offset). None
+    without ``common_standard_uncertainty``."""
+    if pred.u_common <= 0:
+        return None
+    u = pred.u_common / abs(scale)
+    ref = ctx.file_ref(hist.path, row_ranges(hist.rows))
+    return Quantity(
+        name=f"{ctx.name}_common", value=0.0, standard_uncertainty=u,
+        distribution=Distribution.normal(0.0, u), unit="1", dof=math.inf, evaluation="B",
+        description=f"relative error of the {what} common to its calibrations (the "
+                    "calibrating laboratory's reference)",
+        provenance=Provenance(
+            origin=f"module:{ctx.table.get('module')}",
+            method=(f"u_c = {pred.common_standard_uncertainty:.6g} common to the calibrations "
+                    "(common_standard_uncertainty); the prediction carries u_c·√(aᵀSa) = "
+                    f"{pred.u_common:.6g} of it (a: generalised least-squares weights of the "
+                    "prediction, S: rows sharing a reference); it does not average away "
+                    "(JCGM 100 §5.2, F.1.2.3)"),
+            distribution_reason="normal: a part of the certificates' normal uncertainties",
+            dof_reason="infinite: a stated certificate uncertainty (JCGM 100 G.4.2)",
+            files=(ref,), across_runs="shared"))
+
+
+
 
 
 def decimal_year(ts: pd.Timestamp | pd.DatetimeIndex) -> float | list[float]:
@@ -285,7 +433,12 @@ def history_diagnostics(hist: History, values: np.ndarray, pred: DriftPrediction
     return {
         "fit": f.to_dict(),
         "x_axis": f"days relative to the measurement date {pred.at.isoformat()}",
+        "at": pred.at.isoformat(),
         "predicted_value": pred.value, "predicted_standard_uncertainty": pred.u,
+        "predicted_standard_uncertainty_independent": pred.u_independent,
+        "predicted_standard_uncertainty_common": pred.u_common,
+        "common_standard_uncertainty": pred.common_standard_uncertainty,
+        "independent_cov": [list(r) for r in pred.independent_cov],
         "predicted_dof": clean(pred.dof), "unit": unit,
         "drift_per_year": slope * 365.25, "drift_per_year_uncertainty": u_slope * 365.25,
         "relative_drift_per_year": slope * 365.25 / pred.value if pred.value else None,

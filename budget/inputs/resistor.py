@@ -135,7 +135,7 @@ def voltage_term(ctx: InputContext, hist: History, name: str
 def evaluate(ctx: InputContext) -> ModuleResult:
     """Evaluate a ``resistor`` input (see the module docstring for the keys)."""
     at = parse_when(ctx, "at")
-    hist = read_history(ctx, voltage=True)
+    hist = read_history(ctx, voltage=True, positive=True, what="resistance")
     q_temp, f_temp, d_temp = temperature_term(ctx, name=f"{ctx.name}_temp", what="resistor",
                                               history_temperature=hist.temperature)
     q_volt, f_volt, d_volt = voltage_term(ctx, hist, f"{ctx.name}_volt")

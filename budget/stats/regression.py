@@ -15,7 +15,13 @@ Two ways of weighting:
 * **weighted** (``u`` given): the observations carry stated standard uncertainties u_i; the
   covariance is (XᵀWX)⁻¹ with W = diag(1/u_i²) ("absolute sigma"). The consistency of the
   scatter with the stated u_i is tested with χ² = Σ(r_i/u_i)² on ν = n − p degrees of freedom;
-  the Birge ratio is R_B = √(χ²/ν). When the policy decides that the scatter exceeds the stated
+  the Birge ratio is R_B = √(χ²/ν).
+* **generalised** (``cov`` given): the observations carry a full covariance matrix V (for
+  calibrations that share a reference standard, V = diag(u_i² − u_c²) + u_c²·S with S_ij = 1
+  when rows i and j share the reference). Generalised least squares (Aitken):
+  β = (XᵀV⁻¹X)⁻¹XᵀV⁻¹y with covariance (XᵀV⁻¹X)⁻¹ and χ² = rᵀV⁻¹r (JCGM 100 §5.2 and H.3 for
+  the propagation; the estimator is the textbook GLS, common practice). It is computed by
+  whitening with the Cholesky factor of V, so the rest is the weighted case. When the policy decides that the scatter exceeds the stated
   uncertainties, the covariance is multiplied by χ²/ν (never divided: a scatter smaller than
   stated does not shrink the uncertainty), and the degrees of freedom become ν because the scale
   is then estimated from the residuals.
@@ -178,7 +184,8 @@ def _check_representable(cov: np.ndarray) -> None:
 
 def fit(x: np.ndarray | list[float], y: np.ndarray | list[float],
         u: np.ndarray | list[float] | None = None, *, model: str = "line", x0: float = 0.0,
-        inflate: str = "chi2-test", alpha: float = 0.05) -> Fit:
+        inflate: str = "chi2-test", alpha: float = 0.05,
+        cov: np.ndarray | None = None) -> Fit:
     """Least-squares fit of a straight line or a constant.
 
     Parameters
@@ -196,6 +203,9 @@ def fit(x: np.ndarray | list[float], y: np.ndarray | list[float],
         :data:`INFLATE_POLICIES`). Default ``"chi2-test"``.
     alpha : float
         Significance level of the χ² test (0 < alpha < 1). Default 0.05.
+    cov : ndarray (n, n), optional
+        Full covariance matrix of ``y`` (symmetric positive definite, unit of y squared);
+        replaces ``u`` (generalised least squares). Default: none.
 
     Raises
     ------
@@ -218,6 +228,20 @@ def fit(x: np.ndarray | list[float], y: np.ndarray | list[float],
         raise ComputationError(f"x and y differ in length ({xa.size} and {n})")
     if not (np.all(np.isfinite(xa)) and np.all(np.isfinite(ya)) and math.isfinite(x0)):
         raise ComputationError("x, y and x0 must be finite numbers")
+    if cov is not None:
+        if u is not None:
+            raise ComputationError("give either u or cov, not both")
+        va = np.asarray(cov, dtype=float)
+        if va.shape != (n, n) or not np.all(np.isfinite(va)):
+            raise ComputationError(f"cov must be a finite {n} x {n} matrix")
+        try:
+            chol = np.linalg.cholesky(va)
+        except np.linalg.LinAlgError:
+            raise ComputationError("the covariance of the observations is not positive "
+                                   "definite") from None
+        u = np.sqrt(np.diag(va))
+    else:
+        chol = None
     weighted = u is not None
     if weighted:
         ua = np.asarray(u, dtype=float).ravel()
@@ -252,12 +276,18 @@ def fit(x: np.ndarray | list[float], y: np.ndarray | list[float],
         col[1] = float(np.max(np.abs(d))) or 1.0
     elif model == "proportional":
         col[0] = float(np.max(np.abs(xa)))
-    a = design / col / ua[:, None]
+    if chol is None:
+        a = design / col / ua[:, None]
+        yw = ya / ua
+    else:
+        # whitening: L⁻¹X and L⁻¹y turn the generalised problem into an ordinary one
+        a = np.linalg.solve(chol, design / col)
+        yw = np.linalg.solve(chol, ya)
     q, r = np.linalg.qr(a)
     if np.min(np.abs(np.diag(r))) <= 1e-12 * np.max(np.abs(np.diag(r))):
         raise ComputationError("the design matrix is singular; the fit is not determined")
     # p ≤ 2: numpy's small dense solvers are exact enough on a triangular factor and cheap
-    beta_s = np.linalg.solve(r, q.T @ (ya / ua))
+    beta_s = np.linalg.solve(r, q.T @ yw)
     r_inv = np.linalg.inv(r)
     with np.errstate(over="ignore", under="ignore", invalid="ignore"):
         cov_s = r_inv @ r_inv.T
@@ -281,7 +311,8 @@ def fit(x: np.ndarray | list[float], y: np.ndarray | list[float],
             verdict = ("as many parameters as points: the scatter cannot be checked against the "
                        "stated uncertainties")
         else:
-            chi2 = float(np.sum((resid / ua) ** 2))
+            white = resid / ua if chol is None else np.linalg.solve(chol, resid)
+            chi2 = float(np.sum(white ** 2))  # rᵀV⁻¹r
             reduced = chi2 / nu
             birge = math.sqrt(reduced)
             p_value = float(stats.chi2.sf(chi2, nu))
