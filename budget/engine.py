@@ -31,9 +31,11 @@ class ResolvedInputs:
 
     def __init__(self, quantities: list[Quantity], corr: np.ndarray,
                  inlined: dict[str, ex.Node], modules: dict[str, dict[str, Any]],
-                 pairs: list[tuple[str, str, float]], notes: list[str]):
+                 pairs: list[tuple[str, str, float]], notes: list[str],
+                 dof_groups: list[list[str]] | None = None):
         self.quantities, self.corr, self.inlined = quantities, corr, inlined
         self.modules, self.pairs, self.notes = modules, pairs, notes
+        self.dof_groups = dof_groups or []   # estimation groups for ν_eff
 
 
 def resolve_inputs(spec: Spec) -> ResolvedInputs:
@@ -43,6 +45,7 @@ def resolve_inputs(spec: Spec) -> ResolvedInputs:
     modules: dict[str, dict[str, Any]] = {}
     module_pairs: list[tuple[str, str, float]] = []
     owner: dict[str, str] = {}
+    dof_groups: list[list[str]] = []   # estimation groups for ν_eff (propagate.lpu)
     for name, table in spec.inputs.items():
         ctx = InputContext(name=name, table=table, folder=spec.folder, spec_file=spec.path,
                            lines=spec.lines.get(("inputs", name), {}))
@@ -61,6 +64,7 @@ def resolve_inputs(spec: Spec) -> ResolvedInputs:
                                     file=spec.path, field=f"inputs.{name}")
                 inlined[name] = tree
             module_pairs.extend(res.correlations)
+            dof_groups.extend(_module_dof_groups(qs, res.correlations))
             modules[name] = {"module": table["module"], "expression": res.expression,
                              "quantities": [q.name for q in qs],
                              "diagnostics": res.diagnostics}
@@ -131,7 +135,25 @@ def resolve_inputs(spec: Spec) -> ResolvedInputs:
                 put(group[i], group[j], float(r_obs[i, j]), "correlations.from_observations",
                     obs_line)
     _check_psd(corr, [q.name for q in quantities], spec)
-    return ResolvedInputs(quantities, corr, inlined, modules, pairs, [])
+    # simultaneous observations are one sample: their joint variance has ν = n − 1 exactly
+    dof_groups.extend(list(g) for g in spec.from_observations)
+    return ResolvedInputs(quantities, corr, inlined, modules, pairs, [], dof_groups)
+
+
+def _module_dof_groups(qs: list[Quantity], correlations) -> list[list[str]]:
+    """Quantities of one module linked by its correlations and sharing one finite ν: one fit's
+    residual scale, so one estimation group for ν_eff (budget.propagate.lpu.effective_dof)."""
+    by_name = {q.name: q for q in qs}
+    groups: list[set[str]] = []
+    for a, b, r in correlations:
+        if r == 0 or a not in by_name or b not in by_name:
+            continue
+        if not (math.isfinite(by_name[a].dof) and by_name[a].dof == by_name[b].dof):
+            continue
+        hit = [g for g in groups if a in g or b in g]
+        merged = set().union({a, b}, *hit)
+        groups = [g for g in groups if g not in hit] + [merged]
+    return [sorted(g) for g in groups]
 
 
 def _check_psd(corr: np.ndarray, names: list[str], spec: Spec) -> None:
@@ -180,7 +202,8 @@ def evaluate(spec: Spec, *, trials: int | None | str = "spec", seed: int | None 
         lin, cov = propagate_linear(model, qs, resolved.corr,
                                     coverage_probability=spec.coverage_probability,
                                     order=spec.propagation_order, dof_rounding=spec.dof_rounding,
-                                    fixed_k=spec.coverage_factor)
+                                    fixed_k=spec.coverage_factor,
+                                    dof_groups=resolved.dof_groups)
     except BudgetError as exc:
         raise _at_spec(exc, spec) from None
     measurands = tuple(_measurand(spec, model, lin[o], qs) for o in model.outputs)
@@ -274,6 +297,7 @@ def evaluate(spec: Spec, *, trials: int | None | str = "spec", seed: int | None 
         "constants": dict(model.constants),
         "report": dict(spec.report),
         "input_correlations": [[a, b, r] for a, b, r in resolved.pairs],
+        "dof_groups": [list(g) for g in resolved.dof_groups],
         "modules": resolved.modules,
         "files": [{"path": p, "sha256": h} for p, h in sorted(files.items())],
         "notes": notes,

@@ -13,8 +13,9 @@ record with :func:`budget.record.load_record`):
 
 The what-if recomputation repeats exactly what :mod:`budget.propagate.lpu` does, from the
 record alone: u_c² = (c·u)ᵀ r (c·u) + (second-order variance), with r the input correlations of
-``run.input_correlations``; ν_eff by Welch–Satterthwaite over groups of correlated inputs
-(:func:`budget.propagate.lpu.correlation_groups`, each group with the smallest ν of its members);
+``run.input_correlations``; ν_eff by :func:`budget.propagate.lpu.effective_dof` over the
+estimation groups of ``run.dof_groups`` (inputs with c = 0 take no part; a record without that
+key has no groups);
 k = t_p(ν_eff) by :func:`budget.propagate.lpu.coverage_factor` with the record's ``dof_rounding``,
 unless the spec fixed k. A halved term keeps its ν; a removed term is dropped like a constant.
 The second-order variance (``propagation_order = 2``) cannot be rescaled from the record and is
@@ -33,7 +34,7 @@ import numpy as np
 
 from . import expression as ex
 from .errors import BudgetError, UsageError, did_you_mean
-from .propagate.lpu import correlation_groups, coverage_factor
+from .propagate.lpu import coverage_factor, effective_dof, estimation_groups
 from .quantity import FileRef
 from .record import finite_number
 from .result import Budget, Measurand, Term, dof_out
@@ -93,8 +94,8 @@ def combine_terms(budget: Budget, measurand: Measurand,
     factors = dict(factors or {})
     run = budget.run
     c = {t.name: t.sensitivity for t in measurand.terms}
-    # Every uncertain input takes part, with c = 0 where this output does not use it, so the
-    # correlation groups (and their smallest ν) are the very groups the engine formed.
+    # Every uncertain input takes part, with c = 0 where this output does not use it (such an
+    # input adds nothing to u_c² or to ν_eff, but keeps the estimation groups whole).
     pool = [(q.name, q.standard_uncertainty, q.dof) for q in budget.inputs if not q.is_constant]
     known = {p[0] for p in pool}
     pool += [(t.name, t.standard_uncertainty, t.dof) for t in measurand.terms if t.name not in known]
@@ -103,13 +104,9 @@ def combine_terms(budget: Budget, measurand: Measurand,
     cu = np.array([c.get(n, 0.0) * u * factors.get(n, 1.0) for n, u, _ in pool])
     dof = np.array([nu for _, _, nu in pool])
     r = correlation_matrix(names, run)
-    var = float(cu @ r @ cu) + measurand.second_order_variance
-    denom = 0.0
-    for g in correlation_groups(r):
-        nu_g = float(dof[g].min())
-        if math.isfinite(nu_g):
-            denom += float(cu[g] @ r[np.ix_(g, g)] @ cu[g]) ** 2 / nu_g
-    nu = var ** 2 / denom if denom > 0 else math.inf
+    r_cu = r @ cu
+    var = float(cu @ r_cu) + measurand.second_order_variance
+    nu = effective_dof(cu, r_cu, dof, var, estimation_groups(names, run.get("dof_groups", [])))
     fixed = run.get("coverage_factor_fixed")
     k = float(fixed) if fixed is not None else coverage_factor(
         measurand.coverage_probability, nu, run.get("dof_rounding", "floor"))

@@ -98,10 +98,10 @@ def test_run_prints_the_budget_table(spec, tmp_path, capsys):
         assert any(line.startswith(name + " ") for line in text.splitlines())
     assert "rectangular" in text
     # By hand: u_c² = 0.3² + 0.4² + 2·0.5·0.3·0.4 + 1/12 = 0.37 + 0.08333 = 0.45333,
-    # u_c = 0.6733 V → "0.67" (GUM §7.2.6: two significant digits); U = t_0.975(15)·u_c = 1.435
-    # → "1.4" and the value to match: "3.0" (ν_eff below)
+    # u_c = 0.6733 V → "0.67" (GUM §7.2.6: two significant digits); U = t_0.975(91)·u_c = 1.337
+    # → "1.3" and the value to match: "3.0" (ν_eff = 91.3 below)
     assert "u_c = 0.67 V" in text
-    assert "(3.0 ± 1.4) V" in text
+    assert "(3.0 ± 1.3) V" in text
     assert "Monte Carlo (20,000 trials" in text
     assert f"record written to {out}" in text
 
@@ -138,9 +138,10 @@ def test_run_record_numbers(spec, tmp_path, capsys):
     rec = json.loads(out.read_text(encoding="utf-8"))
     (m,) = rec["measurands"]
     var = 0.3 ** 2 + 0.4 ** 2 + 2 * 0.5 * 0.3 * 0.4 + 1 / 12      # JCGM 100 eq. (16), by hand
-    # Welch–Satterthwaite with the correlated pair taken as one component with the smaller ν
-    # (the engine's documented rule, budget/propagate/lpu.py): (0.37)²/10 in the denominator
-    nu = var ** 2 / (0.37 ** 2 / 10)
+    # Welch–Satterthwaite for correlated inputs (derived in budget/propagate/lpu.py; G.2b for
+    # r = I): a's weight is its part of u_c², 0.3·(0.3 + 0.5·0.4) = 0.15, with ν = 10; b and c
+    # have ν = ∞
+    nu = var ** 2 / (0.15 ** 2 / 10)
     assert m["value"] == pytest.approx(3.0)
     assert m["standard_uncertainty"] == pytest.approx(math.sqrt(var), rel=1e-12)
     assert m["effective_dof"] == pytest.approx(nu, rel=1e-12)

@@ -77,12 +77,13 @@ U = {"a": 0.1, "b": 0.2, "c": 0.5 / math.sqrt(3), "d": 0.05}
 # u_c² = 0.075² + 0.1² + 2·0.5·0.075·0.1 + 0.375²·0.25/3 + 0.1²
 #      = 0.005625 + 0.01 + 0.0075 + 0.01171875 + 0.01 = 0.04484375
 VAR = 0.04484375
-# Welch–Satterthwaite with the correlated pair {a, b} as one group with ν = min(10, ∞) = 10;
-# c has ν = ∞; d has ν = 5:
-#   ν_eff = 0.04484375² / (0.023125²/10 + 0.01²/5) = 27.36875 -> floor 27
-GROUP_AB = 0.005625 + 0.01 + 0.0075          # = 0.023125
-NU = VAR ** 2 / (GROUP_AB ** 2 / 10 + 0.01 ** 2 / 5)
-
+# ν_eff by the correlated Welch–Satterthwaite of budget.propagate.lpu (derived there; G.2b for
+# r = I): each input's weight is its part of u_c², w_i = (c_i u_i)·Σ_j r_ij (c_j u_j), over ν_i.
+#   w_a = 0.075·(0.075 + 0.5·0.1) = 0.009375 (ν = 10); b has ν = ∞, c has ν = ∞;
+#   w_d = 0.1² = 0.01 (ν = 5)
+#   ν_eff = 0.04484375² / (0.009375²/10 + 0.01²/5) = 69.8516 -> floor 69
+W_A = 0.075 * (0.075 + 0.5 * 0.1)             # = 0.009375
+NU = VAR ** 2 / (W_A ** 2 / 10 + 0.01 ** 2 / 5)
 
 def k95(nu: float) -> float:
     """k = t_0.975(floor ν) (JCGM 100 G.4.1 note 1: truncation); scipy.stats.t as reference."""
@@ -99,7 +100,7 @@ def test_hand_numbers_of_the_model(budget):
     m = budget.measurand("Y")
     assert m.value == pytest.approx(2.5, rel=1e-12)        # 2·3/4 + 1² = 2.5
     assert m.standard_uncertainty == pytest.approx(math.sqrt(VAR), rel=1e-12)
-    assert NU == pytest.approx(27.36875, abs=1e-5)
+    assert NU == pytest.approx(69.85159, abs=1e-5)
     assert m.effective_dof == pytest.approx(NU, rel=1e-12)
     assert m.coverage_factor == pytest.approx(k95(NU), rel=1e-12)
 
@@ -152,28 +153,29 @@ def test_what_if_lines_by_hand(budget):
     m = budget.measurand("Y")
     # d halved: its contribution 0.1 -> 0.05, variance 0.01 -> 0.0025
     var = VAR - 0.01 + 0.0025                                        # 0.03734375
-    u_half = _what_if(var, GROUP_AB ** 2 / 10 + 0.0025 ** 2 / 5)
-    # d removed: variance 0.04484375 − 0.01 = 0.03484375; only the {a, b} group has finite ν
-    u_gone = _what_if(VAR - 0.01, GROUP_AB ** 2 / 10)
+    u_half = _what_if(var, W_A ** 2 / 10 + 0.0025 ** 2 / 5)
+    # d removed: variance 0.04484375 − 0.01 = 0.03484375; only a (w_a, ν = 10) has finite ν
+    u_gone = _what_if(VAR - 0.01, W_A ** 2 / 10)
     now, half, gone = explain_term(budget, "d").answers[0].what_if
     assert now.expanded_uncertainty == pytest.approx(m.expanded_uncertainty, rel=1e-12)
     assert half.expanded_uncertainty == pytest.approx(u_half, rel=1e-12)
     assert gone.expanded_uncertainty == pytest.approx(u_gone, rel=1e-12)
     assert half.relative_change == pytest.approx(u_half / m.expanded_uncertainty - 1, rel=1e-12)
 
-    # a removed: it leaves its correlated group, so b stands alone with ν = ∞ and only d's
-    # ν = 5 counts: variance 0.01 + 0.01171875 + 0.01 = 0.03171875
+    # a removed: only d's ν = 5 counts: variance 0.01 + 0.01171875 + 0.01 = 0.03171875
     gone_a = explain_term(budget, "a").answers[0].what_if[2]
     assert gone_a.standard_uncertainty == pytest.approx(math.sqrt(0.03171875), rel=1e-12)
     assert gone_a.effective_dof == pytest.approx(0.03171875 ** 2 / (0.01 ** 2 / 5), rel=1e-12)
     assert gone_a.expanded_uncertainty == pytest.approx(_what_if(0.03171875, 0.01 ** 2 / 5),
                                                         rel=1e-12)
-    # a halved: 0.0375² + 0.1² + 2·0.5·0.0375·0.1 = 0.01515625 for the group (ν = 10)
+    # a halved: u_c² part of a and b 0.0375² + 0.1² + 2·0.5·0.0375·0.1 = 0.01515625; a's own
+    # weight w_a = 0.0375·(0.0375 + 0.5·0.1) = 0.00328125 (ν = 10)
     g = 0.0375 ** 2 + 0.01 + 2 * 0.5 * 0.0375 * 0.1
+    w_a = 0.0375 * (0.0375 + 0.5 * 0.1)
     half_a = explain_term(budget, "a").answers[0].what_if[1]
     var_a = g + 0.01171875 + 0.01
     assert half_a.expanded_uncertainty == pytest.approx(
-        _what_if(var_a, g ** 2 / 10 + 0.01 ** 2 / 5), rel=1e-12)
+        _what_if(var_a, w_a ** 2 / 10 + 0.01 ** 2 / 5), rel=1e-12)
 
 
 def test_the_record_gives_the_same_answer(budget, tmp_path):

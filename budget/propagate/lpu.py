@@ -8,12 +8,27 @@ matrix r:
 * cov(y_a, y_b) = Σ_i Σ_j c_ai c_bj u_i u_j r_ij (JCGM 100 eq. F / H.2 practice);
 * share of term i in u_c²: (c_i u_i) Σ_j r_ij (c_j u_j) / u_c². The shares sum to one; without
   correlations each is (c_i u_i)²/u_c², and with correlations a share may fall outside [0, 1];
-* ν_eff = u_c⁴ / Σ_i (c_i u_i)⁴/ν_i (JCGM 100 eq. G.2b); a term with ν = ∞ adds nothing.
-  The formula assumes independent terms. Correlated inputs are therefore taken together: each
-  group of inputs linked by correlations contributes one variance v_g = (c·u)_gᵀ r_g (c·u)_g with
-  the smallest ν of its members (for simultaneous observations, as in JCGM 100 H.2, all members
-  share ν = n − 1, and the group behaves as one component with that ν; compare Willink,
-  Metrologia 44, 340, 2007, for the general case);
+* ν_eff = u_c⁴ / Σ_i (c_i u_i)⁴/ν_i (JCGM 100 eq. G.2b) for independent inputs; a term with
+  ν = ∞ adds nothing. With correlated inputs the rule is its generalisation
+  :func:`effective_dof`:
+
+      ν_eff = u_c⁴ / Σ_g w_g²/ν_g,   w_g = Σ_{i∈g} (c_i u_i) Σ_j r_ij (c_j u_j),
+
+  g running over *estimation groups*: inputs whose uncertainties were estimated together from
+  one sample (simultaneous observations, ``[correlations] from_observations``; quantities of one
+  input module linked by the module's own correlations and sharing one ν), every other input a
+  group of its own. w_g is the group's part of u_c² (the sum of its members' variance shares
+  times u_c²). Derivation (first order, as Welch–Satterthwaite itself): the estimate of u_c² is
+  Σ_ij r_ij a_i a_j with a_i = c_i s_i; if the estimated scale of group g is off by a relative
+  ε_g with var(ε_g) = 1/(2ν_g) (a scaled χ²_ν variance estimate), then ∂û_c²/∂ε_g = 2 w_g and
+  var(û_c²) = Σ_g 2 w_g²/ν_g; matching var = 2 u_c⁴/ν_eff gives the formula. It reduces to
+  G.2b for r = I; a group measured alone (GUM H.2) gets exactly ν = n − 1, since c^T S c of one
+  sample's covariance S is a scaled χ²_{n−1}; an input with c = 0 has w = 0 and takes no part
+  (Y2 = "B" with A correlated to B keeps B's ν), and a weakly correlated input's weight follows
+  its own contribution, continuous in r (A + B with r = 0.01 gives ν_eff ≈ 3·10⁴, as r = 0
+  gives 4·10⁴). Correlated errors from shared components are treated in the same spirit by
+  Willink, Metrologia 44 (2007) 340 (memory); the rule here is derived, not taken from there,
+  and the Monte Carlo check (JCGM 101 §8) remains the arbiter of the interval;
 * k = t_p(ν_eff). A fractional ν_eff is truncated to the next lower integer by default
   (JCGM 100 G.4.1 note 1 allows truncation or interpolation); ``dof_rounding="interpolate"``
   evaluates the t quantile at the fractional ν instead;
@@ -36,7 +51,8 @@ from ..gradient import value_and_gradient
 from ..model import Model
 from ..quantity import Quantity
 
-__all__ = ["LinearResult", "propagate_linear", "coverage_factor", "correlation_groups"]
+__all__ = ["LinearResult", "propagate_linear", "coverage_factor", "correlation_groups",
+           "effective_dof"]
 
 
 @dataclass(frozen=True)
@@ -112,7 +128,8 @@ def coverage_factor(p: float, dof: float, rounding: str = "floor") -> float:
 
 def propagate_linear(model: Model, quantities: Sequence[Quantity], corr: np.ndarray, *,
                      coverage_probability: float = 0.95, order: int = 1,
-                     dof_rounding: str = "floor", fixed_k: float | None = None
+                     dof_rounding: str = "floor", fixed_k: float | None = None,
+                     dof_groups: Sequence[Sequence[str]] = ()
                      ) -> tuple[dict[str, LinearResult], np.ndarray]:
     """Propagate the input uncertainties through every output of the model.
 
@@ -131,6 +148,9 @@ def propagate_linear(model: Model, quantities: Sequence[Quantity], corr: np.ndar
         "floor" (default) or "interpolate"; see :func:`coverage_factor`.
     fixed_k : float, optional
         Use this coverage factor instead of t_p(ν_eff).
+    dof_groups : sequence of sequences of str
+        Estimation groups for ν_eff (see :func:`effective_dof`): names of inputs whose
+        uncertainties come from one sample. Inputs in no group stand alone. Default none.
 
     Returns
     -------
@@ -152,7 +172,7 @@ def propagate_linear(model: Model, quantities: Sequence[Quantity], corr: np.ndar
                         "gives the second-order terms only for that case); remove the "
                         "correlations or use order 1", field="budget.propagation_order")
 
-    groups = correlation_groups(r)
+    groups = estimation_groups(names, dof_groups)
     results: dict[str, LinearResult] = {}
     cu_rows = []
     for name in model.outputs:
@@ -177,13 +197,7 @@ def propagate_linear(model: Model, quantities: Sequence[Quantity], corr: np.ndar
         var = var1 + var2
         uc = math.sqrt(max(var, 0.0))
         shares = cu * r_cu / var if var > 0 else np.zeros_like(cu)
-        denom = 0.0
-        for g in groups:
-            nu_g = float(dof[g].min())
-            if math.isfinite(nu_g):
-                v_g = float(cu[g] @ r[np.ix_(g, g)] @ cu[g])
-                denom += v_g ** 2 / nu_g
-        nu = var ** 2 / denom if denom > 0 else math.inf
+        nu = effective_dof(cu, r_cu, dof, var, groups)
         k = fixed_k if fixed_k is not None else coverage_factor(coverage_probability, nu,
                                                                 dof_rounding)
         results[name] = LinearResult(
@@ -194,6 +208,53 @@ def propagate_linear(model: Model, quantities: Sequence[Quantity], corr: np.ndar
     cu_m = np.array(cu_rows) if cu_rows else np.zeros((0, len(keep)))
     cov = cu_m @ r @ cu_m.T
     return results, cov
+
+
+def estimation_groups(names: Sequence[str], dof_groups: Sequence[Sequence[str]]
+                      ) -> list[list[int]]:
+    """Index groups over ``names``: each of ``dof_groups`` (names not present are skipped),
+    then every remaining input alone."""
+    index = {n: i for i, n in enumerate(names)}
+    out, seen = [], set()
+    for grp in dof_groups:
+        g = sorted({index[n] for n in grp if n in index} - seen)
+        if g:
+            out.append(g)
+            seen.update(g)
+    out.extend([i] for i in range(len(names)) if i not in seen)
+    return out
+
+
+def effective_dof(cu: np.ndarray, r_cu: np.ndarray, dof: np.ndarray, var: float,
+                  groups: Sequence[Sequence[int]]) -> float:
+    """ν_eff = u_c⁴ / Σ_g w_g²/ν_g with w_g = Σ_{i∈g} (c_i u_i)(r·cu)_i (module docstring).
+
+    Parameters
+    ----------
+    cu : ndarray
+        Signed contributions c_i u_i, in the output's unit.
+    r_cu : ndarray
+        r @ cu (same unit).
+    dof : ndarray
+        ν_i of every input (``inf`` allowed).
+    var : float
+        u_c² including any second-order variance (which carries ν = ∞).
+    groups : sequence of index lists
+        Estimation groups covering the inputs; a group's ν is the smallest of its members'
+        (they are equal for one sample).
+
+    Returns
+    -------
+    float
+        ν_eff; ``inf`` when no group with finite ν contributes.
+    """
+    w = cu * r_cu
+    denom = 0.0
+    for g in groups:
+        nu_g = float(np.min(dof[list(g)]))
+        if math.isfinite(nu_g):
+            denom += float(np.sum(w[list(g)])) ** 2 / nu_g
+    return var ** 2 / denom if denom > 0 else math.inf
 
 
 def correlation_groups(r: np.ndarray) -> list[list[int]]:
