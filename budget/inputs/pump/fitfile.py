@@ -148,7 +148,7 @@ def fit_file_text(record: FitRecord, fmt: str = "toml") -> str:
     d = record.to_dict()
     if fmt == "json":
         return json.dumps(d, indent=2) + "\n"
-    lines = ["# Pump fit result (format: budget/inputs/pump_fitfile.py). Units: V, s, 1/V, ln s."]
+    lines = ["# Pump fit result (format: budget/inputs/pump/fitfile.py). Units: V, s, 1/V, ln s."]
     lines += [f"{k} = {_toml_value(v)}" for k, v in d.items()]
     return "\n".join(lines) + "\n"
 
