@@ -1,0 +1,109 @@
+"""The operations behind ``budget logbook add|list|show|trend|export`` (the CLI calls these).
+
+Every check happens before the book is touched: ``add`` reads and checks all files first, then
+adds them in one transaction; ``export`` writes into a temporary folder beside DIR and renames
+it into place, so an interrupted export leaves no half folder.
+"""
+
+from __future__ import annotations
+
+import hashlib
+import os
+import shutil
+import tempfile
+from collections.abc import Sequence
+from datetime import datetime, timezone
+from pathlib import Path
+
+from ..errors import DataError, UsageError
+from .extract import PreparedRecord, prepare
+from .store import DEFAULT_WAIT_S, Logbook
+
+__all__ = ["read_record_file", "add_files", "add_prepared", "export_book", "export_name"]
+
+
+def read_record_file(path: str | Path) -> PreparedRecord:
+    """Read and check one record file (see :func:`budget.logbook.extract.prepare`)."""
+    p, name = Path(path), str(path)
+    if p.is_dir():
+        raise DataError("is a folder, not a record file", file=name)
+    if not p.is_file():
+        raise DataError("record file not found", file=name)
+    try:
+        raw = p.read_bytes()
+    except OSError as exc:
+        raise DataError(f"cannot be read: {exc.strerror}", file=name) from None
+    return prepare(raw, name)
+
+
+def _now() -> str:
+    return datetime.now(timezone.utc).strftime("%Y-%m-%dT%H:%M:%SZ")
+
+
+def add_prepared(book: str | Path, records: Sequence[PreparedRecord], *,
+                 wait_s: float = DEFAULT_WAIT_S, create_folder: bool = False) -> list[int]:
+    """Add checked records to the book at ``book`` (created when absent) in one transaction.
+
+    ``create_folder`` makes the book's folder first (for the per-user default location).
+    """
+    p = Path(book)
+    if create_folder and not p.exists():
+        p.parent.mkdir(parents=True, exist_ok=True)
+    with Logbook.open(p, write=True, create=True, wait_s=wait_s) as lb:
+        return lb.add(records, added_utc=_now())
+
+
+def add_files(book: str | Path, files: Sequence[str | Path], *,
+              wait_s: float = DEFAULT_WAIT_S, create_folder: bool = False) -> list[int]:
+    """Read and check every file, then add them all in one transaction; returns their ids.
+
+    Raises
+    ------
+    DataError or UsageError
+        Any file not a record of this version, tampered, already in the book; the book not a
+        logbook, newer, read-only or locked. Nothing is added then.
+    """
+    if not files:
+        raise UsageError("give at least one record file", field="RECORD")
+    prepared = [read_record_file(f) for f in files]
+    return add_prepared(book, prepared, wait_s=wait_s, create_folder=create_folder)
+
+
+def export_name(rid: int, sha256: str) -> str:
+    """File name of an exported record: its number in the book and the start of its digest."""
+    return f"{rid:06d}-{sha256[:12]}.json"
+
+
+def export_book(lb: Logbook, out: str | Path) -> list[Path]:
+    """Every record back as its original bytes in ``out`` (absent or empty), with SHA256SUMS.
+
+    Raises
+    ------
+    UsageError
+        ``out`` is a file, a non-empty folder, or its parent folder is missing.
+    DataError
+        A stored record that no longer matches its digest (nothing is written then).
+    """
+    dest = Path(out)
+    if dest.exists() and (not dest.is_dir() or any(dest.iterdir())):
+        raise UsageError("must be a new or empty folder", file=str(out), field="DIR")
+    if not dest.parent.is_dir():
+        raise UsageError("the parent folder does not exist", file=str(out), field="DIR")
+    records = lb.all_records()          # every digest is checked before anything is written
+    tmp = Path(tempfile.mkdtemp(prefix=f".{dest.name}.", suffix=".part", dir=dest.parent))
+    try:
+        lines, paths = [], []
+        for rid, sha, raw in records:
+            name = export_name(rid, sha)
+            (tmp / name).write_bytes(raw)
+            assert hashlib.sha256(raw).hexdigest() == sha  # checked by all_records
+            lines.append(f"{sha}  {name}\n")
+            paths.append(dest / name)
+        (tmp / "SHA256SUMS").write_text("".join(lines), encoding="utf-8")
+        if dest.exists():
+            dest.rmdir()
+        os.replace(tmp, dest)
+    except BaseException:
+        shutil.rmtree(tmp, ignore_errors=True)
+        raise
+    return paths
