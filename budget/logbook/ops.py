@@ -12,7 +12,7 @@ import os
 import shutil
 import tempfile
 from collections.abc import Sequence
-from datetime import datetime, timezone
+from datetime import UTC, datetime
 from pathlib import Path
 
 from ..errors import DataError, UsageError
@@ -37,7 +37,7 @@ def read_record_file(path: str | Path) -> PreparedRecord:
 
 
 def _now() -> str:
-    return datetime.now(timezone.utc).strftime("%Y-%m-%dT%H:%M:%SZ")
+    return datetime.now(UTC).strftime("%Y-%m-%dT%H:%M:%SZ")
 
 
 def add_prepared(book: str | Path, records: Sequence[PreparedRecord], *,

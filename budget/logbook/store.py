@@ -181,7 +181,10 @@ class Logbook:
             raise DataError(f"cannot be opened: {exc}", file=name, field="book") from None
         book = cls(p, con, write, wait_s)
         try:
-            con.execute("PRAGMA synchronous = FULL")
+            try:
+                con.execute("PRAGMA synchronous = FULL")
+            except sqlite3.Error as exc:
+                raise book._error(exc) from None
             book._check_schema(create, read_only)
         except BaseException:
             con.close()

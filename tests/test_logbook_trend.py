@@ -1,0 +1,188 @@
+"""Trend and control rules of the logbook.
+
+Sources: the weighted mean, its u and χ² of independent results (DOMAIN notes; Cox, Metrologia
+39, 589, 2002 — the textbook formulas, common practice); generalised least squares for
+correlated results, x̄ = 1ᵀV⁻¹x / 1ᵀV⁻¹1, u² = 1/1ᵀV⁻¹1, χ² = rᵀV⁻¹r (Aitken 1935; common
+practice), computed here directly with numpy.linalg on the dense matrix — an independent route
+from the library's low-rank sums; E_n with k = 2 (ISO 13528, ISO/IEC 17043); the χ² survival
+function from scipy.stats.
+"""
+
+from __future__ import annotations
+
+import json
+import math
+
+import numpy as np
+import pytest
+from logbook_helpers import SEASON, season_records
+from scipy import stats
+
+from budget.logbook import Logbook, add_files, compute_trend
+from budget.logbook.gls import Sums, cov_of_means, mean_stats
+from budget.logbook.store import Series, SeriesRow
+
+
+def _dense(x, d, b):
+    v = np.diag(d) + b @ b.T
+    vi = np.linalg.inv(v)
+    one = np.ones(len(x))
+    w = one @ vi @ one
+    m = one @ vi @ x / w
+    r = x - m
+    return m, 1 / math.sqrt(w), float(r @ vi @ r), v, vi @ one / w
+
+
+def _sums(x, d, b) -> Sums:
+    s = Sums(b.shape[1])
+    for xi, di, bi in zip(x, d, b):
+        s.add(xi, di, bi)
+    return s
+
+
+@pytest.mark.parametrize("seed", [1, 2, 3])
+def test_gls_matches_dense_matrix(seed):
+    rng = np.random.default_rng(seed)
+    n, k = 9, 3
+    x = rng.normal(0, 1, n)
+    d = rng.uniform(0.05, 0.5, n)
+    b = rng.normal(0, 0.2, (n, k)) * (rng.uniform(size=(n, k)) < 0.6)
+    m, u, chi2, v, a = _dense(x, d, b)
+    g = mean_stats(_sums(x, d, b))
+    assert g.value == pytest.approx(m, rel=1e-10)
+    assert g.standard_uncertainty == pytest.approx(u, rel=1e-10)
+    assert g.chi2 == pytest.approx(chi2, rel=1e-8)
+    assert g.p_value == pytest.approx(stats.chi2.sf(chi2, n - 1), rel=1e-8)
+    # covariance of a run outside the set with the mean: Σ_j a_j V_ij over the shared part
+    bj = rng.normal(0, 0.2, k)
+    assert g.cov_with_run(bj) == pytest.approx(float(bj @ b.T @ a), rel=1e-10)
+    # two disjoint means: aᵀ V_ST a' with V_ST = B_S B_Tᵀ
+    g1, g2 = mean_stats(_sums(x[:4], d[:4], b[:4])), mean_stats(_sums(x[4:], d[4:], b[4:]))
+    a1, a2 = _dense(x[:4], d[:4], b[:4])[4], _dense(x[4:], d[4:], b[4:])[4]
+    assert cov_of_means(g1, g2) == pytest.approx(float(a1 @ b[:4] @ b[4:].T @ a2), rel=1e-10)
+
+
+def test_independent_runs_give_the_textbook_weighted_mean():
+    x = np.array([1.0, 1.4, 0.7, 1.1])
+    u = np.array([0.2, 0.3, 0.25, 0.1])
+    w = 1 / u ** 2
+    g = mean_stats(_sums(x, u ** 2, np.zeros((4, 0))))
+    xbar = float(np.sum(w * x) / np.sum(w))
+    assert g.value == pytest.approx(xbar, rel=1e-12)
+    assert g.standard_uncertainty == pytest.approx(float(np.sum(w) ** -0.5), rel=1e-12)
+    chi2 = float(np.sum(w * (x - xbar) ** 2))
+    assert g.chi2 == pytest.approx(chi2, rel=1e-10)
+    assert g.birge_ratio == pytest.approx(math.sqrt(chi2 / 3), rel=1e-10)
+
+
+def _series(points, calibrations=(), terms=()) -> Series:
+    """points: (chain, date, value, u); ids 1..N in order."""
+    rows = tuple(SeriesRow(i + 1, dt, dt, ch, f"run {i + 1}", "ppm", v, u, 2 * u, 2.0)
+                 for i, (ch, dt, v, u) in enumerate(points))
+    return Series("dev_ppm", rows, 0, tuple(terms), tuple(calibrations))
+
+
+def _two_chains(shift: float):
+    pts, cals = [], []
+    for i in range(16):
+        day = f"2027-{1 + i // 4:02d}-{1 + 7 * (i % 4):02d}"
+        for ch in ("A", "B"):
+            after = i >= 8
+            v = shift if (ch == "A" and after) else 0.0
+            pts.append((ch, f"{day}T{'10' if ch == 'A' else '14'}:00", v, 0.2))
+            ident = ("cert-2" if after else "cert-1") if ch == "A" else "amp"
+            cals.append((len(pts), "R" if ch == "A" else "A_TR", "typed in", "", ident, "", ""))
+    return _series(pts, cals)
+
+
+def test_step_test_flags_the_recalibration_and_names_it():
+    t = compute_trend(_two_chains(-0.7))
+    step = [s for s in t.steps if s.recalibration.chain == "A"][0]
+    # 8 runs each side, u = 0.2 each: u(mean) = 0.2/√8, u(diff) = 0.2/2 = 0.1,
+    # E_n = −0.7 / (2 · 0.1) = −3.5 (derivation)
+    assert step.en == pytest.approx(-3.5, rel=1e-9)
+    assert step.other_en == pytest.approx(0.0, abs=1e-9)
+    flags = [f for f in t.flags if f.kind == "step"]
+    assert len(flags) == 1 and flags[0].chain == "A"
+    assert flags[0].calibrations[0]["identifier"] == "cert-2"
+    assert flags[0].calibrations[0]["previous_identifier"] == "cert-1"
+    assert "cert-2" in flags[0].message and "did not step" in flags[0].message
+
+
+def test_no_step_no_flag():
+    t = compute_trend(_two_chains(0.0))
+    assert [s.en for s in t.steps] == [pytest.approx(0.0, abs=1e-12)]
+    assert t.flags == ()
+
+
+def test_run_against_running_mean_of_other_chain():
+    t = compute_trend(_two_chains(-0.7))
+    first_after = [c for c in t.run_checks if c["chain"] == "A"][8]
+    # against 8 runs of B (u = 0.2 each → u(mean)² = 0.005) and no shared terms:
+    # E_n = −0.7 / (2·√(0.04 + 0.005)) (derivation)
+    assert first_after["runs_in_mean"] == 8
+    assert first_after["en"] == pytest.approx(-0.7 / (2 * math.sqrt(0.045)), rel=1e-9)
+    flagged = {f.runs[0] for f in t.flags if f.kind == "run-vs-other-chain"}
+    a_after = {c["id"] for c in t.run_checks if c["chain"] == "A"}
+    assert len(flagged & a_after) >= 8
+
+
+def test_shared_term_is_left_out_of_the_step():
+    # every A run shares one term of contribution 0.15 (u = 0.25 = √(0.2² + 0.15²)); it is
+    # the same before and after, so the step's u must not contain it: E_n as without it
+    pts, cals, terms = [], [], []
+    for i in range(8):
+        pts.append(("A", f"2027-01-{10 + i:02d}", 0.0 if i < 4 else 0.4, 0.25))
+        cals.append((i + 1, "R", "typed in", "", "c1" if i < 4 else "c2", "", ""))
+        terms.append((i + 1, 0.15, "shared-voltmeter"))
+    t = compute_trend(_series(pts, cals, terms))
+    # u(diff)² = 0.2²/4 · 2 = 0.02 → E_n = 0.4 / (2·√0.02) (derivation)
+    assert t.steps[0].en == pytest.approx(0.4 / (2 * math.sqrt(0.02)), rel=1e-9)
+
+
+def test_weighted_mean_covers_synthetic_truth():
+    # synthetic truth: 400 seasons of 10 runs with a shared term; x̄ ± 2u(x̄) should cover the
+    # true value about 95.4 % of the time (normal errors; binomial 99.9 % band of n = 400)
+    rng = np.random.default_rng(20261202)
+    covered = 0
+    for _ in range(400):
+        shared = rng.normal(0, 0.1)
+        x = 3.0 + shared + rng.normal(0, 0.2, 10)
+        s = _sums(x, np.full(10, 0.04), np.full((10, 1), 0.1))
+        g = mean_stats(s)
+        covered += abs(g.value - 3.0) <= 2 * g.standard_uncertainty
+    lo, hi = stats.binom.ppf([0.0005, 0.9995], 400, 0.9545)
+    assert lo <= covered <= hi
+
+
+@pytest.fixture(scope="module")
+def season_trend(tmp_path_factory):
+    folder = tmp_path_factory.mktemp("season")
+    book = folder / "book.sqlite"
+    add_files(book, season_records(folder / "records"))
+    with Logbook.open(book) as lb:
+        return compute_trend(lb.series("dev_ppm"))
+
+
+def test_season_flags_the_invented_recalibration(season_trend):
+    truth = json.loads((SEASON / "truth.json").read_text(encoding="utf-8"))
+    steps = [f for f in season_trend.flags if f.kind == "step"]
+    assert len(steps) == 1 and steps[0].chain == "resistor-voltmeter"
+    named = steps[0].calibrations[0]["identifier"]
+    assert named == truth["resistor_certificate_after"][1]
+    # synthetic truth: the step's interval (k = 2) covers the invented −0.7 ppm
+    s = [s for s in season_trend.steps if s.flagged][0]
+    assert abs(s.difference - truth["expected_step_ppm"]) <= 2 * s.standard_uncertainty
+    # the routine amplifier recalibration is tested and passes
+    amp = [s for s in season_trend.steps if s.recalibration.chain == "amplifier-voltmeter"]
+    assert len(amp) == 1 and abs(amp[0].en) <= 1
+    assert amp[0].recalibration.calibrations[0]["kind"] == "file"
+
+
+def test_season_has_enough_runs(season_trend):
+    # the issue's demand: >= 40 runs over a year through two chains
+    assert len(season_trend.points) >= 40
+    assert {p.chain for p in season_trend.points} == {"resistor-voltmeter",
+                                                      "amplifier-voltmeter"}
+    dates = sorted(p.date_start for p in season_trend.points)
+    assert dates[0][:7] == "2026-06" and dates[-1][:7] == "2027-05"
