@@ -148,6 +148,44 @@ class Distribution:
         raise BudgetError(f"unknown distribution {self.kind!r}", field="distribution")
 
     @property
+    def skewness(self) -> float:
+        """Standardised third central moment γ = μ₃/σ³ (0 for every symmetric kind).
+
+        Triangular on [a, b] with mode c: γ = √2 (a + b − 2c)(2a − b − c)(a − 2b + c) /
+        (5 (a² + b² + c² − ab − ac − bc)^{3/2}) (common practice; scipy.stats.triang agrees).
+        """
+        if self.kind != "triangular":
+            return 0.0
+        a, b, c = self.low, self.high, self.loc
+        q = ((a - b) ** 2 + (a - c) ** 2 + (b - c) ** 2) / 2   # a² + b² + c² − ab − ac − bc
+        return math.sqrt(2) * (a + b - 2 * c) * (2 * a - b - c) * (a - 2 * b + c) / (5 * q ** 1.5)
+
+    @property
+    def kurtosis(self) -> float:
+        """Standardised fourth central moment β = μ₄/σ⁴ (3 for the normal; not the excess).
+
+        Rectangular 9/5, triangular 12/5 (any mode), arcsine 3/2, Student t 3 + 6/(ν − 4) for
+        ν > 4 (infinite otherwise); a trapezoid is the sum of two independent rectangular
+        variables (JCGM 101 §6.4.4.4) with variances σ₁², σ₂², so its fourth cumulant is
+        −6/5 (σ₁⁴ + σ₂⁴) and β = 3 − 6/5 (σ₁⁴ + σ₂⁴)/(σ₁² + σ₂²)² (derived from the additivity
+        of cumulants). Values from the standard tables of these distributions (common practice).
+        """
+        if self.kind == "normal":
+            return 3.0
+        if self.kind == "rectangular":
+            return 1.8
+        if self.kind == "triangular":
+            return 2.4
+        if self.kind == "arcsine":
+            return 1.5
+        if self.kind == "trapezoidal":
+            v1, v2 = (1 + self.beta) ** 2, (1 - self.beta) ** 2     # ∝ σ₁², σ₂²
+            return 3 - 1.2 * (v1 ** 2 + v2 ** 2) / (v1 + v2) ** 2
+        if self.kind == "student-t":
+            return 3 + 6 / (self.dof - 4) if self.dof > 4 else math.inf
+        raise BudgetError(f"unknown distribution {self.kind!r}", field="distribution")
+
+    @property
     def half_width(self) -> float:
         """Half the width of a bounded distribution (NaN for unbounded ones)."""
         return (self.high - self.low) / 2

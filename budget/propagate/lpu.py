@@ -32,8 +32,19 @@ matrix r:
 * k = t_p(ν_eff). A fractional ν_eff is truncated to the next lower integer by default
   (JCGM 100 G.4.1 note 1 allows truncation or interpolation); ``dof_rounding="interpolate"``
   evaluates the t quantile at the fractional ν instead;
-* second order (``order=2``, JCGM 100 §5.1.2 note, uncorrelated inputs only):
-  u_c² += Σ_i Σ_j [½ (∂²f/∂x_i∂x_j)² + (∂f/∂x_i)(∂³f/∂x_i∂x_j²)] u_i² u_j².
+* second order (``order=2``, uncorrelated inputs only). The JCGM 100 §5.1.2 note formula
+  u_c² += Σ_i Σ_j [½ f_ij² + f_i f_ijj] u_i² u_j² assumes normal inputs: its diagonal terms use
+  the normal's E[δ⁴] = 3u⁴. For inputs of any distribution, with skewness γ_i = μ₃/u³ and
+  kurtosis β_i = μ₄/u⁴ (:attr:`budget.distributions.Distribution.kurtosis`), the Taylor series
+  Y − y ≈ Σ f_i δ_i + ½ Σ f_ij δ_i δ_j + ⅙ Σ f_ijk δ_i δ_j δ_k gives, to fourth order in u
+  (derived: Var(L) + 2 Cov(L, Q) + Var(Q) + 2 Cov(L, C) with independent δ_i),
+
+      u_c² += Σ_i [f_i f_ii γ_i u_i³ + (¼ f_ii² (β_i − 1) + ⅓ β_i f_i f_iii) u_i⁴]
+              + Σ_{i≠j} [½ f_ij² + f_i f_ijj] u_i² u_j²,
+
+  which is the note's formula for β = 3, γ = 0. Y = X², X rectangular on [−1, 1] (β = 9/5):
+  ¼·4·(9/5 − 1)/9 = 1/5 − 1/9, u = 0.298, exact for a quadratic model (the normal formula would
+  give 0.47). An input whose kurtosis is infinite (Student t with ν ≤ 4) is refused.
 """
 
 from __future__ import annotations
@@ -173,6 +184,7 @@ def propagate_linear(model: Model, quantities: Sequence[Quantity], corr: np.ndar
                         "correlations or use order 1", field="budget.propagation_order")
 
     groups = estimation_groups(names, dof_groups)
+    shape = _shapes([quantities[i] for i in keep]) if order == 2 else []
     results: dict[str, LinearResult] = {}
     cu_rows = []
     for name in model.outputs:
@@ -193,7 +205,7 @@ def propagate_linear(model: Model, quantities: Sequence[Quantity], corr: np.ndar
                                    "(rescale the inputs, e.g. work in other units)",
                                    field=f"model.{name}")
         cu_rows.append(cu)
-        var2 = _second_order(model.trees[name], env, names, u) if order == 2 else 0.0
+        var2 = _second_order(model.trees[name], env, names, u, shape) if order == 2 else 0.0
         var = var1 + var2
         uc = math.sqrt(max(var, 0.0))
         shares = cu * r_cu / var if var > 0 else np.zeros_like(cu)
@@ -277,8 +289,26 @@ def correlation_groups(r: np.ndarray) -> list[list[int]]:
     return out
 
 
-def _second_order(tree: ex.Node, env: dict, names: tuple[str, ...], u: np.ndarray) -> float:
-    """Σ_i Σ_j [½ f_ij² + f_i f_ijj] u_i² u_j² (JCGM 100 §5.1.2 note)."""
+def _shapes(qs: Sequence[Quantity]) -> list[tuple[float, float]]:
+    """(γ, β) of every input's distribution; an infinite β is refused (module docstring)."""
+    out = []
+    for q in qs:
+        d = q.distribution
+        # a normal input with finite ν is drawn from t_ν by the Monte Carlo method, but the GUM's
+        # linear and second-order propagation treat it as normal (JCGM 100 §5.1.2)
+        beta, gamma = d.kurtosis, d.skewness
+        if not math.isfinite(beta):
+            raise SpecError(f"propagation_order = 2 needs the fourth moment of every input; "
+                            f"'{q.name}' is a {d.describe()} whose fourth moment is infinite "
+                            "(ν ≤ 4); use order 1 and the Monte Carlo result",
+                            field="budget.propagation_order")
+        out.append((gamma, beta))
+    return out
+
+
+def _second_order(tree: ex.Node, env: dict, names: tuple[str, ...], u: np.ndarray,
+                  shape: Sequence[tuple[float, float]]) -> float:
+    """Second-order variance for independent inputs of any distribution (module docstring)."""
     total = 0.0
     used = ex.names(tree)
     first = {n: ex.diff(tree, n) for n in names if n in used}
@@ -290,10 +320,17 @@ def _second_order(tree: ex.Node, env: dict, names: tuple[str, ...], u: np.ndarra
         if ni not in first:
             continue
         fi = first[ni]
+        f_i = at(fi)
         for j, nj in enumerate(names):
             if nj not in used:
                 continue
             fij = ex.diff(fi, nj)
-            fijj = ex.diff(fij, nj)
-            total += (0.5 * at(fij) ** 2 + at(fi) * at(fijj)) * u[i] ** 2 * u[j] ** 2
+            f_ij = at(fij)
+            f_ijj = at(ex.diff(fij, nj))
+            if i == j:
+                gamma, beta = shape[i]
+                total += f_i * f_ij * gamma * u[i] ** 3
+                total += (0.25 * f_ij ** 2 * (beta - 1) + beta / 3 * f_i * f_ijj) * u[i] ** 4
+            else:
+                total += (0.5 * f_ij ** 2 + f_i * f_ijj) * u[i] ** 2 * u[j] ** 2
     return total
