@@ -248,7 +248,10 @@ def evaluate(spec: Spec, *, trials: int | None | str = "spec", seed: int | None 
                                max_trials=spec.max_trials,
                                t_for_finite_dof=spec.t_for_finite_dof)
         try:
-            mres = monte_carlo(model, qs, resolved.corr, settings, progress=progress)
+            mres = monte_carlo(model, qs, resolved.corr, settings, progress=progress,
+                               intervals={m.name: (m.value - m.expanded_uncertainty,
+                                                   m.value + m.expanded_uncertainty)
+                                          for m in measurands})
         except BudgetError as exc:
             raise _at_spec(exc, spec) from None
         out = []
@@ -265,7 +268,9 @@ def evaluate(spec: Spec, *, trials: int | None | str = "spec", seed: int | None 
                                   shortest_interval=r.shortest,
                                   histogram_counts=r.histogram_counts,
                                   histogram_edges=r.histogram_edges, adaptive=r.adaptive,
-                                  stabilised=r.stabilised))
+                                  stabilised=r.stabilised,
+                                  linear_interval_probability=r.interval_probabilities.get(
+                                      m.name)))
             if not r.stabilised:
                 notes.append(f"{m.name}: the adaptive Monte Carlo procedure stopped at "
                              f"max_trials = {spec.max_trials:,} before stabilising")
@@ -347,6 +352,7 @@ def _measurand(spec: Spec, model: Model, lr, qs: list[Quantity]) -> Measurand:
                      coverage_probability=lr.coverage_probability,
                      expanded_uncertainty=lr.expanded_uncertainty, terms=tuple(terms),
                      expression=spec.outputs[lr.name],
-                     second_order_variance=lr.second_order_variance)
+                     second_order_variance=lr.second_order_variance,
+                     coverage_probability_of_k=lr.coverage_probability_of_k)
 
 

@@ -116,7 +116,8 @@ def test_run_record_has_the_design_keys(spec, tmp_path, capsys):
     assert isinstance(rec["schema"], str)
     (m,) = rec["measurands"]
     assert DESIGN_MEASURAND <= set(m)
-    assert set(m) - DESIGN_MEASURAND == {"expression", "second_order_variance"}
+    assert set(m) - DESIGN_MEASURAND == {"expression", "second_order_variance",
+                                        "coverage_probability_of_k"}
     assert len(m["terms"]) == 3
     for t in m["terms"]:
         assert DESIGN_TERM <= set(t)
@@ -124,7 +125,8 @@ def test_run_record_has_the_design_keys(spec, tmp_path, capsys):
     (mc,) = rec["monte_carlo"]
     assert DESIGN_MC <= set(mc)
     assert set(mc) - DESIGN_MC == {"measurand", "symmetric_interval", "shortest_interval",
-                                   "histogram", "adaptive", "stabilised"}
+                                   "histogram", "adaptive", "stabilised",
+                                   "linear_interval_probability"}
     assert len(rec["inputs"]) == 3
     for q in rec["inputs"]:
         assert set(q) == DESIGN_INPUT

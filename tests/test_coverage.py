@@ -171,3 +171,39 @@ def test_voltmeter_refusals(tmp_path, table, field):
     with pytest.raises(SpecError) as e:
         _volt(tmp_path, **table)
     assert e.value.field == f"inputs.g.{field}"
+
+
+FIXED_K = """
+    [budget]
+    coverage_factor = 2
+    [model]
+    Y = "A"
+    [monte_carlo]
+    trials = 400000
+    seed = 3
+    [inputs.A]
+    observations = [1.0, 1.2, 0.9, 1.1]
+"""
+
+
+def test_fixed_k_states_the_probability_it_gives():
+    # issue 11 item 7: k = 2 with ν_eff = 3 (n = 4 readings) covers P(|t_3| ≤ 2) = 0.861
+    # (scipy.stats.t.cdf; EA-4/02 M:2022 §5 memory), not "approximately 95 %"
+    from budget.report.context import coverage_statement
+    from budget.text import budget_text
+    b = evaluate(spec_of(FIXED_K))
+    m = b.measurand("Y")
+    assert m.effective_dof == 3 and m.coverage_factor == 2.0
+    assert m.coverage_probability_of_k == pytest.approx(2 * stats.t.cdf(2.0, 3) - 1, rel=1e-12)
+    # synthetic truth: the Monte Carlo draws A from t_3 (JCGM 101 §6.4.9), so the fraction of
+    # trials inside y ± 2u is P(|t_3| ≤ 2) up to its binomial noise (±0.0017 at 4·10⁵ trials)
+    assert b.mc("Y").linear_interval_probability == pytest.approx(0.8607, abs=0.003)
+    text = budget_text(b)
+    assert "coverage probability 86.1 % at ν_eff = 3" in text and "about 95" not in text
+    sentence = coverage_statement(m, fixed_k=True,
+                                  mc_probability=b.mc("Y").linear_interval_probability)
+    assert "86.1 %" in sentence and "approximately" not in sentence
+    # a derived k keeps the nominal wording: t_0.975(3)·u covers 95 % by construction
+    free = evaluate(spec_of(FIXED_K.replace("coverage_factor = 2", "")),
+                    monte_carlo_enabled=False).measurand("Y")
+    assert free.coverage_probability_of_k == pytest.approx(0.95, rel=1e-12)

@@ -57,6 +57,7 @@ import numpy as np
 from scipy import special
 
 from .. import expression as ex
+from ..coverage import coverage_probability_of
 from ..errors import ComputationError, SpecError
 from ..gradient import value_and_gradient
 from ..model import Model
@@ -85,6 +86,8 @@ class LinearResult:
     coverage_factor: float
     coverage_probability: float
     expanded_uncertainty: float
+    #: P(|t_ν_eff| ≤ k): what k gives at ν_eff (differs from p when k is fixed or ν truncated)
+    coverage_probability_of_k: float = math.nan
 
     def to_dict(self) -> dict:
         """JSON-ready fields (arrays become lists of floats; an infinite ν becomes None)."""
@@ -99,7 +102,8 @@ class LinearResult:
                                   else float(self.effective_dof)),
                 "coverage_factor": float(self.coverage_factor),
                 "coverage_probability": float(self.coverage_probability),
-                "expanded_uncertainty": float(self.expanded_uncertainty)}
+                "expanded_uncertainty": float(self.expanded_uncertainty),
+                "coverage_probability_of_k": float(self.coverage_probability_of_k)}
 
 
 def coverage_factor(p: float, dof: float, rounding: str = "floor") -> float:
@@ -216,7 +220,8 @@ def propagate_linear(model: Model, quantities: Sequence[Quantity], corr: np.ndar
             name=name, value=float(value), standard_uncertainty=uc, names=names,
             sensitivities=c, contributions=cu, variance_shares=shares,
             second_order_variance=var2, effective_dof=nu, coverage_factor=k,
-            coverage_probability=coverage_probability, expanded_uncertainty=k * uc)
+            coverage_probability=coverage_probability, expanded_uncertainty=k * uc,
+            coverage_probability_of_k=coverage_probability_of(k, nu))
     cu_m = np.array(cu_rows) if cu_rows else np.zeros((0, len(keep)))
     cov = cu_m @ r @ cu_m.T
     return results, cov

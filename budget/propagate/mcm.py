@@ -23,8 +23,8 @@
 from __future__ import annotations
 
 import math
-from collections.abc import Callable, Sequence
-from dataclasses import dataclass
+from collections.abc import Callable, Mapping, Sequence
+from dataclasses import dataclass, field
 
 import numpy as np
 from scipy import special
@@ -85,6 +85,8 @@ class McmResult:
     adaptive: bool
     stabilised: bool
     batches: int
+    #: output name -> fraction of the trials inside the interval given to :func:`monte_carlo`
+    interval_probabilities: dict[str, float] = field(default_factory=dict)
 
     def to_dict(self) -> dict:
         """JSON-ready fields (values in the output's unit; tuples become lists)."""
@@ -93,7 +95,8 @@ class McmResult:
                 "symmetric": list(self.symmetric), "shortest": list(self.shortest),
                 "histogram_counts": list(self.histogram_counts),
                 "histogram_edges": list(self.histogram_edges), "adaptive": self.adaptive,
-                "stabilised": self.stabilised, "batches": self.batches}
+                "stabilised": self.stabilised, "batches": self.batches,
+                "interval_probabilities": dict(self.interval_probabilities)}
 
 
 def coverage_intervals(sorted_y: np.ndarray, p: float) -> tuple[tuple[float, float],
@@ -177,7 +180,9 @@ def _as_t(q: Quantity) -> Quantity:
 
 def monte_carlo(model: Model, quantities: Sequence[Quantity], corr: np.ndarray,
                 settings: McmSettings, *,
-                progress: Callable[[int, int], None] | None = None) -> dict[str, McmResult]:
+                progress: Callable[[int, int], None] | None = None,
+                intervals: Mapping[str, tuple[float, float]] | None = None
+                ) -> dict[str, McmResult]:
     """Run the Monte Carlo method for every output of the model.
 
     Parameters
@@ -185,6 +190,10 @@ def monte_carlo(model: Model, quantities: Sequence[Quantity], corr: np.ndarray,
     progress : callable, optional
         Called as ``progress(done, total)`` after each chunk (total is the current target for
         the adaptive procedure).
+    intervals : mapping, optional
+        Output name -> (low, high), e.g. the linear y ± U; the result's
+        ``interval_probabilities`` gives the fraction of trials inside each (the coverage
+        probability the Monte Carlo method gives that interval).
     """
     rng = np.random.default_rng(settings.seed)
     sampler = _Sampler(quantities, corr, settings.t_for_finite_dof)
@@ -243,11 +252,16 @@ def monte_carlo(model: Model, quantities: Sequence[Quantity], corr: np.ndarray,
         if hi <= lo:
             lo, hi = lo - 0.5, hi + 0.5
         counts, edges = np.histogram(y, bins=80, range=(lo, hi))
+        inside = {}
+        if intervals and name in intervals:
+            a, b = intervals[name]
+            inside[name] = float(np.searchsorted(y, b, side="right")
+                                 - np.searchsorted(y, a, side="left")) / y.size
         results[name] = McmResult(
             name=name, trials=int(y.size), value=mean, standard_uncertainty=sd, symmetric=sym,
             shortest=short, histogram_counts=tuple(int(c) for c in counts),
             histogram_edges=tuple(float(e) for e in edges), adaptive=settings.trials is None,
-            stabilised=stabilised, batches=batches)
+            stabilised=stabilised, batches=batches, interval_probabilities=inside)
     return results
 
 

@@ -61,8 +61,30 @@ def result_line(m: Measurand) -> str:
     return f"{m.name} = ({y} ± {big_u}){unit}"
 
 
-def coverage_statement(m: Measurand, *, fixed_k: bool) -> str:
-    """The sentence that says what U means (own wording of JCGM 100 §7.2.3 / EA-4/02 §5)."""
+def probability_of_k(m: Measurand) -> float:
+    """P(|t_ν_eff| ≤ k) of the record, recomputed for records written before it was stored."""
+    if m.coverage_probability_of_k is not None:
+        return m.coverage_probability_of_k
+    from ..coverage import coverage_probability_of
+    return coverage_probability_of(m.coverage_factor, m.effective_dof)
+
+
+def p_text(m: Measurand, *, fixed_k: bool) -> str:
+    """The coverage probability to print beside k: the spec's p, or with a fixed k the one k
+    gives at ν_eff (e.g. "86.1 %" for k = 2, ν_eff = 3) — never the spec's p for a fixed k."""
+    if fixed_k:
+        return f"{100 * probability_of_k(m):.3g} %"
+    return f"{100 * m.coverage_probability:g} %"
+
+
+def coverage_statement(m: Measurand, *, fixed_k: bool, mc_probability: float | None = None
+                       ) -> str:
+    """The sentence that says what U means (own wording of JCGM 100 §7.2.3 / EA-4/02 §5).
+
+    With a fixed k the sentence states the coverage probability k gives for a t distribution
+    with ν_eff degrees of freedom, P(|t_ν| ≤ k) (JCGM 100 G.3), and the fraction of Monte Carlo
+    trials inside y ± U when given (``mc_probability``), not the spec's nominal p.
+    """
     unit = unit_suffix(m.unit)
     k = f"{m.coverage_factor:.2f}"
     p = f"{100 * m.coverage_probability:g} %"
@@ -70,9 +92,14 @@ def coverage_statement(m: Measurand, *, fixed_k: bool) -> str:
             f"combined standard uncertainty u_c = {sci(fmt_u(m.standard_uncertainty))}{unit} "
             f"multiplied by the coverage factor k = {k}")
     if fixed_k:
+        dist = ("the normal distribution" if math.isinf(m.effective_dof) else
+                f"a t-distribution with ν_eff = {fmt_dof(m.effective_dof)} effective degrees of "
+                "freedom (Welch–Satterthwaite)")
+        mc = ("" if mc_probability is None else
+              f"; {100 * mc_probability:.3g} % of the Monte Carlo trials lie within y ± U")
         return (f"{head}, a value fixed in the budget spec rather than derived from the "
-                f"degrees of freedom; it is stated to give a coverage probability of "
-                f"approximately {p}.")
+                f"degrees of freedom; for {dist} it gives a coverage probability of "
+                f"{p_text(m, fixed_k=True)}{mc}.")
     if math.isinf(m.effective_dof):
         return (f"{head}; for the normal distribution that the measurand is taken to follow, "
                 f"this gives a coverage probability of approximately {p}.")
@@ -168,11 +195,13 @@ def _measurand_block(b: Budget, m: Measurand, *, draw: bool) -> dict[str, Any]:
                   f"{sci(fmt_u(math.sqrt(abs(m.second_order_variance))))}{unit} in quadrature")
     return {
         "name": m.name, "unit": m.unit, "unit_sfx": unit, "expression": m.expression,
-        "result_line": result_line(m), "statement": coverage_statement(m, fixed_k=fixed),
+        "result_line": result_line(m),
+        "statement": coverage_statement(m, fixed_k=fixed, mc_probability=(
+            b.mc(m.name).linear_interval_probability if b.mc(m.name) is not None else None)),
         "value": value_u(m.value, m.expanded_uncertainty) + unit,
         "U": sci(fmt_u(m.expanded_uncertainty)) + unit,
         "u": sci(fmt_u(m.standard_uncertainty)) + unit,
-        "k": f"{m.coverage_factor:.2f}", "p": f"{100 * m.coverage_probability:g} %",
+        "k": f"{m.coverage_factor:.2f}", "p": p_text(m, fixed_k=fixed),
         "dof": fmt_dof(m.effective_dof), "relative_U": rel,
         "terms": _term_rows(m), "share_figure": share_fig, "second_order": second,
         "mc": _mc_block(b, m, draw=draw),

@@ -49,9 +49,22 @@ def budget_text(b: Budget) -> str:
         p = m.coverage_probability
         out.append(f"  {m.name} = {fmt_value(m.value, m.standard_uncertainty)}{unit}, "
                    f"u_c = {fmt_u(m.standard_uncertainty)}{unit}, ν_eff = {fmt_dof(m.effective_dof)}")
-        out.append(f"  result: {m.name} = ({fmt_value(m.value, m.expanded_uncertainty)} ± "
-                   f"{fmt_u(m.expanded_uncertainty)}){unit}, U with k = {m.coverage_factor:.2f} "
-                   f"for a coverage probability of about {100 * p:g} %")
+        head = (f"  result: {m.name} = ({fmt_value(m.value, m.expanded_uncertainty)} ± "
+                f"{fmt_u(m.expanded_uncertainty)}){unit}, U with k = {m.coverage_factor:.2f}")
+        if b.run.get("coverage_factor_fixed") is not None:
+            # a fixed k does not give the spec's p: say what it gives at ν_eff (JCGM 100 G.3)
+            pk = m.coverage_probability_of_k
+            if pk is None:
+                from ..coverage import coverage_probability_of
+                pk = coverage_probability_of(m.coverage_factor, m.effective_dof)
+            mc = b.mc(m.name)
+            mc_p = (f"; Monte Carlo: {100 * mc.linear_interval_probability:.3g} % of trials "
+                    "within y ± U" if mc is not None and mc.linear_interval_probability
+                    is not None else "")
+            out.append(f"{head} (fixed in the spec): coverage probability "
+                       f"{100 * pk:.3g} % at ν_eff = {fmt_dof(m.effective_dof)}{mc_p}")
+        else:
+            out.append(f"{head} for a coverage probability of about {100 * p:g} %")
         if m.second_order_variance:
             out.append(f"  includes second-order terms: "
                        f"{fmt_u(math.sqrt(abs(m.second_order_variance)))}{unit} in quadrature")
