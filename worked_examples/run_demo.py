@@ -44,6 +44,29 @@ def budget(*args, quiet: bool = False) -> None:
             print(f"    {ln}")
 
 
+def season(book: Path) -> str:
+    """The invented season (worked_examples/season): 48 records evaluated in one process, added
+    to a fresh book, the trend page written; returns the step flag, which must name the
+    invented resistor recalibration (the demo stops otherwise)."""
+    records = OUT / "season"
+    print(f"$ python {rel(EX / 'season' / 'make_records.py')} {rel(records)}", flush=True)
+    subprocess.run([sys.executable, str(EX / "season" / "make_records.py"), str(records)],
+                   cwd=ROOT, check=True)
+    budget("logbook", "add", *sorted(records.glob("*.json")), "--book", book, quiet=True)
+    budget("logbook", "trend", "--book", book, "--pdf", OUT / "trend.pdf", "--json",
+           OUT / "trend.json", quiet=True)
+    truth = json.loads((EX / "season" / "truth.json").read_text(encoding="utf-8"))
+    trend = json.loads((OUT / "trend.json").read_text(encoding="utf-8"))
+    named = truth["resistor_certificate_after"][1]
+    steps = [f for f in trend["flags"] if f["kind"] == "step"
+             and any(c["identifier"] == named for c in f["calibrations"])]
+    if not steps:
+        sys.exit(f"demo stopped: the trend did not flag the invented recalibration ({named})")
+    f = steps[0]
+    return (f"{f['chain']} stepped at the recalibration “{named}”: E_n = {f['value']:.1f} "
+            f"(the invented hidden error of 0.7 ppm) → {rel(OUT / 'trend.pdf')}")
+
+
 def main() -> None:
     start = time.monotonic()
     if OUT.exists():
@@ -86,10 +109,14 @@ def main() -> None:
          [("compare", *(OUT / f"run_{x}.json" for x in "abc"), "--reference",
            OUT / "amplifier.json", "--pairwise", "--pdf", OUT / "compare.pdf")], False),
     ]
+    total = len(steps) + 1
     for i, (what, commands, quiet) in enumerate(steps, start=1):
-        print(f"\n[{i}/{len(steps)}] {what}", flush=True)
+        print(f"\n[{i}/{total}] {what}", flush=True)
         for args in commands:
             budget(*args, quiet=quiet)
+    print(f"\n[{total}/{total}] keep a year of invented runs in the logbook and watch the "
+          "trend", flush=True)
+    flag = season(OUT / "logbook.sqlite")
 
     record = json.loads((OUT / "result.json").read_text(encoding="utf-8"))
     dev = next(m for m in record["measurands"] if m["name"].startswith("dev"))
@@ -102,6 +129,7 @@ def main() -> None:
           f"{dev['value']:+.2f} ppm with expanded uncertainty U = "
           f"{dev['expanded_uncertainty']:.2f} ppm (k = {dev['coverage_factor']:.2f}, "
           f"p ≈ {100 * dev['coverage_probability']:g} %)")
+    print(f"Logbook (invented season): {flag}")
     print("The signed documents are demonstrations: a real certificate is reviewed and "
           "authorised under the laboratory's own quality procedures.")
 

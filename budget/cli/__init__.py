@@ -4,7 +4,7 @@ The only package that imports argparse or prints. Each command parses its argume
 library function, prints, and maps errors to exit codes: 0 ok, 1 a check failed, 2 bad input or
 usage (one line on stderr naming file, line or row, and field; no traceback; nothing written).
 
-One module per command group (``run``, ``report``, ``explain``, ``pump``, ``evidence``);
+One module per command group (``run``, ``report``, ``explain``, ``pump``, ``evidence``, ``logbook``);
 what they share (parser class, progress bar, argument types, error mapping) is in
 :mod:`budget.cli.common` and here. Adding a command: in its group's module write
 ``add_NAME(sub)`` that registers the subparser with ``set_defaults(func=_cmd_NAME)`` and
@@ -22,6 +22,7 @@ from ..errors import BudgetError, UsageError
 from .common import EXIT_BAD_INPUT, EXIT_INTERRUPTED, EXIT_OK, Parser
 from .evidence import add_identity, add_sign, add_verify
 from .explain import add_compare, add_explain
+from .logbook import add_logbook
 from .pump import add_pump
 from .report import add_report
 from .run import add_run, add_validate
@@ -29,7 +30,7 @@ from .run import add_run, add_validate
 __all__ = ["main", "build_parser", "COMMANDS"]
 
 COMMANDS = [add_run, add_validate, add_explain, add_compare, add_pump,
-            add_identity, add_sign, add_verify, add_report]
+            add_identity, add_sign, add_verify, add_report, add_logbook]
 
 
 def build_parser() -> argparse.ArgumentParser:

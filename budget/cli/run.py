@@ -15,6 +15,7 @@ from .common import (
     trials_arg,
     write_archive_option,
 )
+from .logbook import add_book_options, add_run_record, check_run_logbook
 
 
 def add_run(sub) -> None:
@@ -29,6 +30,10 @@ def add_run(sub) -> None:
     p.add_argument("--seed", type=seed_arg, metavar="S", help="random seed; overrides the spec")
     p.add_argument("--no-monte-carlo", action="store_true", help="skip the Monte Carlo method")
     add_archive_options(p)
+    p.add_argument("--logbook", action="store_true",
+                   help="also add the record to the logbook (--book FILE, else "
+                        "$BUDGET_LOGBOOK, else the per-user book)")
+    add_book_options(p, wait=True)
     p.set_defaults(func=_cmd_run)
 
 
@@ -37,9 +42,15 @@ def _cmd_run(args) -> int:
     if args.json:
         check_writable(args.json)
     check_archive_option(args)
+    book = check_run_logbook(args)
     from ..text import budget_text
     b = evaluate_spec(args)
+    if book is not None:
+        # into the book first: a refusal there (the same record again) leaves no file behind
+        rid = add_run_record(args, b, book)
     print(budget_text(b))
+    if book is not None:
+        print(f"\nrecord added to the logbook {book} as #{rid}")
     if args.json:
         write_atomic(args.json, b.to_json())
         print(f"\nrecord written to {args.json}")

@@ -388,7 +388,7 @@ class Logbook:
 
     def measurand_counts(self) -> list[tuple[str, int]]:
         return [(n, c) for n, c in self._query(
-            "SELECT name, count(*) FROM measurands GROUP BY name ORDER BY min(rowid)")]
+            "SELECT name, count(*) FROM measurands GROUP BY name ORDER BY min(record_id), name")]
 
     def series(self, measurand: str) -> Series:
         """Everything a trend of ``measurand`` needs, in one read."""

@@ -10,7 +10,9 @@ The one place that draws (modules, the pump fit and the comparison only supply f
 * :func:`module_figure` — the generic renderer of the figure *data* that input modules put in
   ``diagnostics["figures"]`` (points with error bars, lines, bands; linear or log axes). The
   Allan curve, the drift line with its band and the plateau fit all come through it;
-* :func:`compare_figure` — a comparison of runs, one labelled tick per run.
+* :func:`compare_figure` — a comparison of runs, one labelled tick per run;
+* :func:`trend_figure` — the logbook's trend: runs against date per chain, the means before
+  and after each recalibration, the flags.
 
 No global matplotlib state is touched: every drawing builds its own ``Figure`` (not pyplot) and
 saves it with the SVG canvas, so importing :mod:`budget` or rendering a report never changes
@@ -36,7 +38,7 @@ from ..errors import DataError
 from ..fmt import fmt_dof, fmt_value
 from .text import pretty_label, sci, superscript
 
-__all__ = ["share_figure", "compare_figure", "mc_figure", "module_figure", "check_figure", "svg_data_uri",
+__all__ = ["share_figure", "compare_figure", "trend_figure", "mc_figure", "module_figure", "check_figure", "svg_data_uri",
            "linear_pdf", "MAX_POINTS"]
 
 #: Longest series drawn; longer ones are thinned evenly (the modules' own limit is ~400).
@@ -343,3 +345,67 @@ def compare_figure(fig: dict[str, Any], run_labels: Sequence[str]) -> str:
         buf = io.StringIO()
         mfig.savefig(buf, format="svg", metadata={"Date": None})
         return buf.getvalue()
+
+
+_CHAIN_STYLE = (("#1f4e79", "o"), ("#b35806", "s"), ("#4d7f17", "^"), ("#6a3d9a", "D"))
+
+
+def trend_figure(trend) -> str:
+    """SVG text of a logbook trend (:class:`budget.logbook.trend.Trend`): each run with its
+    expanded uncertainty against measurement date, one colour per chain; each chain's weighted
+    means before and after every tested recalibration as segments; recalibrations as dashed
+    lines (red and labelled when the step test flags them); runs flagged against the other
+    chain ringed in red."""
+    from datetime import datetime
+
+    import matplotlib.dates as mdates
+
+    def when(s: str) -> datetime:
+        return datetime.fromisoformat(s if "T" in s else s + "T00:00")
+
+    unit_txt = f" ({trend.unit})" if trend.unit not in ("", "1") else ""
+    flagged_runs = {r for f in trend.flags if f.kind == "run-vs-other-chain" for r in f.runs}
+    with _rc():
+        fig = _new_figure(3.3)
+        ax = fig.add_subplot()
+        chains = [c.chain for c in trend.chains]
+        for j, chain in enumerate(chains):
+            colour, marker = _CHAIN_STYLE[j % len(_CHAIN_STYLE)]
+            pts = [p for p in trend.points if p.chain == chain]
+            ax.errorbar([when(p.date_start) for p in pts], [p.value for p in pts],
+                        yerr=[p.expanded_uncertainty for p in pts], fmt=marker, ms=3.5, lw=0.8,
+                        capsize=2, color=colour, label=f"{chain} ± U")
+            ring = [p for p in pts if p.id in flagged_runs]
+            if ring:
+                ax.plot([when(p.date_start) for p in ring], [p.value for p in ring], "o",
+                        ms=8, mfc="none", mec="#c0392b", mew=1.0,
+                        label="run flagged against the other chain" if j == 0 else None)
+            for s in trend.steps:
+                if s.recalibration.chain != chain or s.before is None:
+                    continue
+                r = s.recalibration
+                ax.plot([when(s.date_first), when(r.date_to)], [s.before.value] * 2,
+                        color=colour, lw=1.6, alpha=0.8)
+                ax.plot([when(r.date_to), when(s.date_last)], [s.after.value] * 2,
+                        color=colour, lw=1.6, alpha=0.8)
+        seen = set()
+        for s in trend.steps:
+            r = s.recalibration
+            colour = "#c0392b" if s.flagged else "#7f7f7f"
+            label = ("recalibration, step flagged" if s.flagged else "recalibration")
+            ax.axvline(when(r.date_to), color=colour, ls="--", lw=1.0,
+                       label=None if label in seen else label)
+            seen.add(label)
+            if s.flagged:
+                ax.annotate(f"{r.chain}: E_n = {s.en:.1f}\n{_wrap(r.label(), 60)}",
+                            (when(r.date_to), 1.0), xycoords=("data", "axes fraction"),
+                            xytext=(4, -4), textcoords="offset points", va="top", fontsize=6.0,
+                            color="#c0392b", bbox={"boxstyle": "square,pad=0.2", "fc": "white",
+                                                   "ec": "none", "alpha": 0.85})
+        ax.xaxis.set_major_formatter(mdates.DateFormatter("%Y-%m"))
+        ax.set_xlabel("measurement date")
+        ax.set_ylabel(f"{pretty_label(trend.measurand)}{unit_txt}")
+        ax.ticklabel_format(axis="y", useOffset=False)
+        ax.legend(frameon=False, loc="upper center", bbox_to_anchor=(0.5, -0.16), ncol=3,
+                  fontsize=6.5)
+        return _to_svg(fig)

@@ -10,6 +10,7 @@ tables          the generic column table and the label-column layout of fixed-se
 budget_table    ``budget run``: the budget table and result lines of a Budget
 explain_text    ``budget explain``: the overview and the fixed-section answer for one term
 compare_text    ``budget compare``: runs, weighted mean, Birge ratio, E_n
+logbook_text    ``budget logbook list``, ``show``, ``trend``
 evidence_text   ``budget validate``, ``budget identity create``, ``budget verify``
 """
 
@@ -25,8 +26,10 @@ from .evidence_text import (
     verdict_text,
 )
 from .explain_text import explain_overview_text, explain_term_text
+from .logbook_text import logbook_list_text, logbook_show_text, logbook_trend_text, main_measurand
 from .tables import section, table
 
 __all__ = ["budget_text", "compare_text", "explain_overview_text", "explain_term_text",
-           "identity_text", "recompute_text", "section", "signatures_text", "table",
+           "identity_text", "logbook_list_text", "logbook_show_text", "logbook_trend_text",
+           "main_measurand", "recompute_text", "section", "signatures_text", "table",
            "validate_text", "verdict_text"]

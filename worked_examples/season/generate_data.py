@@ -99,6 +99,7 @@ n = 1
 
 [monte_carlo]
 enabled = false
+seed = {SEED + n}                     # recorded: the same spec gives a byte-identical record
 
 [inputs.dV]
 value = {dv!r}

@@ -1,0 +1,100 @@
+"""Logbook at scale: 10 000 records added, listed and trended; the book's size (by hand).
+
+Targets (issue 16): 10 000 records added in < 10 s; ``list`` and ``trend`` over 10 000 records
+in < 1 s; the book of 10 000 records < 200 MB.
+
+The records are the invented season's 48 records (``worked_examples/season``, evaluated once)
+copied 10 000 times with a changed title and measurement date (so each is distinct and the
+dates spread over about 27 years), kept as files; the add reads, checks and digests every file
+(``budget.logbook.add_files``, what ``budget logbook add`` does) and writes them in one
+transaction. List = ``Logbook.entries()``; trend = ``Logbook.series`` + ``compute_trend``.
+Each timing is repeated (a fresh book for each add) and reported as min / median / max.
+
+A second, smaller run adds the 10-hour resistor-chain record of ``worked_examples/runs``
+(about 100 kB, most of it module diagnostics) 1 000 times, to show how size and time grow
+with the record.
+
+    .venv/bin/python benchmarks/bench_logbook.py [N]
+"""
+
+from __future__ import annotations
+
+import json
+import statistics
+import subprocess
+import sys
+import tempfile
+import time
+from datetime import date, timedelta
+from pathlib import Path
+
+ROOT = Path(__file__).resolve().parent.parent
+sys.path.insert(0, str(ROOT / "worked_examples" / "season"))
+
+from make_records import make_records  # noqa: E402
+
+from budget.logbook import Logbook, add_files, compute_trend  # noqa: E402
+
+
+def copies(src: list[Path], out: Path, n: int) -> list[Path]:
+    out.mkdir(parents=True, exist_ok=True)
+    base = [json.loads(p.read_text(encoding="utf-8")) for p in src]
+    paths = []
+    for i in range(n):
+        d = base[i % len(base)]
+        day = date(2000, 1, 1) + timedelta(days=i)
+        d["run"]["title"] = f"copy {i} of the season"
+        d["run"]["report"]["measurement_date"] = f"{day.isoformat()} 18:00 to 23:00"
+        p = out / f"r{i:05d}.json"
+        p.write_text(json.dumps(d, indent=2, ensure_ascii=False) + "\n", encoding="utf-8")
+        paths.append(p)
+    return paths
+
+
+def timed(fn, repeats: int) -> list[float]:
+    out = []
+    for _ in range(repeats):
+        t0 = time.perf_counter()
+        fn()
+        out.append(time.perf_counter() - t0)
+    return out
+
+
+def row(label: str, times: list[float], target: str) -> str:
+    return (f"| {label} | {min(times):.2f} s | {statistics.median(times):.2f} s | "
+            f"{max(times):.2f} s | {target} |")
+
+
+def bench(files: list[Path], tmp: Path, label: str, repeats: int) -> list[str]:
+    books = iter(tmp / f"{label}-{i}.sqlite" for i in range(repeats))
+    add = timed(lambda: add_files(next(books), files), repeats)
+    book = tmp / f"{label}-0.sqlite"
+    with Logbook.open(book) as lb:
+        listing = timed(lb.entries, 5)
+        trend = timed(lambda: compute_trend(lb.series("dev_ppm")), 5)
+    size = book.stat().st_size / 1e6
+    avg = sum(p.stat().st_size for p in files) / len(files) / 1e3
+    n = len(files)
+    return [f"{label}: {n} records of {avg:.1f} kB on average; book {size:.1f} MB",
+            "| what | min | median | max | target |", "|---|---|---|---|---|",
+            row(f"add {n} records", add, "< 10 s" if n == 10_000 else "—"),
+            row(f"list {n} records", listing, "< 1 s"),
+            row(f"trend over {n} records", trend, "< 1 s"), ""]
+
+
+def main() -> None:
+    n = int(sys.argv[1]) if len(sys.argv) > 1 else 10_000
+    with tempfile.TemporaryDirectory() as t:
+        tmp = Path(t)
+        season = make_records(tmp / "season")
+        lines = bench(copies(season, tmp / "small", n), tmp, "season records", 3)
+        big = tmp / "run_a.json"
+        subprocess.run([sys.executable, "-m", "budget", "run",
+                        str(ROOT / "worked_examples" / "runs" / "run_a.toml"), "--json",
+                        str(big), "--no-monte-carlo"], check=True, capture_output=True)
+        lines += bench(copies([big], tmp / "big", n // 10), tmp, "10-hour records", 1)
+    print("\n".join(lines))
+
+
+if __name__ == "__main__":
+    main()
