@@ -151,7 +151,7 @@ def _cmd_trend(args) -> int:
             raise UsageError(f"no measurand '{name}'{did_you_mean(name, names)} in the book "
                              f"(measurands: {', '.join(names)})", field="--measurand")
         trend = compute_trend(lb.series(name))
-        book = str(lb.path)
+        book = lb.path.name          # the page names the book, not the folders above it
     print(logbook_trend_text(trend))
     if args.json:
         write_atomic(args.json, json.dumps(trend.to_dict(), indent=2, ensure_ascii=False,
