@@ -9,7 +9,10 @@ Digests
 * ``sha256`` — SHA-256 of the record file's bytes, exactly as added (the evidence archive's
   manifest uses the same digest for its ``record.json``); ``export`` writes those bytes back.
 * ``canonical_sha256`` — SHA-256 of the record's canonical JSON (keys sorted, no whitespace,
-  UTF-8): the same record re-indented is still the same record, so it cannot be added twice.
+  non-ASCII characters as ``\\u`` escapes) without ``run.modules`` (the modules' diagnostics
+  and figure data, which follow from the spec, the input files and the seed — all in the
+  digested part — and are most of a record's bytes): the same record re-indented is still the
+  same record, so it cannot be added twice.
 * ``spec_sha256`` — the record's ``run.spec_sha256``; ``manifest_sha256`` — SHA-256 of the
   canonical JSON of its input manifest (``run.files``: path and digest of every data file).
 
@@ -35,8 +38,8 @@ from pathlib import Path
 from typing import Any
 
 from ..compare import term_key
-from ..errors import DataError
-from ..record import record_data, record_from_dict
+from ..errors import BudgetError, DataError
+from ..record import record_data
 from ..result import Budget
 
 __all__ = ["PreparedRecord", "MeasurandRow", "CalibrationRow", "TermRow", "prepare",
@@ -105,9 +108,10 @@ class PreparedRecord:
 
 
 def canonical_json(data: Any) -> bytes:
-    """Keys sorted, no whitespace, UTF-8: the form whose digest identifies a record."""
-    return json.dumps(data, sort_keys=True, separators=(",", ":"), ensure_ascii=False,
-                      allow_nan=False).encode("utf-8")
+    """Keys sorted, no whitespace, non-ASCII as \\u escapes: the form whose digest identifies
+    a record (ASCII escapes: the standard library's fast path, and one byte form per text)."""
+    return json.dumps(data, sort_keys=True, separators=(",", ":"),
+                      allow_nan=False).encode("ascii")
 
 
 def key_digest(key: tuple | None) -> str | None:
@@ -236,6 +240,17 @@ def _operating_point(data: dict[str, Any], report: dict[str, Any]) -> str:
     return str(report.get("item_condition", ""))
 
 
+def _budget(data: dict[str, Any], file: str) -> Budget:
+    """The Budget of checked record data (what budget.record does after its checks)."""
+    try:
+        return Budget.from_dict(data)
+    except BudgetError as exc:
+        raise DataError(exc.message, file=file, field=exc.field) from None
+    except (KeyError, TypeError, ValueError, IndexError, AttributeError) as exc:
+        raise DataError(f"cannot be read: {type(exc).__name__}: {exc}", file=file,
+                        field="record") from None
+
+
 def prepare(raw: bytes, file: str, *, check_stated: bool = True) -> PreparedRecord:
     """Check a record file's bytes and extract what the book stores.
 
@@ -260,9 +275,9 @@ def prepare(raw: bytes, file: str, *, check_stated: bool = True) -> PreparedReco
             raise DataError(f"tampered record: its content has SHA-256 {sha[:16]}…, "
                             f"{Path(stated[1]).name} states {stated[0][:16]}…", file=file,
                             field="sha256")
-    data = record_data(raw, file=file)
+    data = record_data(raw, file=file)          # checks the record's shape
     _check_internal_digests(data, file)
-    b = record_from_dict(data, file=file)
+    b = _budget(data, file)
     run = data["run"]
     report = run.get("report") if isinstance(run.get("report"), dict) else {}
     chain = str(run.get("chain") or report.get("method") or "")
@@ -277,7 +292,8 @@ def prepare(raw: bytes, file: str, *, check_stated: bool = True) -> PreparedReco
     files = run.get("files", [])
     return PreparedRecord(
         file=file, raw=raw, sha256=sha,
-        canonical_sha256=hashlib.sha256(canonical_json(data)).hexdigest(),
+        canonical_sha256=hashlib.sha256(canonical_json(
+            {**data, "run": {k: v for k, v in run.items() if k != "modules"}})).hexdigest(),
         spec_sha256=str(run.get("spec_sha256", "")),
         manifest_sha256=hashlib.sha256(canonical_json(files)).hexdigest(),
         title=b.title, chain=chain, date_start=start, date_end=end,

@@ -26,7 +26,7 @@ from dataclasses import dataclass
 import numpy as np
 from scipy import stats
 
-__all__ = ["Sums", "MeanStats", "mean_stats", "cov_of_means"]
+__all__ = ["Sums", "MeanStats", "mean_stats", "cov_of_means", "running_means"]
 
 
 @dataclass
@@ -54,6 +54,18 @@ class Sums:
             self.c += b / d
             self.e += x * b / d
             self.m += np.outer(b, b) / d
+
+    @classmethod
+    def of(cls, x: np.ndarray, d: np.ndarray, b: np.ndarray) -> Sums:
+        """The sums over all runs given at once (vectorised :meth:`add`)."""
+        s = cls(b.shape[1])
+        s.n = len(x)
+        s.s1, s.sx, s.sxx = float(np.sum(1 / d)), float(np.sum(x / d)), float(np.sum(x * x / d))
+        if s.k:
+            bd = b / d[:, None]
+            s.c, s.e = bd.sum(axis=0), (bd * x[:, None]).sum(axis=0)
+            s.m = np.eye(s.k) + bd.T @ b
+        return s
 
     def copy(self) -> Sums:
         out = Sums(self.k, self.s1, self.sx, self.sxx, self.n)
@@ -115,3 +127,28 @@ def cov_of_means(a: MeanStats, b: MeanStats) -> float:
     if not a.g:
         return 0.0
     return float(np.dot(a.g, b.g)) / (a.weight * b.weight)
+
+
+def running_means(x: np.ndarray, d: np.ndarray, b: np.ndarray, upto: np.ndarray
+                  ) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """GLS means of the first ``upto[j]`` runs, for every j at once (prefix sums).
+
+    Returns (mean, weight = 1ᵀV⁻¹1, g = M⁻¹c) with g of shape (len(upto), K); ``upto`` ≥ 1.
+    Memory grows as len(x)·K², so K (shared terms) is expected to be tens, not thousands.
+    """
+    idx = np.asarray(upto, dtype=int) - 1
+    s1 = np.cumsum(1 / d)[idx]
+    sx = np.cumsum(x / d)[idx]
+    k = b.shape[1]
+    if k == 0:
+        return sx / s1, s1, np.zeros((len(idx), 0))
+    bd = b / d[:, None]
+    c = np.cumsum(bd, axis=0)[idx]
+    e = np.cumsum(bd * x[:, None], axis=0)[idx]
+    m = np.eye(k) + np.cumsum(bd[:, :, None] * b[:, None, :], axis=0)[idx]
+    sol = np.linalg.solve(m, np.stack([c, e], axis=2))
+    g, h = sol[..., 0], sol[..., 1]
+    w = s1 - np.einsum("ij,ij->i", c, g)
+    mean = (sx - np.einsum("ij,ij->i", c, h)) / w
+    return mean, w, g
+

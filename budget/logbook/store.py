@@ -42,7 +42,7 @@ __all__ = ["Logbook", "Entry", "StoredRecord", "SeriesRow", "Series", "resolve_b
 
 ENV_BOOK = "BUDGET_LOGBOOK"
 DEFAULT_WAIT_S = 10.0      # how long a locked book is waited for before refusing
-_ZLEVEL = 6                # zlib level of the stored record bytes
+_ZLEVEL = 1                # zlib level of the stored bytes: 3× faster than 6, 8 % larger
 _SQLITE_MAGIC = b"SQLite format 3\x00"
 
 

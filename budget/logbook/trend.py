@@ -24,6 +24,7 @@ alone is a prompt to look, a step flag with a named calibration is the finding.
 from __future__ import annotations
 
 import math
+from bisect import bisect_left, bisect_right
 from collections.abc import Sequence
 from dataclasses import dataclass, field
 from typing import Any
@@ -31,7 +32,7 @@ from typing import Any
 import numpy as np
 
 from ..errors import DataError
-from .gls import MeanStats, Sums, cov_of_means, mean_stats
+from .gls import MeanStats, Sums, cov_of_means, mean_stats, running_means
 from .store import Series
 
 __all__ = ["Point", "ChainSummary", "Recalibration", "StepTest", "Flag", "Trend",
@@ -202,10 +203,8 @@ def _recalibrations(series: Series, chain: str, pts: list[Point]) -> list[Recali
 
 
 def _sums(idx: Sequence[int], x: np.ndarray, d: np.ndarray, b: np.ndarray) -> Sums:
-    s = Sums(b.shape[1])
-    for i in idx:
-        s.add(float(x[i]), float(d[i]), b[i])
-    return s
+    i = np.asarray(idx, dtype=int)
+    return Sums.of(x[i], d[i], b[i])
 
 
 def _en(diff: float, var: float) -> tuple[float | None, float]:
@@ -310,6 +309,8 @@ def _step_tests(chain: str, other: str, recals: list[Recalibration],
                 members: dict[str, list[int]], x, d, b) -> list[StepTest]:
     idx = members[chain]
     pos = {pts[i].id: k for k, i in enumerate(idx)}
+    other_starts = [pts[i].date_start for i in members.get(other, [])]   # sorted by date
+    other_cuts = [o.date_to for o in other_recals]
     cuts = [pos[r.before_id] for r in recals]
     out = []
     for j, r in enumerate(recals):
@@ -329,10 +330,13 @@ def _step_tests(chain: str, other: str, recals: list[Recalibration],
         if other:
             # the other chain's runs over the same window, split at the first new run and
             # bounded by the other chain's own recalibrations (its own steps stay out)
-            lo_d = max([first] + [o.date_to for o in other_recals if o.date_to <= r.date_to])
-            hi_d = min([last + "~"] + [o.date_to for o in other_recals if o.date_to > r.date_to])
-            ob = [i for i in members[other] if lo_d <= pts[i].date_start < r.date_to]
-            oa = [i for i in members[other] if r.date_to <= pts[i].date_start < hi_d]
+            k = bisect_right(other_cuts, r.date_to)
+            lo_d = max(first, other_cuts[k - 1]) if k else first
+            hi_d = min(last + "~", other_cuts[k]) if k < len(other_cuts) else last + "~"
+            a = bisect_left(other_starts, lo_d)
+            m = bisect_left(other_starts, r.date_to)
+            z = bisect_left(other_starts, hi_d)
+            ob, oa = members[other][a:m], members[other][m:z]
             if len(ob) >= MIN_STEP and len(oa) >= MIN_STEP:
                 ob_s, oa_s = (mean_stats(_sums(s, x, d, b)) for s in (ob, oa))
                 other_en, _ = _en(oa_s.value - ob_s.value, 1 / oa_s.weight + 1 / ob_s.weight
@@ -348,27 +352,32 @@ def _run_checks(chains, members, pts, x, d, b, recal_by_chain) -> list[dict[str,
         return out
     for c in chains:
         other = next(o for o in chains if o != c)
-        oidx = members[other]
+        oidx = np.asarray(members[other], dtype=int)
+        ends = [pts[i].date_end for i in oidx]
         recals = recal_by_chain[c]
-        s = Sums(b.shape[1])
-        k = 0
-        for i in members[c]:
-            p = pts[i]
-            while k < len(oidx) and pts[oidx[k]].date_end <= p.date_start:
-                s.add(float(x[oidx[k]]), float(d[oidx[k]]), b[oidx[k]])
+        cuts = [r.date_to for r in recals]
+        counts, k = [], 0
+        for i in members[c]:          # runs of the other chain ended before this one began
+            while k < len(ends) and ends[k] <= pts[i].date_start:
                 k += 1
-            recal = None
-            for r in recals:
-                if r.date_to <= p.date_start:
-                    recal = r
-            rec = {"id": p.id, "chain": c, "against": other, "runs_in_mean": s.n,
+            counts.append(k)
+        counts = np.asarray(counts)
+        use = counts >= MIN_RUNNING
+        if use.any():
+            mean, w, g = running_means(x[oidx], d[oidx], b[oidx], counts[use])
+        j = 0
+        for i, n in zip(members[c], counts):
+            p = pts[i]
+            before = bisect_right(cuts, p.date_start)
+            recal = recals[before - 1] if before else None
+            rec = {"id": p.id, "chain": c, "against": other, "runs_in_mean": int(n),
                    "en": None, "difference": None, "expanded_uncertainty": None,
                    "_index": i, "_recal": recal}
-            if s.n >= MIN_RUNNING:
-                m = mean_stats(s)
-                diff = float(x[i]) - m.value
-                en, u = _en(diff, p.standard_uncertainty ** 2 + 1 / m.weight
-                            - 2 * m.cov_with_run(b[i]))
+            if n >= MIN_RUNNING:
+                diff = float(x[i] - mean[j])
+                cov = float(b[i] @ g[j]) / w[j] if b.shape[1] else 0.0
+                en, u = _en(diff, p.standard_uncertainty ** 2 + 1 / w[j] - 2 * cov)
                 rec.update(en=en, difference=diff, expanded_uncertainty=K_EN * u)
+                j += 1
             out.append(rec)
     return out
