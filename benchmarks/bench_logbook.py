@@ -5,8 +5,9 @@ in < 1 s; the book of 10 000 records < 200 MB.
 
 The records are the invented season's records (``worked_examples/season``, evaluated once):
 runs 19–30 (between the two recalibrations) for the first half and 31–48 (after the resistor's)
-for the second, copied with a changed title and measurement date (each distinct, dates spread
-over about 27 years, one recalibration in the middle), kept as files; the add reads, checks and digests every file
+for the second, copied with a changed title, measurement date and on/off-record description
+(each distinct, its Type A term its own, dates spread over about 27 years, one recalibration
+in the middle), kept as files; the add reads, checks and digests every file
 (``budget.logbook.add_files``, what ``budget logbook add`` does) and writes them in one
 transaction. List = ``Logbook.entries()``; trend = ``Logbook.series`` + ``compute_trend``.
 Each timing is repeated (a fresh book for each add) and reported as min / median / max.
@@ -49,6 +50,9 @@ def copies(src: list[Path], out: Path, n: int) -> list[Path]:
         d = half[i % len(half)]
         day = date(2000, 1, 1) + timedelta(days=i)
         d["run"]["title"] = f"copy {i} of the season"
+        for q in d["inputs"]:
+            if q["name"] == "dV":   # each run has its own on/off record: never a shared term
+                q["source"]["description"] = f"on/off record of copy {i}"
         d["run"]["report"]["measurement_date"] = f"{day.isoformat()} 18:00 to 23:00"
         p = out / f"r{i:05d}.json"
         p.write_text(json.dumps(d, indent=2, ensure_ascii=False) + "\n", encoding="utf-8")
