@@ -246,7 +246,8 @@ def evaluate(spec: Spec, *, trials: int | None | str = "spec", seed: int | None 
                                coverage_probability=spec.coverage_probability,
                                significant_digits=spec.significant_digits,
                                max_trials=spec.max_trials,
-                               t_for_finite_dof=spec.t_for_finite_dof)
+                               t_for_finite_dof=spec.t_for_finite_dof,
+                               interval=spec.interval)
         try:
             mres = monte_carlo(model, qs, resolved.corr, settings, progress=progress,
                                intervals={m.name: (m.value - m.expanded_uncertainty,

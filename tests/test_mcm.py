@@ -493,3 +493,37 @@ def test_histogram_counts_cover_the_samples():
     # the handling of the edge values; 60 trials (far above the ±2 of interpolated quantiles)
     # only guards against a wrong cut, e.g. 1 % (1000 trials off) or no cut (100 off).
     assert sum(res.histogram_counts) == pytest.approx(0.999 * 100_000, abs=60)
+
+
+def test_adaptive_stabilises_the_reported_interval():
+    # issue 11 item 10, JCGM 101 §7.9.4: the adaptive procedure must stabilise the interval that
+    # is reported. Y = X, X rectangular on [−1, 1]: the symmetric 95 % interval ends at ±0.95
+    # with an order-statistic standard error √(0.025·0.975/M)/0.5 = 0.003 at M = 10⁴ (derived),
+    # so with ndig = 1 (u = 0.6, δ = 0.05, δ/5 = 0.01; JCGM 101 §7.9.2) two batches settle it.
+    # Every 95 % interval of a rectangular has the same width, so the shortest one is placed by
+    # sampling noise anywhere with its low end in [−1, −0.9] (derived): a batch-to-batch scatter
+    # of about 0.03 needs some 36 batches, more than the 2·10⁵-trial cap allows.
+    import textwrap as _tw
+
+    from budget import evaluate as _evaluate
+    from budget.spec import parse_spec as _parse
+    text = _tw.dedent("""
+        [model]
+        Y = "X"
+        [monte_carlo]
+        trials = "adaptive"
+        seed = 9
+        max_trials = 200000
+        significant_digits = 1
+        interval = "KIND"
+        [inputs.X]
+        distribution = "rectangular"
+        low = -1.0
+        high = 1.0
+    """)
+    sym = _evaluate(_parse(text.replace("KIND", "symmetric"))).mc("Y")
+    assert sym.stabilised and sym.trials < 200000
+    assert sym.interval_high == pytest.approx(0.95, abs=0.01)
+    short = _evaluate(_parse(text.replace("KIND", "shortest")))
+    assert not short.mc("Y").stabilised
+    assert any("before stabilising" in n for n in short.run["notes"])

@@ -13,7 +13,8 @@
 * Work is done in chunks of :data:`CHUNK` trials, so memory grows with trials × outputs only.
 * ``trials=None`` runs the adaptive procedure of JCGM 101 §7.9: batches of
   M = max(⌈100/(1 − p)⌉, 10⁴) trials until twice the standard deviations of the batch means of
-  y, u(y) and both interval ends are all within δ/5, δ being the numerical tolerance of u(y)
+  y, u(y) and both ends of the interval that is reported (``interval``: probabilistically
+  symmetric or shortest, JCGM 101 §7.9.4 c) asks for the one "required") are all within δ/5, δ being the numerical tolerance of u(y)
   (§7.9.2). The factor 1/5 is the one JCGM 101 §8.2 asks for when the Monte Carlo result is
   used to validate the linear result (memory), which this tool always does: with δ itself the
   Monte Carlo noise of the interval ends would be as large as the tolerance it is judged by.
@@ -60,6 +61,9 @@ class McmSettings:
         Upper bound for the adaptive procedure. Default 10⁷.
     t_for_finite_dof : bool
         Draw normal inputs with finite ν from t_ν (JCGM 101 §6.4.9). Default True.
+    interval : {"symmetric", "shortest"}
+        The coverage interval that is reported, and so the one whose ends the adaptive
+        procedure stabilises (JCGM 101 §7.9.4). Default "symmetric".
     """
 
     trials: int | None
@@ -68,6 +72,7 @@ class McmSettings:
     significant_digits: int = 2
     max_trials: int = 10_000_000
     t_for_finite_dof: bool = True
+    interval: str = "symmetric"
 
 
 @dataclass(frozen=True)
@@ -226,7 +231,7 @@ def monte_carlo(model: Model, quantities: Sequence[Quantity], corr: np.ndarray,
             target = max((h + 1) * batch, 2 * batch)
             part = run(batch, h * batch, min(target, settings.max_trials))
             parts.append(part)
-            stats.append({n: _batch_stats(part[n], p) for n in outputs})
+            stats.append({n: _batch_stats(part[n], p, settings.interval) for n in outputs})
             if len(parts) >= 2 and _stable(parts, stats, outputs, settings.significant_digits):
                 stabilised = True
                 break
@@ -281,10 +286,13 @@ def adaptive_batch_size(coverage_probability: float) -> int:
     return max(math.ceil(100 / (1 - coverage_probability)), 10_000)
 
 
-def _batch_stats(y: np.ndarray, p: float) -> tuple[float, float, float, float]:
+def _batch_stats(y: np.ndarray, p: float, interval: str = "symmetric"
+                 ) -> tuple[float, float, float, float]:
+    """Mean, standard deviation and the ends of the reported interval of one batch."""
     ys = np.sort(y)
-    sym, _ = coverage_intervals(ys, p)
-    return float(ys.mean()), float(ys.std(ddof=1)), sym[0], sym[1]
+    sym, short = coverage_intervals(ys, p)
+    lo, hi = short if interval == "shortest" else sym
+    return float(ys.mean()), float(ys.std(ddof=1)), lo, hi
 
 
 def _stable(parts, stats, outputs, ndig: int) -> bool:
