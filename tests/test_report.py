@@ -167,10 +167,14 @@ def module_budget(tmp_path_factory):
 # --------------------------------------------------------------------------- PDF content
 def test_result_line_is_the_published_ea402_result(report):
     text = _flat("\n".join(report[2]))
+    # S3 is not validated by the Monte Carlo method at two significant digits (see
+    # test_certificate_statement), so the report leads with the Monte Carlo interval and shows
+    # the published linear result beside it, marked as not validated
     assert EA_RESULT in text                          # EA-4/02 S3: 10 000.178 Ω, U = 0.017 Ω
-    assert "u_c = 0.0083 Ω" in text                   # EA-4/02 S3: u = 8.3 mΩ
+    assert "u = 0.0083 Ω" in text                     # EA-4/02 S3: u = 8.3 mΩ
     assert "k = 2.00" in text                         # EA-4/02 S3: k = 2
-    assert "coverage probability of approximately 95.45 %" in text   # the spec's p
+    assert "95.45 % coverage interval" in text        # the spec's p
+    assert "not validated" in text
 
 
 def test_every_input_is_in_the_pdf(report, budget):
@@ -292,8 +296,12 @@ def test_certificate_draft_items(certificate):
                  "reference resistor traceable to the quantum Hall resistance (invented)",
                  "End of certificate CC-TEST-1"):
         assert item in text, item
-    assert EA_RESULT in text                                # results with units and U
-    assert "k = 2.00" in text and "approximately 95.45 %" in text
+    # results with units: S3 is not validated at two digits, so the Monte Carlo interval
+    # (JCGM 101) is stated, and the unvalidated y ± U is not
+    assert EA_RESULT not in text and "Monte Carlo method of JCGM 101:2008" in text
+    # the Monte Carlo interval of 20 000 trials: [10000.1617, 10000.1942] Ω for this seed,
+    # against the linear [10000.1613, 10000.1947] Ω (EA-4/02 S3's 10 000.178 ± 0.017)
+    assert "95.45 % coverage interval [10000.161" in text and "10000.194" in text
     assert "working document" in text and "quality procedures" in text
     assert "Authorised by" in text
 

@@ -76,7 +76,7 @@ def _check_report_args(args) -> list[str]:
 def _cmd_report(args) -> int:
     from ..outputs import check_writable, write_atomic
     from ..report import document_info, looks_signed, render_html, render_pdf_layout
-    from ..report.context import result_line
+    from ..report.statement import stated_result
     outs = _check_report_args(args)
     for o in outs:
         check_writable(o)
@@ -98,7 +98,7 @@ def _cmd_report(args) -> int:
         write_atomic(args.html, html)
     kind = "certificate draft" if args.certificate else "report"
     for m in b.measurands:
-        print(result_line(m))
+        print(stated_result(b, m).line)   # the validated result (JCGM 101 §8)
     if args.html:
         print(f"{kind} (HTML) written to {args.html}")
     if rendered is not None:

@@ -15,9 +15,18 @@ from ..errors import DataError
 from ..fmt import fmt_dof, fmt_num, fmt_share, fmt_u
 from ..result import Budget, Measurand
 from . import figures as figs
+from .statement import (
+    coverage_statement,
+    fixed_k_probability,
+    pct,
+    pct_of_k,
+    result_line,
+    stated_result,
+)
 from .text import sci, unit_suffix, value_u
 
-__all__ = ["build_context", "FIELD_LABELS", "CERTIFICATE_ITEMS"]
+__all__ = ["build_context", "FIELD_LABELS", "CERTIFICATE_ITEMS", "result_line",
+           "coverage_statement"]
 
 #: [report] key -> label in the header blocks
 FIELD_LABELS = {
@@ -51,61 +60,6 @@ _MAX_DIAGNOSTICS = 40          # scalar diagnostics shown per module (the record
 
 def _s(x: Any) -> str:
     return "" if x is None else str(x)
-
-
-def result_line(m: Measurand) -> str:
-    """``R_X = (10000.178 ± 0.017) Ω`` — the complete result (JCGM 100 §7.2.4 form)."""
-    y = value_u(m.value, m.expanded_uncertainty)
-    big_u = sci(fmt_u(m.expanded_uncertainty))
-    unit = unit_suffix(m.unit)
-    return f"{m.name} = ({y} ± {big_u}){unit}"
-
-
-def probability_of_k(m: Measurand) -> float:
-    """P(|t_ν_eff| ≤ k) of the record, recomputed for records written before it was stored."""
-    if m.coverage_probability_of_k is not None:
-        return m.coverage_probability_of_k
-    from ..coverage import coverage_probability_of
-    return coverage_probability_of(m.coverage_factor, m.effective_dof)
-
-
-def p_text(m: Measurand, *, fixed_k: bool) -> str:
-    """The coverage probability to print beside k: the spec's p, or with a fixed k the one k
-    gives at ν_eff (e.g. "86.1 %" for k = 2, ν_eff = 3) — never the spec's p for a fixed k."""
-    if fixed_k:
-        return f"{100 * probability_of_k(m):.3g} %"
-    return f"{100 * m.coverage_probability:g} %"
-
-
-def coverage_statement(m: Measurand, *, fixed_k: bool, mc_probability: float | None = None
-                       ) -> str:
-    """The sentence that says what U means (own wording of JCGM 100 §7.2.3 / EA-4/02 §5).
-
-    With a fixed k the sentence states the coverage probability k gives for a t distribution
-    with ν_eff degrees of freedom, P(|t_ν| ≤ k) (JCGM 100 G.3), and the fraction of Monte Carlo
-    trials inside y ± U when given (``mc_probability``), not the spec's nominal p.
-    """
-    unit = unit_suffix(m.unit)
-    k = f"{m.coverage_factor:.2f}"
-    p = f"{100 * m.coverage_probability:g} %"
-    head = (f"The expanded uncertainty U = {sci(fmt_u(m.expanded_uncertainty))}{unit} is the "
-            f"combined standard uncertainty u_c = {sci(fmt_u(m.standard_uncertainty))}{unit} "
-            f"multiplied by the coverage factor k = {k}")
-    if fixed_k:
-        dist = ("the normal distribution" if math.isinf(m.effective_dof) else
-                f"a t-distribution with ν_eff = {fmt_dof(m.effective_dof)} effective degrees of "
-                "freedom (Welch–Satterthwaite)")
-        mc = ("" if mc_probability is None else
-              f"; {100 * mc_probability:.3g} % of the Monte Carlo trials lie within y ± U")
-        return (f"{head}, a value fixed in the budget spec rather than derived from the "
-                f"degrees of freedom; for {dist} it gives a coverage probability of "
-                f"{p_text(m, fixed_k=True)}{mc}.")
-    if math.isinf(m.effective_dof):
-        return (f"{head}; for the normal distribution that the measurand is taken to follow, "
-                f"this gives a coverage probability of approximately {p}.")
-    return (f"{head}; for a t-distribution with ν_eff = {fmt_dof(m.effective_dof)} effective "
-            f"degrees of freedom (Welch–Satterthwaite) this gives a coverage probability of "
-            f"approximately {p}.")
 
 
 def _distribution_text(q) -> str:
@@ -185,6 +139,9 @@ def _measurand_block(b: Budget, m: Measurand, *, draw: bool) -> dict[str, Any]:
     # dev_ppm = 0.33 ± 0.49), so it is shown only below 10 %
     rel = (sci(fmt_u(m.expanded_uncertainty / abs(m.value)))
            if m.value != 0 and m.expanded_uncertainty < 0.1 * abs(m.value) else "")
+    stated = stated_result(b, m)
+    if stated.method != "JCGM 100":
+        rel = ""        # U/|y| is the linear U, not the stated interval's
     share_fig = None
     if draw and m.terms:
         share_fig = figs.svg_data_uri(figs.share_figure([t.name for t in m.terms],
@@ -195,13 +152,12 @@ def _measurand_block(b: Budget, m: Measurand, *, draw: bool) -> dict[str, Any]:
                   f"{sci(fmt_u(math.sqrt(abs(m.second_order_variance))))}{unit} in quadrature")
     return {
         "name": m.name, "unit": m.unit, "unit_sfx": unit, "expression": m.expression,
-        "result_line": result_line(m),
-        "statement": coverage_statement(m, fixed_k=fixed, mc_probability=(
-            b.mc(m.name).linear_interval_probability if b.mc(m.name) is not None else None)),
+        "result_line": stated.line, "statement": stated.statement, "stated": stated,
         "value": value_u(m.value, m.expanded_uncertainty) + unit,
         "U": sci(fmt_u(m.expanded_uncertainty)) + unit,
         "u": sci(fmt_u(m.standard_uncertainty)) + unit,
-        "k": f"{m.coverage_factor:.2f}", "p": p_text(m, fixed_k=fixed),
+        "k": f"{m.coverage_factor:.2f}",
+        "p": pct_of_k(fixed_k_probability(m)) if fixed else pct(m.coverage_probability),
         "dof": fmt_dof(m.effective_dof), "relative_U": rel,
         "terms": _term_rows(m), "share_figure": share_fig, "second_order": second,
         "mc": _mc_block(b, m, draw=draw),
