@@ -117,7 +117,7 @@ def three():
 
 
 def test_weighted_mean_birge_chi2_by_hand(three):
-    c = compare_runs(three, pairwise=True)
+    c = compare_runs(three, pairwise=True, en_basis="2u")
     assert c.measurand == "dev"                # the relative deviation is chosen by default
     m = c.mean
     assert m.value == pytest.approx(XBAR, rel=1e-6)
@@ -136,13 +136,21 @@ def test_weighted_mean_birge_chi2_by_hand(three):
     # p = 0.95 and ν = ∞ give k = 1.96: every record is rescaled to U = 2u, and the output says so
     assert all(r.rescaled for r in c.runs)
     assert [r.expanded_uncertainty for r in c.runs] == pytest.approx([2 * u for _, u in RUNS])
-    assert any("stated k differs from 2" in n for n in c.notes)
+    assert any("stated k differs from 2" in n for n in c.notes) and c.en_basis == "2u"
+    # default: each record's stated U = k·u with k = z_0.975 = 1.959964 (JCGM 100 Table G.2,
+    # ν = ∞ at 95 %; ISO 13528 §9.7, memory): every E_n is the k = 2 one times 2/1.959964
+    s = compare_runs(three, pairwise=True)
+    z = 1.959963984540054      # scipy.stats.norm.ppf(0.975)
+    assert s.en_basis == "stated" and not any(r.rescaled for r in s.runs)
+    assert [e.en for e in s.en] == pytest.approx([v * 2 / z for v in EN_MEAN], rel=1e-6)
+    assert [e.en for e in s.pairwise] == pytest.approx([v * 2 / z for v in EN_PAIRS], rel=1e-6)
+    assert any("stated U = k·u" in n and "§9.7" in n for n in s.notes)
 
 
 def test_the_current_gives_the_same_normalised_errors(three):
     # I = e·f·(1 + x) with e·f = 160.2176634 pA (SI 2019): every value and u scales by e·f,
     # so x̄, u and E_n scale the same way and E_n is unchanged
-    c = compare_runs(three, measurand="I", pairwise=True)
+    c = compare_runs(three, measurand="I", pairwise=True, en_basis="2u")
     ef = E_CHARGE * 1e9
     assert c.unit == "A"
     assert c.mean.value == pytest.approx(ef * (1 + XBAR), rel=1e-12)
@@ -156,7 +164,7 @@ def test_against_a_typed_reference(three):
     # reference 11 ± 1 (×1e-8, k = 2): u_ref = 0.5
     #   run 1: (10 − 11)/(2√(1 + 0.25)) = −1/√5 = −0.4472
     #   run 3: (14 − 11)/(2√(4 + 0.25)) = 3/√17 = 0.7276
-    c = compare_runs(three, reference=ReferenceValue(11 * S, 1 * S))
+    c = compare_runs(three, reference=ReferenceValue(11 * S, 1 * S), en_basis="2u")
     assert c.en[0].en == pytest.approx(-1 / math.sqrt(5), rel=1e-6)
     assert c.en[2].en == pytest.approx(3 / math.sqrt(17), rel=1e-6)
     assert c.reference_kind == "value"
@@ -171,7 +179,7 @@ def test_shared_resistor_digest_is_left_out_of_the_difference():
     r2 = record_from_dict(record(2 * S, 0.4 * S, 0.3 * S, digest=h))
     # run 3: x = 3 ± 0.4 and the same r numbers but from another resistor file: nothing shared
     r3 = record_from_dict(record(3 * S, 0.4 * S, 0.3 * S, digest=digest_of("other")))
-    c = compare_runs([r1, r2, r3], pairwise=True)
+    c = compare_runs([r1, r2, r3], pairwise=True, en_basis="2u")
     (shared,) = c.shared
     assert shared.name == "r" and shared.runs == ("run 1", "run 2")
     assert shared.basis == "file digest" and shared.digests == (h,)
@@ -189,9 +197,10 @@ def test_shared_resistor_digest_is_left_out_of_the_difference():
     # weighted mean of runs 1 and 2 with their covariance V = [[0.25, 0.09], [0.09, 0.25]]:
     # a = (½, ½); aᵀVa = (0.25 + 0.25 + 2·0.09)/4 = 0.17; (Va)_1 = 0.17
     # var(x1 − x̄) = 0.25 − 2·0.17 + 0.17 = 0.08 (= 0.32/4, since x1 − x̄ = (x1 − x2)/2)
-    c2 = compare_runs([r1, r2])
+    c2 = compare_runs([r1, r2], en_basis="2u")
     assert c2.mean.uncertainty_with_shared == pytest.approx(math.sqrt(0.17) * S, rel=1e-6)
-    assert c2.mean.internal_uncertainty == pytest.approx(math.sqrt(0.125) * S, rel=1e-6)
+    # generalised least squares: u²(x̄) = 1/(1ᵀV⁻¹1) = aᵀVa = 0.17 for these symmetric weights
+    assert c2.mean.internal_uncertainty == pytest.approx(math.sqrt(0.17) * S, rel=1e-6)
     assert c2.en[0].standard_uncertainty == pytest.approx(math.sqrt(0.08) * S, rel=1e-6)
     assert c2.en[0].en == pytest.approx(-0.5 / (2 * math.sqrt(0.08)), rel=1e-6)
 
@@ -207,27 +216,36 @@ def test_shared_term_with_different_sensitivities_keeps_the_residual():
     assert any("contributes differently" in n for n in compare_runs([r1, r2]).notes)
 
 
-def test_typed_in_terms_are_shared_only_when_everything_matches():
-    # the same typed-in resistor correction (value, u, distribution, description, source)
+def _declare(d: dict, name: str, label: str) -> dict:
+    for q in d["inputs"]:
+        if q["name"] == name:
+            q["source"]["shared_as"] = label
+    return d
+
+
+def test_typed_in_terms_are_shared_only_when_declared():
+    # issue 11 item 9: the same typed-in numbers are not the same error
     r1 = record_from_dict(record(1 * S, 0.4 * S, 0.3 * S))
     r2 = record_from_dict(record(2 * S, 0.4 * S, 0.3 * S))
-    (s,) = compare_runs([r1, r2]).shared
-    assert (s.name, s.basis) == ("r", "typed in")
-    # another description (another certificate): not the same quantity
-    d = record(2 * S, 0.4 * S, 0.3 * S)
-    for q in d["inputs"]:
-        if q["name"] == "r":
-            q["source"]["description"] = "another resistor"
-    assert compare_runs([r1, record_from_dict(d)]).shared == ()
-    # another uncertainty: not the same quantity
-    assert compare_runs([r1, record_from_dict(record(2 * S, 0.4 * S, 0.31 * S))]).shared == ()
+    c = compare_runs([r1, r2])
+    assert c.shared == ()
+    basis = {t.name: t for t in c.terms}
+    assert not basis["r"].shared and "without shared_as" in basis["r"].basis
+    # declared with the same label: shared, whatever else differs (here the uncertainty)
+    d1 = record_from_dict(_declare(record(1 * S, 0.4 * S, 0.3 * S), "r", "R1G-cert-2026-07"))
+    d2 = record_from_dict(_declare(record(2 * S, 0.4 * S, 0.31 * S), "r", "R1G-cert-2026-07"))
+    (s,) = compare_runs([d1, d2]).shared
+    assert (s.name, s.basis, s.runs) == ("r", "declared", ("run 1", "run 2"))
+    # another label: another cause, not shared
+    d3 = record_from_dict(_declare(record(2 * S, 0.4 * S, 0.3 * S), "r", "R1G-cert-2025-01"))
+    assert compare_runs([d1, d3]).shared == ()
 
 
 def test_reference_record_shares_terms_too():
     h = digest_of("history")
     r1 = record_from_dict(record(1 * S, 0.4 * S, 0.3 * S, digest=h))
     ref = record_from_dict(record(2 * S, 0.4 * S, 0.3 * S, digest=h, title="amplifier chain"))
-    c = compare_runs([r1], reference=ref)
+    c = compare_runs([r1], reference=ref, en_basis="2u")
     assert c.reference_kind == "record" and c.mean is None
     # as in the pair above: E_n = −1/(2·√0.32)
     assert c.en[0].en == pytest.approx(-1 / (2 * math.sqrt(0.32)), rel=1e-6)
@@ -235,7 +253,8 @@ def test_reference_record_shares_terms_too():
 
 
 def test_identical_records_have_no_en():
-    r = record_from_dict(record(1 * S, 0.4 * S, 0.3 * S))
+    d = _declare(_declare(record(1 * S, 0.4 * S, 0.3 * S), "r", "cert"), "x", "same-run")
+    r = record_from_dict(d)
     (e,) = compare_runs([r, r], pairwise=True).pairwise
     assert e.en is None and e.passed is None
 
@@ -260,7 +279,7 @@ def test_html_is_escaped_and_the_pdf_holds_the_result(tmp_path):
     from budget.report.compare_render import compare_html, compare_pdf
     nasty = '<script>alert(1)</script> <img src="file:///etc/passwd">'
     runs = [record_from_dict(record(x, u, title=nasty)) for x, u in RUNS]
-    c = compare_runs(runs, pairwise=True)
+    c = compare_runs(runs, pairwise=True, en_basis="2u")
     html = compare_html(c, files=["a.json", "b.json", "c.json"])
     assert "<script>" not in html and '<img src="file:' not in html
     assert "&lt;script&gt;" in html
@@ -303,7 +322,8 @@ def test_cli_compare(tmp_path, capsys):
     shared = [_write(tmp_path, f"s{i}.json", record(x, 0.4 * S, 0.3 * S, digest=h))
               for i, x in enumerate((1 * S, 2 * S))]
     out_json, out_pdf = tmp_path / "c.json", tmp_path / "c.pdf"
-    assert main(["compare", *files, "--pairwise", "--json", str(out_json)]) == 0
+    assert main(["compare", *files, "--pairwise", "--en-basis", "2u", "--json",
+                 str(out_json)]) == 0
     text = capsys.readouterr().out
     assert "Birge ratio R_B = 1.41" in text                   # √2
     assert "-0.89" in text and "0.45" in text and "0.71" in text
@@ -312,7 +332,8 @@ def test_cli_compare(tmp_path, capsys):
     assert data["weighted_mean"]["chi2"] == pytest.approx(CHI2, rel=1e-6)
     assert main(["compare", *shared, "--pdf", str(out_pdf), "--reference", "1.5e-8", "1e-8"]) == 0
     text = capsys.readouterr().out
-    assert "shared terms" in text and "  r " in text and "file digest" in text
+    assert "terms across runs" in text and "  r " in text and "shared: same data file" in text
+    assert "typed in without shared_as: independent" in text       # x: no declared cause
     assert out_pdf.read_bytes().startswith(b"%PDF")
     # a reference record given first swallows the records after it in argparse: still works
     assert main(["compare", "--reference", shared[1], shared[0]]) == 0

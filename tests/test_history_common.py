@@ -201,7 +201,7 @@ def test_interval_covers_a_hidden_common_offset(tmp_path):
     hits_with = hits_without = 0
     trials = 300
     rng = np.random.default_rng(20261202)
-    for i in range(trials):
+    for _ in range(trials):
         delta = rng.normal(0, 80)
         _write(tmp_path, R0 + delta + rng.normal(0, 60, 10), 200.0)
         r = _rows(run_module(_ctx(tmp_path, at="2024-12-01", drift="constant",

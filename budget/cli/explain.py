@@ -70,16 +70,20 @@ def add_compare(sub) -> None:
     p = sub.add_parser("compare", help="compare runs: weighted mean, Birge ratio, E_n",
                        description="Compare result records of several runs: a table of runs, "
                                    "the weighted mean with internal and external uncertainty, "
-                                   "Birge ratio, χ² and its p-value, and E_n (k = 2) of each "
-                                   "run against a reference or the weighted mean. Terms with "
-                                   "the same source digest in two records are treated as "
-                                   "shared.")
+                                   "Birge ratio, χ² and its p-value (generalised least "
+                                   "squares with the runs' covariance), and E_n of each run "
+                                   "against a reference or the weighted mean. A term is shared "
+                                   "between records only when declared (shared_as) or, for "
+                                   "module rows, systematic and from the same data file.")
     p.add_argument("records", nargs="*", metavar="RECORD.json", help="result records")
     p.add_argument("--reference", nargs="+", metavar="REF",
                    help="VALUE U (U with k = 2, in the measurand's unit) or a RECORD.json")
     p.add_argument("--measurand", metavar="NAME",
                    help="output to compare (default: the one named dev…, else the first)")
     p.add_argument("--pairwise", action="store_true", help="also E_n of every pair of runs")
+    p.add_argument("--en-basis", choices=("stated", "2u"), default="stated",
+                   help="U in E_n: each record's stated U with its own k (default, ISO 13528 "
+                        "§9.7) or U = 2u for every result")
     p.add_argument("--pdf", metavar="OUT.pdf", help="write the comparison as a PDF")
     p.add_argument("--json", metavar="OUT", help="write the comparison as JSON")
     p.set_defaults(func=_cmd_compare)
@@ -114,7 +118,8 @@ def _cmd_compare(args) -> int:
     if not runs:
         raise UsageError("give at least one RECORD.json", field="RECORD")
     c = compare_runs(runs, measurand=args.measurand, reference=reference,
-                     pairwise=args.pairwise, files=records + ([ref_file] if ref_file else []))
+                     pairwise=args.pairwise, files=records + ([ref_file] if ref_file else []),
+                     en_basis=args.en_basis)
     print(compare_text(c, records))
     if args.pdf:
         from ..report.compare_render import compare_pdf

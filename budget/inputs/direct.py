@@ -16,7 +16,10 @@ Keys of a typed-in ``[inputs.NAME]`` table:
 * ``observations = [...]``: mean, u = s/√n, ν = n − 1, Type A (JCGM 100 §4.2); at least two
   readings, not all equal (equal readings carry no scatter to evaluate);
 * optional ``dof``, ``unit``, ``description``, ``reason`` (why this distribution),
-  ``source`` (certificate or document reference), ``evaluation`` ("A" or "B").
+  ``source`` (certificate or document reference), ``evaluation`` ("A" or "B"),
+  ``shared_as`` (a label naming the input's common cause across runs, e.g. a certificate
+  number: ``budget compare`` treats the input as the same error in two records only when their
+  labels match).
 
 A zero standard uncertainty makes the input a constant (it appears in the model, not the budget).
 """
@@ -39,7 +42,7 @@ __all__ = ["KEYS", "evaluate_direct", "observations_of"]
 KEYS = frozenset({"value", "standard_uncertainty", "expanded_uncertainty", "coverage_factor",
                   "coverage_probability",
                   "distribution", "low", "high", "half_width", "mode", "beta", "dof", "unit",
-                  "description", "reason", "source", "evaluation", "observations"})
+                  "description", "reason", "source", "evaluation", "observations", "shared_as"})
 
 _REASONS = {
     "normal": "normal: stated as a standard uncertainty (or U with k), as from a calibration "
@@ -258,6 +261,11 @@ def _distribution(ctx: InputContext, kind: str, dof: float) -> Distribution:
 
 def _quantity(ctx: InputContext, value: float, u: float, dist: Distribution, unit: str,
               dof: float, evaluation: str, description: str, prov: Provenance) -> Quantity:
+    # shared_as: the declared common cause across runs (``budget compare``); without it a
+    # typed-in input is independent between runs, however alike its numbers
+    label = ctx.option("shared_as", str, "", check=lambda v: v.strip() != "",
+                       must="a non-empty label")
+    prov = Provenance(**{**prov.__dict__, "shared_as": label.strip()})
     try:
         return Quantity(name=ctx.name, value=value, standard_uncertainty=u, distribution=dist,
                         unit=unit, dof=dof, evaluation=evaluation, description=description,

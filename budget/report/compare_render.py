@@ -11,7 +11,7 @@ from __future__ import annotations
 import math
 from collections.abc import Sequence
 
-from ..compare import Comparison, NormalisedError
+from ..compare import Comparison, NormalisedError, en_basis_text
 from ..fmt import fmt_num, fmt_u, fmt_value
 from .figures import compare_figure, svg_data_uri
 
@@ -36,11 +36,10 @@ img { width: 100%; }
 </style></head><body>
 <h1>{{ title }}</h1>
 <p>Measurand <b>{{ c.measurand }}</b>{% if unit %} in {{ unit }}{% endif %};
-{{ c.runs|length }} result{{ 's' if c.runs|length != 1 }} compared. E_n uses expanded
-uncertainties with k = 2 (ISO 13528, ISO/IEC 17043); |E_n| ≤ 1 passes.</p>
+{{ c.runs|length }} result{{ 's' if c.runs|length != 1 }} compared. {{ basis_sentence }}.</p>
 <h2>Runs</h2>
 <table><tr><th>run</th><th>title</th><th>date</th><th>record</th><th>value</th>
-<th>U as stated (k)</th><th>U used (k = 2)</th></tr>
+<th>U as stated (k)</th><th>U used {{ used_k }}</th></tr>
 {% for r in runs %}<tr><td class="k">{{ r.label }}</td><td>{{ r.title }}</td><td>{{ r.date }}</td>
 <td>{{ r.file }}</td><td class="n">{{ r.value }}</td><td class="n">{{ r.stated }}</td>
 <td class="n">{{ r.used }}</td></tr>
@@ -54,20 +53,21 @@ uncertainties with k = 2 (ISO 13528, ISO/IEC 17043); |E_n| ≤ 1 passes.</p>
 <h2>Normalised errors {{ against }}</h2>
 {{ en_table(en) }}
 {% if pairwise %}<h2>Pairwise normalised errors</h2>{{ en_table(pairwise) }}{% endif %}
-<h2>Shared terms</h2>
-{% if shared %}<p>Treated as the same quantity (correlation 1) in the results named, and so
-left out of the uncertainty of their differences:</p>
-<table><tr><th>term</th><th>results</th><th>basis</th><th>type</th></tr>
-{% for s in shared %}<tr><td>{{ s.name }}</td><td>{{ s.runs }}</td><td>{{ s.basis }}</td>
-<td>{{ s.evaluation }}</td></tr>{% endfor %}</table>
-{% else %}<p>None: no two records carry a term with the same source digest.</p>{% endif %}
+<h2>Terms across runs</h2>
+<p>A term is the same error in several results only when declared (shared_as) or, for a
+module row, systematic and from the same data file; a drift prediction at two dates carries
+the correlation of its fit. Shared terms cancel from differences as far as they are
+correlated.</p>
+<table><tr><th>term</th><th>results</th><th>basis</th></tr>
+{% for s in terms %}<tr><td>{{ s.name }}</td><td>{{ s.runs }}</td><td>{{ s.basis }}</td>
+</tr>{% endfor %}</table>
 {% if notes %}<h2>Notes</h2><ul>{% for n in notes %}<li class="note">{{ n }}</li>{% endfor %}
 </ul>{% endif %}
 </body></html>
 """
 
 _EN_TABLE = """{% macro en_table(rows) %}<table><tr><th>result</th><th>against</th>
-<th>difference</th><th>U(difference), k = 2</th><th>E_n</th><th>shared terms left out</th></tr>
+<th>difference</th><th>U(difference)</th><th>E_n</th><th>shared terms left out</th></tr>
 {% for e in rows %}<tr><td class="k">{{ e.a }}</td><td class="k">{{ e.b }}</td><td class="n">{{ e.d }}</td>
 <td class="n">{{ e.U }}</td><td class="n{{ ' fail' if e.fail }}">{{ e.en }}</td>
 <td>{{ e.shared }}</td></tr>{% endfor %}</table>{% endmacro %}"""
@@ -109,7 +109,7 @@ def compare_html(c: Comparison, *, files: Sequence[str] = (), software: str = "q
     if c.mean is not None:
         m = c.mean
         mean = [("weighted mean x̄", fmt_value(m.value, m.internal_uncertainty)),
-                ("internal u(x̄) = (Σw)^(−1/2)", fmt_u(m.internal_uncertainty)),
+                ("internal u(x̄) = (1ᵀV⁻¹1)^(−1/2)", fmt_u(m.internal_uncertainty)),
                 ("external u(x̄) = R_B × internal", fmt_u(m.external_uncertainty)),
                 ("Birge ratio R_B", fmt_num(m.birge_ratio, 3)),
                 (f"χ² (ν = {m.dof})", fmt_num(m.chi2, 4)),
@@ -117,10 +117,7 @@ def compare_html(c: Comparison, *, files: Sequence[str] = (), software: str = "q
         if not math.isclose(m.uncertainty_with_shared, m.internal_uncertainty, rel_tol=1e-9):
             mean.append(("u(x̄) with the shared terms' covariance",
                          fmt_u(m.uncertainty_with_shared)))
-    shared = [{"name": s.name, "runs": ", ".join(s.runs),
-               "basis": s.basis + (": " + ", ".join(d[:16] + "…" for d in s.digests)
-                                   if s.digests else ""),
-               "evaluation": s.evaluation} for s in c.shared]
+    terms = [{"name": t.name, "runs": ", ".join(t.runs), "basis": t.basis} for t in c.terms]
     against = ("against the reference" if c.reference is not None
                else "against the weighted mean (each run is part of the mean)")
     env = _env()
@@ -128,7 +125,9 @@ def compare_html(c: Comparison, *, files: Sequence[str] = (), software: str = "q
     tpl = env.from_string(_TEMPLATE)
     return tpl.render(title=f"Comparison of runs — {c.measurand}", c=c, unit=unit, runs=runs,
                       ref=ref, mean=mean, en=_en_rows(c.en), pairwise=_en_rows(c.pairwise),
-                      en_table=macro, against=against, shared=shared, notes=list(c.notes),
+                      en_table=macro, against=against, terms=terms, notes=list(c.notes),
+                      basis_sentence=en_basis_text(c.en_basis),
+                      used_k="(stated)" if c.en_basis == "stated" else "(k = 2)",
                       figure=svg_data_uri(compare_figure(c.figure, [r.label for r in c.runs])),
                       software=software)
 

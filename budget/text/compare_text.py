@@ -2,11 +2,11 @@
 
 from __future__ import annotations
 
-import math
 from collections.abc import Sequence
 from pathlib import Path
 from typing import TYPE_CHECKING
 
+from ..compare import en_basis_text
 from ..fmt import fmt_num, fmt_u, fmt_value
 from .tables import section, table
 from .tables import unit_suffix as _unit
@@ -16,7 +16,7 @@ if TYPE_CHECKING:  # pragma: no cover - annotations only
 
 __all__ = ["compare_text", "en_rows"]
 
-_EN_HEADERS = ["result", "against", "difference", "U(diff)", "E_n", "", "shared terms left out"]
+_EN_HEADERS = ["result", "against", "difference", "U(diff)", "E_n", "", "shared terms"]
 
 
 def en_rows(rows: Sequence[NormalisedError]) -> list[list[str]]:
@@ -59,7 +59,8 @@ def compare_text(c: Comparison, files: Sequence[str]) -> str:
                      fmt_value(r.value, r.expanded_uncertainty),
                      f"{fmt_u(r.stated_expanded_uncertainty)} ({r.stated_coverage_factor:.2f})",
                      fmt_u(r.expanded_uncertainty)])
-    out.append(table(["run", "record", "date", "value", "U stated (k)", "U used (k = 2)"],
+    used = "U used" if c.en_basis == "stated" else "U used (k = 2)"
+    out.append(table(["run", "record", "date", "value", "U stated (k)", used],
                      rows, right={3, 4, 5}))
     out = [ln.rstrip() for block in out for ln in block.split("\n")]
     for r in c.runs:
@@ -74,22 +75,17 @@ def compare_text(c: Comparison, files: Sequence[str]) -> str:
         out += ["", f"weighted mean x̄ = {fmt_value(m.value, m.internal_uncertainty)}{unit}, "
                     f"internal u = {fmt_u(m.internal_uncertainty)}, external u = "
                     f"{fmt_u(m.external_uncertainty)} (= R_B × internal)",
+                "(generalised least squares with the runs' covariance)",
                 f"Birge ratio R_B = {fmt_num(m.birge_ratio, 3)}, χ² = {fmt_num(m.chi2, 4)} "
                 f"with ν = {m.dof}, p = {fmt_num(m.p_value, 3)}"]
-        if not math.isclose(m.uncertainty_with_shared, m.internal_uncertainty, rel_tol=1e-9):
-            out.append(f"u(x̄) with the shared terms' covariance = "
-                       f"{fmt_u(m.uncertainty_with_shared)}{unit}")
     what = "the reference" if c.reference is not None else "the weighted mean (run included in it)"
-    out += ["", f"E_n against {what}, k = 2 (ISO 13528):",
+    out += ["", f"E_n against {what}:", *section("  basis", en_basis_text(c.en_basis)),
             table(_EN_HEADERS, en_rows(c.en), right={2, 3, 4})]
     if c.pairwise:
         out += ["", "pairwise E_n:", table(_EN_HEADERS, en_rows(c.pairwise), right={2, 3, 4})]
-    out += ["", "shared terms (same source digest; correlation 1, left out of differences):"]
-    if not c.shared:
-        out.append("  none")
-    for s in c.shared:
-        basis = s.basis + (" " + ", ".join(d[:16] + "…" for d in s.digests) if s.digests else "")
-        out += section(f"  {s.name}", f"{', '.join(s.runs)} — {basis} (Type {s.evaluation})")
+    out += ["", "terms across runs (shared only when declared, or systematic from the same file):"]
+    for t in c.terms:
+        out += section(f"  {t.name}", f"{', '.join(t.runs)} — {t.basis}")
     for n in c.notes:
         out += section("note", n)
     return "\n".join(ln.rstrip() for block in out for ln in block.split("\n"))
