@@ -6,7 +6,6 @@ from collections.abc import Sequence
 from pathlib import Path
 from typing import TYPE_CHECKING
 
-from ..compare import en_basis_text
 from ..fmt import fmt_num, fmt_u, fmt_value
 from .tables import section, table
 from .tables import unit_suffix as _unit
@@ -49,6 +48,7 @@ def compare_text(c: Comparison, files: Sequence[str]) -> str:
         The text, lines without trailing spaces. Expanded uncertainties are shown as stated
         (with their k) and as used (k = 2).
     """
+    from ..compare import en_basis_text  # deferred: budget.text stays free of numpy at import
     unit = _unit(c.unit)
     head = f"Comparison of runs — {c.measurand}" + (f" ({c.unit})" if unit else "")
     out = [head, "=" * len(head)]
