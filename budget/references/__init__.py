@@ -11,7 +11,7 @@ from __future__ import annotations
 
 import math
 from collections.abc import Callable
-from dataclasses import asdict, dataclass
+from dataclasses import asdict, dataclass, replace
 from pathlib import Path
 
 import numpy as np
@@ -190,6 +190,46 @@ def _sp1065() -> list[Check]:
     return out
 
 
+def _jcgm101_mass() -> list[Check]:
+    """JCGM 101 §9.3 mass calibration: first- and second-order linear results (Table 10)."""
+    src = "JCGM 101:2008 §9.3, Table 10 (memory)"
+    spec = load_spec(spec_path("jcgm101_mass"))
+    out = []
+    for order in (1, 2):
+        b = evaluate(replace(spec, propagation_order=order), monte_carlo_enabled=False)
+        m = b.measurand("dm")
+        u_pub, lo_pub, hi_pub = ((0.0539, 1.1285, 1.3395) if order == 1 else
+                                 (0.0750, 1.0870, 1.3810))
+        label = "first order" if order == 1 else "second order (§5.1.2, moments of each input)"
+        # four decimals published in mg: half a unit of the last one, plus one unit for the
+        # interval ends, which are rounded y ± U
+        out += [Check("JCGM 101 §9.3", src, f"u(δm) / mg, LPU {label}", u_pub,
+                      m.standard_uncertainty, 5e-5),
+                Check("JCGM 101 §9.3", src, f"95 % interval low / mg, LPU {label}", lo_pub,
+                      m.value - m.expanded_uncertainty, 1.5e-4),
+                Check("JCGM 101 §9.3", src, f"95 % interval high / mg, LPU {label}", hi_pub,
+                      m.value + m.expanded_uncertainty, 1.5e-4)]
+    return out
+
+
+def _derived_moments() -> list[Check]:
+    """Exact results the propagation must reproduce (derived by integration or inversion)."""
+    from ..coverage import dof_from_coverage_factor
+    from ..spec import parse_spec
+    src = "derived: Var(X²) = E[X⁴] − E[X²]² = 1/5 − 1/9 for X uniform on [−1, 1]"
+    src_g2 = "JCGM 100:2008 Table G.2 (p = 95.45 %), inverted: ν with t_p(ν) = k"
+    b = evaluate(parse_spec('[budget]\npropagation_order = 2\n[model]\nY = "X * X"\n'
+                            '[monte_carlo]\nenabled = false\n[inputs.X]\n'
+                            'distribution = "rectangular"\nlow = -1.0\nhigh = 1.0\n'))
+    out = [Check("Second order, rectangular", src, "u(X²), X rectangular on [−1, 1]",
+                 math.sqrt(1 / 5 - 1 / 9), b.measurand("Y").standard_uncertainty, 1e-12)]
+    # the published k is rounded to two decimals, which moves ν by up to ±0.2 for ν ≤ 10
+    for nu, k in ((2, 4.53), (3, 3.31), (4, 2.87), (6, 2.52), (10, 2.28)):
+        out.append(Check("GUM Table G.2 inverse", src_g2, f"ν from k = {k:g} at p = 95.45 %",
+                         float(nu), dof_from_coverage_factor(k, 0.9545), 0.2))
+    return out
+
+
 #: case name -> function returning its checks, in the order ``validate`` prints them
 CASES: dict[str, Callable[[], list[Check]]] = {
     "GUM H.2": _gum_h2,
@@ -199,6 +239,8 @@ CASES: dict[str, Callable[[], list[Check]]] = {
     "GUM Table G.2": _table_g2,
     "SI 2019": _si,
     "NIST SP 1065": _sp1065,
+    "JCGM 101 §9.3": _jcgm101_mass,
+    "Derived moments and Table G.2 inverse": _derived_moments,
 }
 
 
