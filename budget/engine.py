@@ -20,6 +20,7 @@ from .propagate.mcm import adaptive_batch_size
 from .quantity import Quantity
 from .result import Budget, Measurand, MonteCarlo, Term
 from .spec import Spec, check_trials
+from .warnings import Warning, unique, warn, with_input
 
 __all__ = ["evaluate", "resolve_inputs", "ResolvedInputs"]
 
@@ -32,10 +33,12 @@ class ResolvedInputs:
     def __init__(self, quantities: list[Quantity], corr: np.ndarray,
                  inlined: dict[str, ex.Node], modules: dict[str, dict[str, Any]],
                  pairs: list[tuple[str, str, float]], notes: list[str],
-                 dof_groups: list[list[str]] | None = None):
+                 dof_groups: list[list[str]] | None = None,
+                 warnings: list[Warning] | None = None):
         self.quantities, self.corr, self.inlined = quantities, corr, inlined
         self.modules, self.pairs, self.notes = modules, pairs, notes
         self.dof_groups = dof_groups or []   # estimation groups for ν_eff
+        self.warnings = list(warnings or [])
 
 
 def resolve_inputs(spec: Spec) -> ResolvedInputs:
@@ -46,6 +49,7 @@ def resolve_inputs(spec: Spec) -> ResolvedInputs:
     module_pairs: list[tuple[str, str, float]] = []
     owner: dict[str, str] = {}
     dof_groups: list[list[str]] = []   # estimation groups for ν_eff (propagate.lpu)
+    found: list[Warning] = []
     for name, table in spec.inputs.items():
         ctx = InputContext(name=name, table=table, folder=spec.folder, spec_file=spec.path,
                            lines=spec.lines.get(("inputs", name), {}))
@@ -65,6 +69,7 @@ def resolve_inputs(spec: Spec) -> ResolvedInputs:
                 inlined[name] = tree
             module_pairs.extend(res.correlations)
             dof_groups.extend(_module_dof_groups(qs, res.correlations))
+            found.extend(with_input(res.warnings, name))
             modules[name] = {"module": table["module"], "expression": res.expression,
                              "quantities": [q.name for q in qs],
                              "diagnostics": res.diagnostics}
@@ -77,6 +82,7 @@ def resolve_inputs(spec: Spec) -> ResolvedInputs:
                                 line=ctx.line, field=f"inputs.{name}")
             owner[q.name] = f"[inputs.{name}]"
             quantities.append(q)
+            found.extend(with_input(q.provenance.warnings, name))
 
     index = {q.name: i for i, q in enumerate(quantities)}
     n = len(quantities)
@@ -137,7 +143,8 @@ def resolve_inputs(spec: Spec) -> ResolvedInputs:
     _check_psd(corr, [q.name for q in quantities], spec)
     # simultaneous observations are one sample: their joint variance has ν = n − 1 exactly
     dof_groups.extend(list(g) for g in spec.from_observations)
-    return ResolvedInputs(quantities, corr, inlined, modules, pairs, [], dof_groups)
+    return ResolvedInputs(quantities, corr, inlined, modules, pairs, [], dof_groups,
+                          unique(found))
 
 
 def _module_dof_groups(qs: list[Quantity], correlations) -> list[list[str]]:
@@ -194,6 +201,7 @@ def evaluate(spec: Spec, *, trials: int | None | str = "spec", seed: int | None 
                         inlined=resolved.inlined, file=spec.path,
                         lines=spec.lines.get(("model",), {}))
     notes = list(resolved.notes)
+    warnings = list(resolved.warnings)
     used = set().union(*(model.uses(o) for o in model.outputs))
     unused = [q.name for q in qs if q.name not in used]
     if unused:
@@ -218,6 +226,8 @@ def evaluate(spec: Spec, *, trials: int | None | str = "spec", seed: int | None 
                          + ("check with propagation_order = 2 or the Monte Carlo result"
                             if spec.propagation_order == 1 else
                             "the second-order terms are included; compare with Monte Carlo"))
+            warnings.append(warn("model.zero_sensitivity", notes[-1],
+                                 severity="warning" if spec.propagation_order == 1 else "note"))
     sd = np.sqrt(np.clip(np.diag(cov), 0, None))
     with np.errstate(divide="ignore", invalid="ignore"):
         cm = np.where(np.outer(sd, sd) > 0, cov / np.outer(sd, sd), 0.0)
@@ -275,6 +285,13 @@ def evaluate(spec: Spec, *, trials: int | None | str = "spec", seed: int | None 
             if not r.stabilised:
                 notes.append(f"{m.name}: the adaptive Monte Carlo procedure stopped at "
                              f"max_trials = {spec.max_trials:,} before stabilising")
+                warnings.append(warn("monte_carlo.not_stabilised", notes[-1]))
+            if not v.validated:
+                warnings.append(warn(
+                    "monte_carlo.not_validated",
+                    f"{m.name}: the Monte Carlo interval does not validate the linear result "
+                    f"(JCGM 101 §8: d_low = {v.d_low:.2g}, d_high = {v.d_high:.2g} > δ = "
+                    f"{v.tolerance:.2g}); quote the Monte Carlo interval or find out why"))
         mcs = tuple(out)
         if any(q.distribution.kind != "normal" for q in qs if not q.is_constant and any(
                 q.name in p[:2] for p in resolved.pairs)):
@@ -311,7 +328,7 @@ def evaluate(spec: Spec, *, trials: int | None | str = "spec", seed: int | None 
     return Budget(title=spec.title, measurands=measurands,
                   correlation_names=model.outputs,
                   correlation_matrix=tuple(tuple(float(x) for x in row) for row in cm),
-                  monte_carlo=mcs, inputs=tuple(qs), run=run)
+                  monte_carlo=mcs, inputs=tuple(qs), run=run, warnings=unique(warnings))
 
 
 def _at_spec(exc: BudgetError, spec: Spec) -> BudgetError:

@@ -17,6 +17,7 @@ from typing import Any
 
 from .distributions import Distribution
 from .errors import BudgetError
+from .warnings import Warning
 
 __all__ = ["FileRef", "Provenance", "Quantity", "ModuleResult"]
 
@@ -61,7 +62,7 @@ class Provenance:
     files : tuple of FileRef
         Data files read (empty for typed-in values).
     notes : tuple of str
-        Cautions and flags (extrapolation, inflated scatter, model extrapolation ...).
+        Free-text remarks that do not change what the number means.
     across_runs : str
         Whether the error is the same in other runs that use the same source: ``"shared"``
         (systematic: a calibration, a certificate, a model), ``"independent"`` (noise during the
@@ -69,6 +70,10 @@ class Provenance:
     shared_as : str
         A declared common cause (``shared_as = "label"`` of a typed-in input): two records share
         the term when their labels match. Default ``""`` (not declared).
+    warnings : tuple of budget.warnings.Warning
+        Findings that can change what the number means (extrapolation, inflated scatter, a
+        default chosen for the user ...). The engine collects them into ``Budget.warnings``
+        (the record's top-level ``warnings``); they are not repeated in ``source``.
     """
 
     origin: str = "spec"
@@ -79,6 +84,7 @@ class Provenance:
     notes: tuple[str, ...] = ()
     across_runs: str = ""
     shared_as: str = ""
+    warnings: tuple[Warning, ...] = ()
 
     def to_dict(self) -> dict[str, Any]:
         return {
@@ -198,9 +204,13 @@ class ModuleResult:
     diagnostics : dict
         JSON-ready findings of the module (fit statistics, verdicts, flags). A key ``figures``
         holds a list of figure descriptions (see :mod:`budget.report.figures`).
+    warnings : tuple of budget.warnings.Warning
+        Findings of the module that can change what its numbers mean; ``input`` may be left
+        empty (the engine fills in NAME). Warnings in the quantities' provenance count too.
     """
 
     quantities: tuple[Quantity, ...]
     expression: str | None = None
     correlations: tuple[tuple[str, str, float], ...] = ()
     diagnostics: dict[str, Any] = field(default_factory=dict)
+    warnings: tuple[Warning, ...] = ()

@@ -15,7 +15,7 @@ Checked, in this order:
   ``expanded_uncertainty``, and a list ``terms``; each term a text ``name``, finite ``value``,
   ``standard_uncertainty``, ``sensitivity``, ``contribution`` and ``variance_share``, and a
   ``dof`` that is positive or null (null stands for infinity);
-* ``monte_carlo`` and ``inputs``, when present, are lists of objects with the fields that
+* ``monte_carlo``, ``inputs`` and ``warnings``, when present, are lists of objects with the fields that
   :meth:`Budget.from_dict` needs;
 * ``run`` is an object, and its ``input_correlations`` a list of ``[name, name, r]`` with
   -1 <= r <= 1;
@@ -32,6 +32,7 @@ from typing import Any
 
 from .errors import BudgetError, DataError
 from .result import SCHEMA, Budget
+from .warnings import SEVERITIES
 
 __all__ = ["load_record", "record_from_text", "record_from_dict", "record_data",
            "finite_number"]
@@ -46,6 +47,7 @@ _MC = {"measurand": str, "trials": int, "value": _NUM, "standard_uncertainty": _
        "interval_low": _NUM, "interval_high": _NUM, "interval_kind": str, "validated": bool,
        "tolerance": _NUM, "d_low": _NUM, "d_high": _NUM}
 _INPUT = {"name": str, "value": _NUM, "standard_uncertainty": _NUM, "distribution": dict}
+_WARNING = {"code": str, "input": str, "severity": str, "message": str}
 _KIND_WORDS = {str: "text", list: "a list", dict: "an object", bool: "true or false"}
 
 
@@ -101,12 +103,16 @@ def _check_record(data: Any, file: str | None) -> None:
             if dof is not None and not (finite_number(dof) and dof > 0):
                 raise DataError(f"must be a positive number or null; got {dof!r}"[:200],
                                 file=file, field=f"{where}.dof")
-    for key, shape in (("monte_carlo", _MC), ("inputs", _INPUT)):
+    for key, shape in (("monte_carlo", _MC), ("inputs", _INPUT), ("warnings", _WARNING)):
         items = data.get(key, [])
         if not isinstance(items, list):
             raise DataError("must be a list", file=file, field=key)
         for i, item in enumerate(items):
             _check(item, shape, f"{key}[{i}]", file)
+    for i, w in enumerate(data.get("warnings", [])):
+        if w["severity"] not in SEVERITIES:
+            raise DataError(f"must be one of {', '.join(SEVERITIES)}; got {w['severity']!r}"[:200],
+                            file=file, field=f"warnings[{i}].severity")
     run = data.get("run")
     if not isinstance(run, dict):
         # Budget.to_dict always writes it (the title lives there); the archive needs it

@@ -2,7 +2,7 @@
 ``compare`` all read.
 
 The JSON record (:meth:`Budget.to_dict`) has the top-level keys ``schema``, ``measurands``,
-``correlation``, ``monte_carlo`` and ``inputs`` (the stable contract) plus ``run`` (spec digest,
+``correlation``, ``monte_carlo``, ``inputs`` and ``warnings`` (the stable contract) plus ``run`` (spec digest,
 seed, settings, module diagnostics). Numbers are plain floats at full precision; an infinite
 number of degrees of freedom is written as ``null``. Nothing time-dependent is stored, so the
 same spec, inputs and seed give a byte-identical record.
@@ -17,6 +17,7 @@ from dataclasses import dataclass, field
 from typing import Any
 
 from .quantity import Quantity
+from .warnings import Warning, warnings_from_list
 
 __all__ = ["SCHEMA", "Term", "Measurand", "MonteCarlo", "Budget", "dof_out", "dof_in"]
 
@@ -187,6 +188,9 @@ class Budget:
     run : dict
         Spec file and digest, seed, settings, report header fields, input correlations,
         each input module's diagnostics, notes.
+    warnings : tuple of budget.warnings.Warning
+        Everything that can change what a number means (see :mod:`budget.warnings`); the
+        record's top-level ``warnings`` list.
     """
 
     title: str
@@ -197,6 +201,7 @@ class Budget:
     inputs: tuple[Quantity, ...]
     run: dict[str, Any] = field(default_factory=dict)
     schema: str = SCHEMA
+    warnings: tuple[Warning, ...] = ()
 
     # ------------------------------------------------------------------ access
     def measurand(self, name: str) -> Measurand:
@@ -227,6 +232,7 @@ class Budget:
                             "matrix": [list(r) for r in self.correlation_matrix]},
             "monte_carlo": [m.to_dict() for m in self.monte_carlo],
             "inputs": [q.to_dict() for q in self.inputs],
+            "warnings": [w.to_dict() for w in self.warnings],
             "run": {"title": self.title, **self.run},
         }
 
@@ -245,7 +251,8 @@ class Budget:
                    correlation_matrix=tuple(tuple(r) for r in corr.get("matrix", ())),
                    monte_carlo=tuple(MonteCarlo.from_dict(m) for m in d.get("monte_carlo", [])),
                    inputs=tuple(Quantity.from_dict(q) for q in d.get("inputs", [])),
-                   run=run, schema=d.get("schema", SCHEMA))
+                   run=run, schema=d.get("schema", SCHEMA),
+                   warnings=warnings_from_list(d.get("warnings")))
 
     def to_frame(self):
         """All budget rows as a pandas DataFrame (one row per measurand and term)."""

@@ -60,7 +60,8 @@ SPEC = textwrap.dedent("""\
 """)
 
 # DESIGN.md, "Contracts other parts rely on"
-DESIGN_TOP = {"schema", "measurands", "correlation", "monte_carlo", "inputs"}
+# DESIGN.md: the first-round keys plus "warnings" ("Contracts added in the second round")
+DESIGN_TOP = {"schema", "measurands", "correlation", "monte_carlo", "inputs", "warnings"}
 DESIGN_MEASURAND = {"name", "unit", "value", "standard_uncertainty", "effective_dof",
                     "coverage_factor", "coverage_probability", "expanded_uncertainty", "terms"}
 DESIGN_TERM = {"name", "value", "standard_uncertainty", "unit", "distribution", "dof",

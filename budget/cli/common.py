@@ -91,6 +91,15 @@ def evaluate_spec(args):
         progress.close()
 
 
+def print_warnings(b) -> None:
+    """The budget's structured warnings on stderr, after the table (nothing when none)."""
+    from ..text import warnings_text
+    text = warnings_text(b.warnings)
+    if text:
+        sys.stdout.flush()  # keep the order table → warnings when both go to one terminal
+        print("\n" + text, file=sys.stderr)
+
+
 def number(text: str) -> float | None:
     try:
         v = float(text)

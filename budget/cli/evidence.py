@@ -6,7 +6,7 @@ import sys
 from pathlib import Path
 
 from ..errors import UsageError
-from .common import EXIT_CHECK_FAILED, EXIT_OK, add_group, read_input
+from .common import EXIT_CHECK_FAILED, EXIT_OK, add_group, print_warnings, read_input
 
 _PASSPHRASE_ENV = "BUDGET_PASSPHRASE"
 
@@ -90,6 +90,9 @@ def add_sign(sub) -> None:
     p.add_argument("--record", metavar="RECORD.json",
                    help="the result record the report shows (budget run --json)")
     p.add_argument("--force", action="store_true", help="replace an existing output file")
+    p.add_argument("--accept-warnings", action="store_true",
+                   help="sign although the record has warnings of severity 'error'; the "
+                        "signature's reason then lists them")
     p.set_defaults(func=_cmd_sign)
 
 
@@ -119,14 +122,28 @@ def _cmd_sign(args) -> int:
     # check the evidence before asking for the passphrase; errors name the file it came from
     record_file = args.record or f"{args.report} (embedded record)"
     from ..report import final_from_draft
-    pdf, final = final_from_draft(pdf, record_from_text(record, file=record_file),
-                                  record_file=record_file)
+    from ..warnings import errors_of
+    budget = record_from_text(record, file=record_file)
+    errors = errors_of(budget.warnings)
+    reason = args.reason
+    if errors and not args.accept_warnings:
+        raise UsageError(f"the record has {len(errors)} unresolved warning"
+                         f"{'' if len(errors) == 1 else 's'} of severity 'error' ("
+                         + "; ".join(w.line() for w in errors)[:300] + "); resolve "
+                         f"{'it' if len(errors) == 1 else 'them'} or sign with "
+                         "--accept-warnings", file=record_file, field="warnings")
+    if errors:
+        # the signed document must say what the signer accepted: the signature's reason is
+        # shown in the visible block and the signature dictionary
+        listed = "; ".join(f"{w.code} ({w.input})" if w.input else w.code for w in errors)
+        reason = (f"{reason} - " if reason else "") + f"accepted warnings: {listed}"
+    pdf, final = final_from_draft(pdf, budget, record_file=record_file)
     note = (" (the final certificate, rendered from the reviewed draft's record without the "
             "DRAFT watermark)") if final else ""
     manifest = input_manifest(record, spec, spec_name=args.spec)
     pw = _passphrase(f"Passphrase for {args.identity}: ")
     try:
-        signed = sign_pdf(pdf, args.identity, pw, reason=args.reason, location=args.location,
+        signed = sign_pdf(pdf, args.identity, pw, reason=reason, location=args.location,
                           record_json=record, spec_text=spec, manifest=manifest)
     except DataError as exc:
         raise exc.located(file=args.report) from None
@@ -134,6 +151,7 @@ def _cmd_sign(args) -> int:
         del pw
     write_atomic(args.output, signed)
     print(f"signed {args.report} -> {args.output}{note}")
+    print_warnings(budget)
     return EXIT_OK
 
 

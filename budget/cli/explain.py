@@ -7,7 +7,7 @@ from pathlib import Path
 
 from .. import __version__
 from ..errors import UsageError
-from .common import EXIT_OK, number
+from .common import EXIT_OK, number, print_warnings
 
 
 def add_explain(sub) -> None:
@@ -62,6 +62,7 @@ def _cmd_explain(args) -> int:
                                    "written as JSON", file=args.json, field="--json") from None
         write_atomic(args.json, text + "\n")
         print(f"\nanswer written to {args.json}")
+    print_warnings(b)  # last: an error while writing stays the only line on stderr
     return EXIT_OK
 
 

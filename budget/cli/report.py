@@ -11,6 +11,7 @@ from .common import (
     add_archive_options,
     check_archive_option,
     evaluate_spec,
+    print_warnings,
     read_input,
     seed_arg,
     trials_arg,
@@ -108,4 +109,5 @@ def _cmd_report(args) -> int:
         print(f"{kind} written to {args.output} ({rendered.pages} page"
               f"{'' if rendered.pages == 1 else 's'}{where})")
     write_archive_option(args, b)
+    print_warnings(b)  # last: an error while writing stays the only line on stderr
     return EXIT_OK

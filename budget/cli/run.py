@@ -11,6 +11,7 @@ from .common import (
     add_archive_options,
     check_archive_option,
     evaluate_spec,
+    print_warnings,
     seed_arg,
     trials_arg,
     write_archive_option,
@@ -55,6 +56,7 @@ def _cmd_run(args) -> int:
         write_atomic(args.json, b.to_json())
         print(f"\nrecord written to {args.json}")
     write_archive_option(args, b)
+    print_warnings(b)  # last: an error while writing stays the only line on stderr
     return EXIT_OK
 
 

@@ -76,6 +76,7 @@ from ..errors import ComputationError, DataError
 from ..quantity import ModuleResult, Provenance, Quantity
 from ..stats import onoff, typea
 from ..stats.allan import edf_white_fm
+from ..warnings import warn
 from .context import InputContext
 from .onoff_table import OnOffTable, mask_ranges, read_onoff
 
@@ -303,24 +304,29 @@ def _quantity(ctx: InputContext, res: typea.TypeA, o: dict[str, Any], records: l
         dof_reason = (f"ν = {res.dof:.4g}: Welch–Satterthwaite from the white part and the "
                       "flicker-noise edf of the Allan variance at the longest averaging used")
     notes = []
+    ws = []
     for r, f in zip(records, files):
         if r.settle_default:
             notes.append(f"{f.path}: settle_s not given; {r.settle:.4g} s used (20 % of "
                          "the median segment length)")
+            ws.append(warn("cycles.default_settle", notes[-1], severity="note"))
     if o["rejection"] != "none":
         notes.append(f"rejection rule '{o['rejection']}' at {o['rejection_limit']:g} robust "
                      f"standard deviations: {len(rejected)} cycle(s) rejected"
                      + (": " + "; ".join(f"{x['file']} rows {x['rows']}" for x in rejected[:20])
                         if rejected else "") + (" ..." if len(rejected) > 20 else ""))
+        if rejected:
+            ws.append(warn("cycles.rejected", notes[-1], severity="note"))
     if not res.verdict.testable:
         notes.append(res.verdict.text)
+        ws.append(warn("cycles.whiteness_untested", notes[-1]))
     if len(records) > 1:
         notes.append(f"{len(records)} records pooled; no cycle spans two files")
     prov = Provenance(
         origin="module:cycles", method=method,
         distribution_reason=("scaled and shifted Student t (JCGM 101 §6.4.9): a mean of many "
                              "cycle differences with a scale estimated from their scatter"),
-        dof_reason=dof_reason, files=tuple(files), notes=tuple(notes))
+        dof_reason=dof_reason, files=tuple(files), notes=tuple(notes), warnings=tuple(ws))
     return Quantity(name=ctx.name, value=res.mean, standard_uncertainty=res.u,
                     distribution=Distribution.student_t(res.mean, res.u, res.dof),
                     unit=o["unit"], dof=res.dof, evaluation="A",

@@ -143,7 +143,7 @@ def _offset_from_file(ctx: InputContext, name: str
                     f"evaluated at {at.isoformat()} (JCGM 100 H.3)"),
             distribution_reason=dist_reason, dof_reason=dof_reason,
             files=(ctx.file_ref(path, row_ranges(rows)),), notes=pred.notes,
-            across_runs="shared"))
+            across_runs="shared", warnings=pred.warnings))
     diag = {"comparison": {"fit": f.to_dict(), "predicted_offset": pred.value,
                            "u": pred.u, "u_independent": pred.u_independent,
                            "u_common": pred.u_common, "at": at.isoformat(),

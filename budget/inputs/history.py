@@ -51,6 +51,7 @@ from ..distributions import Distribution
 from ..errors import BudgetError, DataError
 from ..quantity import Provenance, Quantity
 from ..stats.regression import INFLATE_POLICIES, Fit, fit
+from ..warnings import Warning, warn
 from .context import InputContext
 from .tables import date_column, numeric_column, parse_iso, read_table, row_ranges
 
@@ -113,6 +114,7 @@ class DriftPrediction:
     common_standard_uncertainty: float = 0.0   # u_c as stated
     independent_cov: tuple[tuple[float, ...], ...] = ()   # parameter covariance without the
     #                                                      common part (days relative to at)
+    warnings: tuple[Warning, ...] = ()   # the notes that change what the value means
 
 
 def parse_when(ctx: InputContext, key: str = "at", default=None) -> pd.Timestamp | None:
@@ -258,16 +260,20 @@ def predict_drift(ctx: InputContext, hist: History, values: np.ndarray, at: pd.T
     last = hist.dates.max()
     past = float((at - last) / _DAY)
     notes = []
+    ws = []
     if past > 0:
         notes.append(f"prediction at {at.isoformat()} extrapolates the drift line {past:.1f} "
                      f"days past the last {event} ({last.date().isoformat()})")
+        ws.append(warn("history.extrapolation", notes[-1]))
     if f.inflated:
         notes.append(f"scatter of the {event}s exceeds their stated uncertainties: {f.verdict}")
+        ws.append(warn("history.inflated", notes[-1] + "; the covariance was scaled up"))
     elif f.weighted and f.nu > 0 and f.birge_ratio > 1:
         notes.append(f"Birge ratio {f.birge_ratio:.3g} > 1 but not inflated: {f.verdict}")
     if f.nu == 0:
         notes.append(f"{f.n} {event}(s) for {len(f.params)} parameter(s): the scatter "
                      "cannot be checked against the stated uncertainties")
+        ws.append(warn("history.degenerate_fit", notes[-1]))
     if hist.excluded:
         notes.append(f"rows excluded by the spec (exclude_rows): {row_ranges(hist.excluded)}")
     if share is not None:
@@ -280,7 +286,7 @@ def predict_drift(ctx: InputContext, hist: History, values: np.ndarray, at: pd.T
     return DriftPrediction(fit=f, at=at, value=float(value), u=float(u), dof=f.dof,
                            days_past_last=past, notes=tuple(notes), u_independent=float(u_ind),
                            u_common=float(u_com), common_standard_uncertainty=float(uc),
-                           independent_cov=cov_ind)
+                           independent_cov=cov_ind, warnings=tuple(ws))
 
 
 def _split_common(f: Fit, days: np.ndarray, u: np.ndarray | None, uc: float,
@@ -337,7 +343,7 @@ def drift_quantity(ctx: InputContext, hist: History, pred: DriftPrediction, *, n
                                           method=method, distribution_reason=dist_reason,
                                           dof_reason=dof_reason, files=(ref,),
                                           notes=pred.notes + tuple(extra_notes),
-                                          across_runs="shared"))
+                                          across_runs="shared", warnings=pred.warnings))
 
 
 def common_quantity(ctx: InputContext, hist: History, pred: DriftPrediction, *, scale: float,

@@ -77,6 +77,7 @@ from ..distributions import Distribution
 from ..errors import BudgetError, DataError
 from ..quantity import ModuleResult, Provenance, Quantity
 from ..stats.regression import INFLATE_POLICIES, fit
+from ..warnings import warn
 from .context import InputContext
 from .corrections import assemble, relative_term
 from .history import parse_when
@@ -150,7 +151,9 @@ def _from_table(ctx: InputContext, name: str) -> tuple[Quantity, float, dict]:
                     f"reference ({'weighted' if f.weighted else 'unweighted'}); g = 1/G with "
                     f"G the fitted slope, u(g) = u(G)/G²"),
             distribution_reason=dist_reason, dof_reason=dof_reason,
-            files=(ctx.file_ref(path, row_ranges(range(1, len(df) + 1))),), notes=tuple(notes)))
+            files=(ctx.file_ref(path, row_ranges(range(1, len(df) + 1))),), notes=tuple(notes),
+            warnings=tuple(warn("voltmeter.inflated", n + "; the covariance was scaled up")
+                           for n in notes)))
     resid = np.asarray(f.residuals)
     diag = {"calibration": {"fit": f.to_dict(), "mode": mode, "ratio_G": g_ratio,
                             "u_ratio_G": u_ratio,

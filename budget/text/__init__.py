@@ -12,6 +12,7 @@ explain_text    ``budget explain``: the overview and the fixed-section answer fo
 compare_text    ``budget compare``: runs, weighted mean, Birge ratio, E_n
 logbook_text    ``budget logbook list``, ``show``, ``trend``
 evidence_text   ``budget validate``, ``budget identity create``, ``budget verify``
+warnings_text   the structured warnings every budget-showing command prints on stderr
 """
 
 from __future__ import annotations
@@ -28,8 +29,9 @@ from .evidence_text import (
 from .explain_text import explain_overview_text, explain_term_text
 from .logbook_text import logbook_list_text, logbook_show_text, logbook_trend_text, main_measurand
 from .tables import section, table
+from .warnings_text import warnings_text
 
 __all__ = ["budget_text", "compare_text", "explain_overview_text", "explain_term_text",
            "identity_text", "logbook_list_text", "logbook_show_text", "logbook_trend_text",
            "main_measurand", "recompute_text", "section", "signatures_text", "table",
-           "validate_text", "verdict_text"]
+           "validate_text", "verdict_text", "warnings_text"]

@@ -78,6 +78,8 @@ def budget_text(b: Budget) -> str:
                        f"{fmt_value(mc.interval_high, mc.standard_uncertainty)}]")
             out.append(f"  linear result {verdict} (JCGM 101 §8: d_low = {fmt_num(mc.d_low, 2)}, "
                        f"d_high = {fmt_num(mc.d_high, 2)}, δ = {fmt_num(mc.tolerance, 2)})")
+    shown_as_warning = {w.message for w in b.warnings}  # printed on stderr instead
     for note in b.run.get("notes", []):
-        out.append(f"note: {note}")
+        if note not in shown_as_warning:
+            out.append(f"note: {note}")
     return "\n".join(out)

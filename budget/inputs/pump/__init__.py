@@ -61,6 +61,7 @@ import numpy as np
 
 from ...distributions import Distribution
 from ...quantity import ModuleResult, Provenance, Quantity
+from ...warnings import warn
 from ..context import InputContext
 from .analysis import MODELS, PumpAnalysis, add_thermal_check, analyse_data, analyse_fit_file
 from .figdata import figure_data
@@ -161,6 +162,23 @@ def evaluate(ctx: InputContext) -> ModuleResult:
     return ModuleResult(quantities=quantities, expression=expression, diagnostics=diagnostics)
 
 
+# analysis notes that change what δ means; the rest stay free-text notes
+_NOTE_WARNINGS = (("extrapolated", "pump.extrapolation", "warning"),
+                  ("no operating point given", "pump.default_operating_point", "note"),
+                  ("plateau ", "pump.plateau_replaced", "note"),
+                  ("successive escape times", "pump.degenerate_fit", "warning"))
+
+
+def _warnings_of_notes(notes) -> tuple:
+    out = []
+    for n in notes:
+        for prefix, code, severity in _NOTE_WARNINGS:
+            if n.startswith(prefix):
+                out.append(warn(code, n, severity=severity))
+                break
+    return tuple(out)
+
+
 def quantities_of(analysis: PumpAnalysis, name: str, half_width: float | None,
                   files: tuple = ()) -> tuple[tuple[Quantity, ...], str | None]:
     """The budget quantities for an analysis: δ_pump, and the allowance row when asked.
@@ -202,7 +220,8 @@ def quantities_of(analysis: PumpAnalysis, name: str, half_width: float | None,
             distribution_reason=(f"normal with the mean and standard deviation of the sampled δ "
                                  f"(skewness {p.skewness:.2g}; 95 % of samples in "
                                  f"[{p.low_95:.3g}, {p.high_95:.3g}])"),
-            dof_reason=dof_reason, files=tuple(files), notes=a.notes))
+            dof_reason=dof_reason, files=tuple(files), notes=a.notes,
+            warnings=_warnings_of_notes(a.notes)))
     if half_width is None:
         return (q,), None
     allowance = Quantity(

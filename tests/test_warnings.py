@@ -1,0 +1,137 @@
+"""Structured warnings: the dataclass, their way from a module into the record, the terminal
+(stderr, after the table) and ``budget sign``'s refusal of unresolved errors.
+
+References: the record contract of /work/shared/DESIGN.md ("Contracts added in the second
+round": top-level ``warnings`` with ``code``, ``input``, ``severity``, ``message``). The
+calibration history is synthetic (tests/test_resistor.py's generator): its last calibration
+is on 2025-10-... (12 calibrations 91 days apart from 2023-01-15), so a prediction at
+2026-02-01 is an extrapolation by construction.
+"""
+
+from __future__ import annotations
+
+import json
+
+import pytest
+
+from budget import cli
+from budget.engine import evaluate
+from budget.errors import DataError
+from budget.record import load_record, record_from_text
+from budget.spec import load_spec
+from budget.warnings import Warning, errors_of, unique, warn, with_input
+from tests.test_resistor import write_history
+
+SPEC = """\
+[budget]
+title = "Warnings test (invented numbers)"
+
+[model]
+I = "V / R"
+
+[monte_carlo]
+trials = 2000
+seed = 1
+
+[inputs.V]
+value = 1.0
+standard_uncertainty = 1e-7
+unit = "V"
+
+[inputs.R]
+module = "resistor"
+file = "hist.csv"
+at = "2026-02-01T14:00"
+"""
+
+
+def test_warning_dict_round_trip_and_checks():
+    w = warn("cycles.transient", "a settling transient remains", input="dV")
+    assert Warning.from_dict(w.to_dict()) == w
+    assert w.to_dict() == {"code": "cycles.transient", "input": "dV", "severity": "warning",
+                           "message": "a settling transient remains"}
+    assert w.line() == "warning [cycles.transient] dV: a settling transient remains"
+    with pytest.raises(ValueError):
+        warn("x", "m", severity="fatal")       # only note / warning / error
+    with pytest.raises(ValueError):
+        warn("Not A Code", "m")
+    e = warn("a.b", "m", severity="error")
+    assert errors_of([w, e]) == (e,)
+    assert unique([w, w, e]) == (w, e)
+    assert with_input([warn("a.b", "m")], "R")[0].input == "R"
+
+
+@pytest.fixture()
+def folder(tmp_path):
+    write_history(tmp_path)
+    (tmp_path / "spec.toml").write_text(SPEC, encoding="utf-8")
+    return tmp_path
+
+
+def test_module_warning_reaches_budget_and_record(folder):
+    b = evaluate(load_spec(folder / "spec.toml"))
+    codes = {(w.code, w.input) for w in b.warnings}
+    assert ("history.extrapolation", "R") in codes
+    d = json.loads(b.to_json())
+    assert d["warnings"] and d["warnings"][0]["input"] == "R"
+    assert list(d)[:6] == ["schema", "measurands", "correlation", "monte_carlo", "inputs",
+                           "warnings"]
+    back = record_from_text(b.to_json())
+    assert back.warnings == b.warnings
+
+
+def test_run_prints_warnings_on_stderr_after_table(folder, capsys, tmp_path):
+    out = tmp_path / "rec.json"
+    assert cli.main(["run", str(folder / "spec.toml"), "--json", str(out)]) == 0
+    o, e = capsys.readouterr()
+    assert "history.extrapolation" not in o          # the table stays on stdout, clean
+    assert "warning [history.extrapolation] R:" in e
+    assert "days past the last calibration" in e
+    assert "extrapolates" not in o                    # not repeated as a note in the table
+    assert json.loads(out.read_text())["warnings"][0]["code"] == "history.extrapolation"
+    assert cli.main(["explain", "--record", str(out)]) == 0
+    assert "history.extrapolation" in capsys.readouterr().err
+
+
+def test_record_with_bad_warning_refused(folder, tmp_path):
+    b = evaluate(load_spec(folder / "spec.toml"))
+    d = b.to_dict()
+    d["warnings"][0]["severity"] = "fatal"
+    p = tmp_path / "r.json"
+    p.write_text(json.dumps(d))
+    with pytest.raises(DataError, match="warnings"):
+        load_record(p)
+    del d["warnings"][0]["message"]
+    p.write_text(json.dumps(d))
+    with pytest.raises(DataError, match=r"warnings\[0\]\.message"):
+        load_record(p)
+
+
+def test_sign_refuses_error_warning_unless_accepted(tmp_path, capsys, monkeypatch):
+    from budget import signing
+    from tests.evidence_helpers import PASSPHRASE, make_pdf, write_spec_folder
+    spec = write_spec_folder(tmp_path / "lab")
+    d = evaluate(load_spec(spec)).to_dict()
+    # a record whose evaluation left an error (as settle_policy = "refuse" or a degenerate
+    # fit would); hand-made here so the test does not depend on any one module's rule
+    d["warnings"] = [warn("cycles.transient", "a settling transient remains", input="dV",
+                          severity="error").to_dict()]
+    rec = tmp_path / "record.json"
+    rec.write_text(json.dumps(d), encoding="utf-8")
+    ident = signing.create_identity("Ada Quill", "Head of laboratory", tmp_path / "id",
+                                    PASSPHRASE)
+    (tmp_path / "report.pdf").write_bytes(make_pdf())
+    monkeypatch.setenv("BUDGET_PASSPHRASE", PASSPHRASE)
+    argv = ["sign", str(tmp_path / "report.pdf"), "--identity", str(ident.p12_path), "-o",
+            str(tmp_path / "signed.pdf"), "--spec", str(spec), "--record", str(rec)]
+    assert cli.main(argv) == 2
+    e = capsys.readouterr().err
+    assert e.strip().count("\n") == 0          # one line (DESIGN.md exit-code contract)
+    assert "error [cycles.transient] dV" in e and "--accept-warnings" in e
+    assert not (tmp_path / "signed.pdf").exists()
+    assert cli.main(argv + ["--accept-warnings", "--reason", "approved"]) == 0
+    import pypdf
+    r = pypdf.PdfReader(tmp_path / "signed.pdf")
+    sig = r.get_fields()
+    reasons = [str(f.get("/V", {}).get("/Reason", "")) for f in sig.values()]
+    assert any("accepted warnings: cycles.transient (dV)" in x for x in reasons), reasons
