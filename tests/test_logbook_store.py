@@ -124,6 +124,13 @@ def test_duplicate_refused(book, records, tmp_path):
     _refused(book, [records[3], records[3]], "the same record as")
 
 
+def test_refused_first_add_leaves_no_book(tmp_path, records):
+    p = tmp_path / "new.sqlite"
+    with pytest.raises(DataError, match="the same record as"):
+        add_files(p, [records[0], records[0]])
+    assert not p.exists() and list(tmp_path.iterdir()) == []
+
+
 def test_not_a_record(book, tmp_path, records):
     bad = tmp_path / "spec.toml"
     bad.write_text("[budget]\ntitle = 'x'\n", encoding="utf-8")

@@ -47,10 +47,18 @@ def add_prepared(book: str | Path, records: Sequence[PreparedRecord], *,
     ``create_folder`` makes the book's folder first (for the per-user default location).
     """
     p = Path(book)
-    if create_folder and not p.exists():
+    existed = p.exists()
+    if create_folder and not existed:
         p.parent.mkdir(parents=True, exist_ok=True)
-    with Logbook.open(p, write=True, create=True, wait_s=wait_s) as lb:
-        return lb.add(records, added_utc=_now())
+    try:
+        with Logbook.open(p, write=True, create=True, wait_s=wait_s) as lb:
+            return lb.add(records, added_utc=_now())
+    except BaseException:
+        if not existed:
+            # a new book whose first add was refused: leave nothing behind
+            for leftover in (p, p.with_name(p.name + "-journal")):
+                leftover.unlink(missing_ok=True)
+        raise
 
 
 def add_files(book: str | Path, files: Sequence[str | Path], *,
