@@ -14,6 +14,7 @@ from pathlib import Path
 import numpy as np
 import pandas as pd
 import pytest
+from numeric import near
 
 from budget.errors import DataError, SpecError
 from budget.expression import compile_node, parse
@@ -54,8 +55,8 @@ def test_prediction_matches_polyfit_and_truth(tmp_path):
     r = run_module(ctx(tmp_path, at=AT, inflate="never"))
     (q,) = r.quantities
     assert q.name == "A_TR" and q.unit == "Ω"
-    assert q.value == pytest.approx(p[1], rel=1e-13)
-    assert q.standard_uncertainty == pytest.approx(math.sqrt(cov[1, 1]), rel=1e-8)
+    assert q.value == near(p[1], rel=1e-13)
+    assert q.standard_uncertainty == near(math.sqrt(cov[1, 1]), rel=1e-8)
     # synthetic truth recovered within 3u
     assert abs(q.value - truth(pd.Timestamp(AT))) < 3 * q.standard_uncertainty
 
@@ -72,14 +73,14 @@ def test_all_rows_and_expression(tmp_path):
     assert r.expression == "A_TR_cal * (1 + A_TR_temp) * (1 + A_TR_stab) * (1 + A_TR_offset)"
     stab, off = r.quantities[2], r.quantities[3]
     assert stab.distribution.kind == "rectangular"
-    assert stab.standard_uncertainty == pytest.approx(3e-7 / math.sqrt(3))     # a/√3
+    assert stab.standard_uncertainty == near(3e-7 / math.sqrt(3))     # a/√3
     # δ_os = I_os/I: a ±2e-17 A bound on a 160 pA signal (e·f at 1 GHz, SI Brochure)
-    assert off.standard_uncertainty == pytest.approx(2e-17 / 1.602176634e-10 / math.sqrt(3))
+    assert off.standard_uncertainty == near(2e-17 / 1.602176634e-10 / math.sqrt(3))
     temp = r.quantities[1]
     # JCGM 100 eq. 10: u² = (α u_T)² + (ΔT u_α)², ΔT = −0.5 K
-    assert temp.standard_uncertainty == pytest.approx(math.hypot(5e-7 * 0.2, 0.5 * 1e-7))
+    assert temp.standard_uncertainty == near(math.hypot(5e-7 * 0.2, 0.5 * 1e-7))
     env = {q.name: q.value for q in r.quantities}
-    assert compile_node(parse(r.expression))(env) == pytest.approx(
+    assert compile_node(parse(r.expression))(env) == near(
         env["A_TR_cal"] * (1 + temp.value), rel=1e-15)
     json.dumps(r.diagnostics, allow_nan=False)
     assert r.diagnostics["figures"][0]["id"] == "A_TR-drift"

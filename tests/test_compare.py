@@ -22,6 +22,7 @@ import math
 from pathlib import Path
 
 import pytest
+from numeric import near
 
 from budget.cli import main
 from budget.compare import ReferenceValue, compare_runs
@@ -120,30 +121,30 @@ def test_weighted_mean_birge_chi2_by_hand(three):
     c = compare_runs(three, pairwise=True, en_basis="2u")
     assert c.measurand == "dev"                # the relative deviation is chosen by default
     m = c.mean
-    assert m.value == pytest.approx(XBAR, rel=1e-6)
-    assert m.internal_uncertainty == pytest.approx(U_INT, rel=1e-6)
-    assert m.chi2 == pytest.approx(CHI2, rel=1e-6)
+    assert m.value == near(XBAR, rel=1e-6)
+    assert m.internal_uncertainty == near(U_INT, rel=1e-6)
+    assert m.chi2 == near(CHI2, rel=1e-6)
     assert m.dof == 2
-    assert m.birge_ratio == pytest.approx(RB, rel=1e-6)
-    assert m.external_uncertainty == pytest.approx(RB * U_INT, rel=1e-6)
-    assert m.p_value == pytest.approx(P, rel=1e-6)
-    assert m.uncertainty_with_shared == pytest.approx(U_INT, rel=1e-6)   # nothing shared
-    assert [e.en for e in c.en] == pytest.approx(EN_MEAN, rel=1e-6)
+    assert m.birge_ratio == near(RB, rel=1e-6)
+    assert m.external_uncertainty == near(RB * U_INT, rel=1e-6)
+    assert m.p_value == near(P, rel=1e-6)
+    assert m.uncertainty_with_shared == near(U_INT, rel=1e-6)   # nothing shared
+    assert [e.en for e in c.en] == near(EN_MEAN, rel=1e-6)
     assert [e.b for e in c.en] == ["weighted mean"] * 3
-    assert [e.en for e in c.pairwise] == pytest.approx(EN_PAIRS, rel=1e-6)
+    assert [e.en for e in c.pairwise] == near(EN_PAIRS, rel=1e-6)
     assert [e.passed for e in c.pairwise] == [True, True, True]
     assert c.shared == ()
     # p = 0.95 and ν = ∞ give k = 1.96: every record is rescaled to U = 2u, and the output says so
     assert all(r.rescaled for r in c.runs)
-    assert [r.expanded_uncertainty for r in c.runs] == pytest.approx([2 * u for _, u in RUNS])
+    assert [r.expanded_uncertainty for r in c.runs] == near([2 * u for _, u in RUNS])
     assert any("stated k differs from 2" in n for n in c.notes) and c.en_basis == "2u"
     # default: each record's stated U = k·u with k = z_0.975 = 1.959964 (JCGM 100 Table G.2,
     # ν = ∞ at 95 %; ISO 13528 §9.7, memory): every E_n is the k = 2 one times 2/1.959964
     s = compare_runs(three, pairwise=True)
     z = 1.959963984540054      # scipy.stats.norm.ppf(0.975)
     assert s.en_basis == "stated" and not any(r.rescaled for r in s.runs)
-    assert [e.en for e in s.en] == pytest.approx([v * 2 / z for v in EN_MEAN], rel=1e-6)
-    assert [e.en for e in s.pairwise] == pytest.approx([v * 2 / z for v in EN_PAIRS], rel=1e-6)
+    assert [e.en for e in s.en] == near([v * 2 / z for v in EN_MEAN], rel=1e-6)
+    assert [e.en for e in s.pairwise] == near([v * 2 / z for v in EN_PAIRS], rel=1e-6)
     assert any("stated U = k·u" in n and "§9.7" in n for n in s.notes)
 
 
@@ -153,11 +154,11 @@ def test_the_current_gives_the_same_normalised_errors(three):
     c = compare_runs(three, measurand="I", pairwise=True, en_basis="2u")
     ef = E_CHARGE * 1e9
     assert c.unit == "A"
-    assert c.mean.value == pytest.approx(ef * (1 + XBAR), rel=1e-12)
-    assert c.mean.internal_uncertainty == pytest.approx(ef * U_INT, rel=1e-6)
-    assert c.mean.chi2 == pytest.approx(CHI2, rel=1e-6)
-    assert [e.en for e in c.en] == pytest.approx(EN_MEAN, rel=1e-6)
-    assert [e.en for e in c.pairwise] == pytest.approx(EN_PAIRS, rel=1e-6)
+    assert c.mean.value == near(ef * (1 + XBAR), rel=1e-12)
+    assert c.mean.internal_uncertainty == near(ef * U_INT, rel=1e-6)
+    assert c.mean.chi2 == near(CHI2, rel=1e-6)
+    assert [e.en for e in c.en] == near(EN_MEAN, rel=1e-6)
+    assert [e.en for e in c.pairwise] == near(EN_PAIRS, rel=1e-6)
 
 
 def test_against_a_typed_reference(three):
@@ -165,8 +166,8 @@ def test_against_a_typed_reference(three):
     #   run 1: (10 − 11)/(2√(1 + 0.25)) = −1/√5 = −0.4472
     #   run 3: (14 − 11)/(2√(4 + 0.25)) = 3/√17 = 0.7276
     c = compare_runs(three, reference=ReferenceValue(11 * S, 1 * S), en_basis="2u")
-    assert c.en[0].en == pytest.approx(-1 / math.sqrt(5), rel=1e-6)
-    assert c.en[2].en == pytest.approx(3 / math.sqrt(17), rel=1e-6)
+    assert c.en[0].en == near(-1 / math.sqrt(5), rel=1e-6)
+    assert c.en[2].en == near(3 / math.sqrt(17), rel=1e-6)
     assert c.reference_kind == "value"
 
 
@@ -187,22 +188,22 @@ def test_shared_resistor_digest_is_left_out_of_the_difference():
     # shared: u²(x1 − x2) = 0.5² + 0.5² − 2·(0.3·0.3) = 0.32 = 0.4² + 0.4² (r left out)
     #   E_n = −1/(2·√0.32) = −0.8839
     assert e12.shared == ("r",)
-    assert e12.standard_uncertainty == pytest.approx(math.sqrt(0.32) * S, rel=1e-6)
-    assert e12.en == pytest.approx(-1 / (2 * math.sqrt(0.32)), rel=1e-6)
+    assert e12.standard_uncertainty == near(math.sqrt(0.32) * S, rel=1e-6)
+    assert e12.en == near(-1 / (2 * math.sqrt(0.32)), rel=1e-6)
     # not shared: u²(x1 − x3) = 0.25 + 0.25 = 0.5; E_n = −2/(2√0.5) = −1.414 (fails)
     assert e13.shared == ()
-    assert e13.en == pytest.approx(-2 / (2 * math.sqrt(0.5)), rel=1e-6)
+    assert e13.en == near(-2 / (2 * math.sqrt(0.5)), rel=1e-6)
     assert e13.passed is False
 
     # weighted mean of runs 1 and 2 with their covariance V = [[0.25, 0.09], [0.09, 0.25]]:
     # a = (½, ½); aᵀVa = (0.25 + 0.25 + 2·0.09)/4 = 0.17; (Va)_1 = 0.17
     # var(x1 − x̄) = 0.25 − 2·0.17 + 0.17 = 0.08 (= 0.32/4, since x1 − x̄ = (x1 − x2)/2)
     c2 = compare_runs([r1, r2], en_basis="2u")
-    assert c2.mean.uncertainty_with_shared == pytest.approx(math.sqrt(0.17) * S, rel=1e-6)
+    assert c2.mean.uncertainty_with_shared == near(math.sqrt(0.17) * S, rel=1e-6)
     # generalised least squares: u²(x̄) = 1/(1ᵀV⁻¹1) = aᵀVa = 0.17 for these symmetric weights
-    assert c2.mean.internal_uncertainty == pytest.approx(math.sqrt(0.17) * S, rel=1e-6)
-    assert c2.en[0].standard_uncertainty == pytest.approx(math.sqrt(0.08) * S, rel=1e-6)
-    assert c2.en[0].en == pytest.approx(-0.5 / (2 * math.sqrt(0.08)), rel=1e-6)
+    assert c2.mean.internal_uncertainty == near(math.sqrt(0.17) * S, rel=1e-6)
+    assert c2.en[0].standard_uncertainty == near(math.sqrt(0.08) * S, rel=1e-6)
+    assert c2.en[0].en == near(-0.5 / (2 * math.sqrt(0.08)), rel=1e-6)
 
 
 def test_shared_term_with_different_sensitivities_keeps_the_residual():
@@ -212,7 +213,7 @@ def test_shared_term_with_different_sensitivities_keeps_the_residual():
     r1 = record_from_dict(record(1 * S, 0.4 * S, 0.3 * S, cr=2, digest=h))
     r2 = record_from_dict(record(2 * S, 0.4 * S, 0.3 * S, cr=1, digest=h))
     (e,) = compare_runs([r1, r2], pairwise=True).pairwise
-    assert e.standard_uncertainty == pytest.approx(math.sqrt(0.41) * S, rel=1e-6)
+    assert e.standard_uncertainty == near(math.sqrt(0.41) * S, rel=1e-6)
     assert any("contributes differently" in n for n in compare_runs([r1, r2]).notes)
 
 
@@ -248,7 +249,7 @@ def test_reference_record_shares_terms_too():
     c = compare_runs([r1], reference=ref, en_basis="2u")
     assert c.reference_kind == "record" and c.mean is None
     # as in the pair above: E_n = −1/(2·√0.32)
-    assert c.en[0].en == pytest.approx(-1 / (2 * math.sqrt(0.32)), rel=1e-6)
+    assert c.en[0].en == near(-1 / (2 * math.sqrt(0.32)), rel=1e-6)
     assert c.shared[0].runs == ("run 1", "reference")
 
 
@@ -329,7 +330,7 @@ def test_cli_compare(tmp_path, capsys):
     assert "-0.89" in text and "0.45" in text and "0.71" in text
     assert max(len(ln) for ln in text.splitlines()) <= 100
     data = json.loads(out_json.read_text(encoding="utf-8"))
-    assert data["weighted_mean"]["chi2"] == pytest.approx(CHI2, rel=1e-6)
+    assert data["weighted_mean"]["chi2"] == near(CHI2, rel=1e-6)
     assert main(["compare", *shared, "--pdf", str(out_pdf), "--reference", "1.5e-8", "1e-8"]) == 0
     text = capsys.readouterr().out
     assert "terms across runs" in text and "  r " in text and "shared: same data file" in text

@@ -22,6 +22,7 @@ from pathlib import Path
 import numpy as np
 import pandas as pd
 import pytest
+from numeric import near
 
 from budget.cli import main
 from budget.compare import compare_runs
@@ -50,24 +51,24 @@ def test_issue_case_chi2_p_birge_with_shared_term():
     m = c.mean
     # V = [[0.09 + s, s], [s, 0.09 + s]], s = 0.954² = 0.910116. By symmetry a = (½, ½), x̄ = ½.
     # (rel = 1e-6: the record computes dev = I/(n·e·f) − 1 near 1e-8, which keeps ~8 digits)
-    assert m.value / S == pytest.approx(0.5, rel=1e-6)
+    assert m.value / S == near(0.5, rel=1e-6)
     # r = (−½, ½) is the eigenvector of V with eigenvalue V11 − V12 = 0.09:
     # χ² = rᵀV⁻¹r = (¼ + ¼)/0.09 = 5.5556 (the independent-run formula gave 0.5/1.000116 = 0.50)
-    assert m.chi2 == pytest.approx(0.5 / 0.09, rel=1e-6)
-    assert m.chi2 == pytest.approx(5.56, abs=0.005)
+    assert m.chi2 == near(0.5 / 0.09, rel=1e-6)
+    assert m.chi2 == near(5.56, abs=0.005)
     # p = P(χ²_1 ≥ 5.5556) = erfc(√(5.5556/2)) = 0.0184
-    assert m.p_value == pytest.approx(math.erfc(math.sqrt(m.chi2 / 2)), rel=1e-6)
-    assert m.p_value == pytest.approx(0.018, abs=0.0005)
+    assert m.p_value == near(math.erfc(math.sqrt(m.chi2 / 2)), rel=1e-6)
+    assert m.p_value == near(0.018, abs=0.0005)
     # R_B = √(χ²/1) = 2.357
-    assert m.birge_ratio == pytest.approx(math.sqrt(0.5 / 0.09), rel=1e-6)
-    assert m.birge_ratio == pytest.approx(2.36, abs=0.005)
+    assert m.birge_ratio == near(math.sqrt(0.5 / 0.09), rel=1e-6)
+    assert m.birge_ratio == near(2.36, abs=0.005)
     # u²(x̄) = 1/(1ᵀV⁻¹1): (1, 1) has eigenvalue V11 + V12 = 0.09 + 2s, so 1ᵀV⁻¹1 = 2/(0.09 + 2s)
     u_int = math.sqrt((0.09 + 2 * 0.910116) / 2)
-    assert m.internal_uncertainty / S == pytest.approx(u_int, rel=1e-6)
-    assert m.external_uncertainty / S == pytest.approx(u_int * math.sqrt(0.5 / 0.09), rel=1e-6)
+    assert m.internal_uncertainty / S == near(u_int, rel=1e-6)
+    assert m.external_uncertainty / S == near(u_int * math.sqrt(0.5 / 0.09), rel=1e-6)
     # E_n of the pair in the same output: 1/(2·√(2·0.09)) = 1.18 — now consistent with χ²
     (e,) = c.pairwise
-    assert e.en == pytest.approx(-1 / (2 * math.sqrt(0.18)), rel=1e-6)
+    assert e.en == near(-1 / (2 * math.sqrt(0.18)), rel=1e-6)
 
 
 def test_independent_runs_keep_the_textbook_weighted_mean():
@@ -76,9 +77,9 @@ def test_independent_runs_keep_the_textbook_weighted_mean():
     r1 = record_from_dict(record(1 * S, 1 * S))
     r2 = record_from_dict(record(3 * S, 2 * S))
     m = compare_runs([r1, r2]).mean
-    assert m.value / S == pytest.approx(1.4, rel=1e-6)
-    assert m.chi2 == pytest.approx(0.8, rel=1e-6)
-    assert m.internal_uncertainty / S == pytest.approx(1.25 ** -0.5, rel=1e-6)
+    assert m.value / S == near(1.4, rel=1e-6)
+    assert m.chi2 == near(0.8, rel=1e-6)
+    assert m.internal_uncertainty / S == near(1.25 ** -0.5, rel=1e-6)
 
 
 # ---- item 9: typed-in content is not a declared common cause -----------------------------------
@@ -89,14 +90,14 @@ def test_identical_typed_in_reproducibility_term_is_not_shared():
     r1 = record_from_dict(record(0.0, 0.1 * S, 0.2 * S))
     r2 = record_from_dict(record(0.5 * S, 0.1 * S, 0.2 * S))
     (e,) = compare_runs([r1, r2], pairwise=True, en_basis="2u").pairwise
-    assert e.en == pytest.approx(-0.5 / (2 * math.sqrt(0.1)), rel=1e-6)
+    assert e.en == near(-0.5 / (2 * math.sqrt(0.1)), rel=1e-6)
     assert round(abs(e.en), 2) == 0.79 and e.shared == ()
     # declared as one cause (shared_as), it is left out: 1.77
     d1 = record_from_dict(_declare(record(0.0, 0.1 * S, 0.2 * S), "r", "lab-reproducibility"))
     d2 = record_from_dict(_declare(record(0.5 * S, 0.1 * S, 0.2 * S), "r",
                                    "lab-reproducibility"))
     (e2,) = compare_runs([d1, d2], pairwise=True, en_basis="2u").pairwise
-    assert e2.en == pytest.approx(-0.5 / (2 * math.sqrt(0.02)), rel=1e-6)
+    assert e2.en == near(-0.5 / (2 * math.sqrt(0.02)), rel=1e-6)
     assert round(abs(e2.en), 2) == 1.77 and e2.shared == ("r",)
 
 
@@ -152,14 +153,14 @@ def test_resistor_prediction_at_two_dates_correlated_by_the_fit(tmp_path, uc):
     sigma2 = 100.0 ** 2 - uc ** 2
     stt = float(np.sum((t - t.mean()) ** 2))
     expect = 2 * 30.0 ** 2 + sigma2 * (ta - tb) ** 2 / stt
-    assert e.standard_uncertainty ** 2 == pytest.approx(expect, rel=1e-6)
+    assert e.standard_uncertainty ** 2 == near(expect, rel=1e-6)
     # the correlation used for R_cal (or R): cov/√(var_a var_b) from the same formula
     cal = next(s for s in c.shared if s.name in ("R", "R_cal"))
     (la, lb, r), = cal.correlations
     va = sigma2 * (1 / t.size + (ta - t.mean()) ** 2 / stt)
     vb = sigma2 * (1 / t.size + (tb - t.mean()) ** 2 / stt)
     cov = sigma2 * (1 / t.size + (ta - t.mean()) * (tb - t.mean()) / stt)
-    assert r == pytest.approx(cov / math.sqrt(va * vb), rel=1e-6) and r < 1
+    assert r == near(cov / math.sqrt(va * vb), rel=1e-6) and r < 1
     basis = {tb_.name: tb_.basis for tb_ in c.terms}
     assert "drift-fit covariance" in basis[cal.name] and "independent" in basis["x"]
     if uc:
@@ -180,9 +181,9 @@ def test_en_uses_each_records_stated_expanded_uncertainty():
     r1 = record_from_dict(_with_k(record(1 * S, 0.4 * S), 2.5))
     r2 = record_from_dict(_with_k(record(2 * S, 0.3 * S), 2.0))
     (e,) = compare_runs([r1, r2], pairwise=True).pairwise
-    assert e.en == pytest.approx(-1 / math.sqrt(1.0 + 0.36), rel=1e-6)
+    assert e.en == near(-1 / math.sqrt(1.0 + 0.36), rel=1e-6)
     (e2,) = compare_runs([r1, r2], pairwise=True, en_basis="2u").pairwise
-    assert e2.en == pytest.approx(-1.0, rel=1e-6)
+    assert e2.en == near(-1.0, rel=1e-6)
 
 
 def test_cli_says_which_basis(tmp_path, capsys):

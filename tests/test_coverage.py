@@ -11,6 +11,7 @@ import textwrap
 from pathlib import Path
 
 import pytest
+from numeric import near
 from scipy import stats
 
 from budget import evaluate
@@ -31,7 +32,7 @@ def test_round_trip_with_scipy_t(nu):
         k = stats.t.ppf((1 + p) / 2, nu)
         if k - stats.norm.ppf((1 + p) / 2) <= 0.005:
             continue                     # within the rounding band: ν = ∞ by rule (see below)
-        assert dof_from_coverage_factor(k, p) == pytest.approx(nu, rel=1e-8)
+        assert dof_from_coverage_factor(k, p) == near(nu, rel=1e-8)
 
 
 @pytest.mark.parametrize("nu,k", [(1, 13.97), (2, 4.53), (3, 3.31), (4, 2.87), (5, 2.65),
@@ -39,14 +40,14 @@ def test_round_trip_with_scipy_t(nu):
 def test_table_g2_factors_give_their_dof(nu, k):
     # JCGM 100 Table G.2, p = 95.45 %: the published (rounded) k gives back its ν to ±0.2
     # (rounding k to two decimals moves ν by at most that much for ν ≤ 10, derived)
-    assert dof_from_coverage_factor(k, 0.9545) == pytest.approx(nu, abs=0.2)
+    assert dof_from_coverage_factor(k, 0.9545) == near(nu, abs=0.2)
 
 
 def test_issue_case_k_287_at_95_percent():
     # issue 11 item 2: k = 2.87 stated for 95 % → ν = 3.7; scipy.stats.t.ppf(0.975, 3.6927) = 2.87
     nu = dof_from_coverage_factor(2.87, 0.95)
-    assert nu == pytest.approx(3.69, abs=0.005)
-    assert stats.t.ppf(0.975, nu) == pytest.approx(2.87, rel=1e-9)
+    assert nu == near(3.69, abs=0.005)
+    assert stats.t.ppf(0.975, nu) == near(2.87, rel=1e-9)
 
 
 def test_normal_quantiles_give_infinite_dof_and_small_k_is_refused():
@@ -54,7 +55,7 @@ def test_normal_quantiles_give_infinite_dof_and_small_k_is_refused():
     assert math.isinf(dof_from_coverage_factor(2.0, 0.9545))
     assert math.isinf(dof_from_coverage_factor(1.96, 0.95))
     # k = 2 stated for 95 %: t_0.975(ν) = 2 at ν = 60.4 (scipy.stats.t.ppf(0.975, 60.4) = 2.000)
-    assert stats.t.ppf(0.975, dof_from_coverage_factor(2.0, 0.95)) == pytest.approx(2.0)
+    assert stats.t.ppf(0.975, dof_from_coverage_factor(2.0, 0.95)) == near(2.0)
     with pytest.raises(BudgetError, match="normal quantile"):
         dof_from_coverage_factor(1.65, 0.95)          # 1.65 is a 90 % normal factor
     with pytest.raises(BudgetError, match="below 1"):
@@ -63,10 +64,10 @@ def test_normal_quantiles_give_infinite_dof_and_small_k_is_refused():
 
 def test_coverage_probability_of_a_fixed_k():
     # issue 11 item 7 (EA-4/02 M:2022 §5, memory): P(|t_3| ≤ 2) ≈ 0.86; oracle scipy.stats.t.cdf
-    assert coverage_probability_of(2.0, 3) == pytest.approx(2 * stats.t.cdf(2.0, 3) - 1,
+    assert coverage_probability_of(2.0, 3) == near(2 * stats.t.cdf(2.0, 3) - 1,
                                                             rel=1e-12)
-    assert coverage_probability_of(2.0, 3) == pytest.approx(0.861, abs=5e-4)
-    assert coverage_probability_of(2.0, math.inf) == pytest.approx(0.9545, abs=5e-5)
+    assert coverage_probability_of(2.0, 3) == near(0.861, abs=5e-4)
+    assert coverage_probability_of(2.0, math.inf) == near(0.9545, abs=5e-5)
 
 
 CERT = """
@@ -88,16 +89,16 @@ def test_certificate_u_and_k_keep_their_expanded_uncertainty():
     # issue 11 item 2: Y = X must give back the certificate's own U = 0.287, not 1.96·0.1
     b = evaluate(spec_of(CERT))
     m = b.measurand("Y")
-    assert m.effective_dof == pytest.approx(dof_from_coverage_factor(2.87, 0.95), rel=1e-12)
-    assert m.expanded_uncertainty == pytest.approx(0.287, rel=1e-9)
+    assert m.effective_dof == near(dof_from_coverage_factor(2.87, 0.95), rel=1e-12)
+    assert m.expanded_uncertainty == near(0.287, rel=1e-9)
     prov = b.input("X").provenance
     assert "ν = 3.7 inferred from k = 2.87 at 95 %" in prov.dof_reason
     assert "assumed" in prov.dof_reason                      # p was not stated
     # synthetic truth: the true X is t_ν-distributed about the estimate with scale U/k
     # (JCGM 101 §6.4.9.7); the Monte Carlo interval must be 10 ± 0.287 (scipy.stats.t.ppf)
     mc = b.mc("Y")
-    assert mc.interval_low == pytest.approx(10 - 0.287, abs=0.006)
-    assert mc.interval_high == pytest.approx(10 + 0.287, abs=0.006)
+    assert mc.interval_low == near(10 - 0.287, abs=0.006)
+    assert mc.interval_high == near(10 + 0.287, abs=0.006)
 
 
 def test_stated_probability_and_explicit_dof():
@@ -138,8 +139,8 @@ def test_triangular_value_is_the_mode():
     """))
     q = b.input("T")
     ref = stats.triang(0.2, loc=0.0, scale=10.0)
-    assert q.value == pytest.approx(ref.mean(), rel=1e-12) and q.value == pytest.approx(4.0)
-    assert q.standard_uncertainty == pytest.approx(ref.std(), rel=1e-12)
+    assert q.value == near(ref.mean(), rel=1e-12) and q.value == near(4.0)
+    assert q.standard_uncertainty == near(ref.std(), rel=1e-12)
     assert round(q.standard_uncertainty, 2) == 2.16
     assert any("mode" in n and "(a + b + c)/3" in n for n in q.provenance.notes)
 
@@ -153,8 +154,8 @@ def test_voltmeter_certificate_k_implies_dof(tmp_path):
     (q,) = _volt(tmp_path, gain_expanded_uncertainty=2.87e-7,
                  gain_coverage_factor=2.87).quantities
     # ν from k = 2.87 at 95 % (scipy.stats.t.ppf(0.975, 3.69) = 2.87); sampled as t_ν (§6.4.9.7)
-    assert q.dof == pytest.approx(3.69, abs=0.005) and q.distribution.kind == "student-t"
-    assert q.standard_uncertainty == pytest.approx(1e-7, rel=1e-12)
+    assert q.dof == near(3.69, abs=0.005) and q.distribution.kind == "student-t"
+    assert q.standard_uncertainty == near(1e-7, rel=1e-12)
     assert "inferred from k = 2.87 at 95 %" in q.provenance.dof_reason
     (q,) = _volt(tmp_path, gain_expanded_uncertainty=2e-7, gain_coverage_factor=2,
                  gain_coverage_probability=0.9545).quantities
@@ -194,10 +195,10 @@ def test_fixed_k_states_the_probability_it_gives():
     b = evaluate(spec_of(FIXED_K))
     m = b.measurand("Y")
     assert m.effective_dof == 3 and m.coverage_factor == 2.0
-    assert m.coverage_probability_of_k == pytest.approx(2 * stats.t.cdf(2.0, 3) - 1, rel=1e-12)
+    assert m.coverage_probability_of_k == near(2 * stats.t.cdf(2.0, 3) - 1, rel=1e-12)
     # synthetic truth: the Monte Carlo draws A from t_3 (JCGM 101 §6.4.9), so the fraction of
     # trials inside y ± 2u is P(|t_3| ≤ 2) up to its binomial noise (±0.0017 at 4·10⁵ trials)
-    assert b.mc("Y").linear_interval_probability == pytest.approx(0.8607, abs=0.003)
+    assert b.mc("Y").linear_interval_probability == near(0.8607, abs=0.003)
     text = budget_text(b)
     assert "coverage probability 86.1 % at ν_eff = 3" in text and "about 95" not in text
     sentence = coverage_statement(m, fixed_k=True,
@@ -206,4 +207,4 @@ def test_fixed_k_states_the_probability_it_gives():
     # a derived k keeps the nominal wording: t_0.975(3)·u covers 95 % by construction
     free = evaluate(spec_of(FIXED_K.replace("coverage_factor = 2", "")),
                     monte_carlo_enabled=False).measurand("Y")
-    assert free.coverage_probability_of_k == pytest.approx(0.95, rel=1e-12)
+    assert free.coverage_probability_of_k == near(0.95, rel=1e-12)

@@ -17,6 +17,7 @@ from pathlib import Path
 
 import numpy as np
 import pytest
+from numeric import near
 from scipy import signal, stats
 
 from budget.errors import DataError, SpecError
@@ -107,15 +108,15 @@ def test_white_model_closed_form_and_the_13_percent():
     res, model, diff = pipeline(t, y, on)
     assert diff.n == n
     ng = (2 * n - 0.5) * (n - 1) / (n * (1.5 * n - 2 + 1 / (2 * n)))
-    assert res.u_white / res.u_naive == pytest.approx(math.sqrt(ng), rel=1e-12)
-    assert model.rho[1] == pytest.approx(1 / 6, rel=1e-12)          # ρ₁ = (1/4)/(3/2)
+    assert res.u_white / res.u_naive == near(math.sqrt(ng), rel=1e-12)
+    assert model.rho[1] == near(1 / 6, rel=1e-12)          # ρ₁ = (1/4)/(3/2)
     assert model.rho[2] == 0.0
     # large n: √(4/3) = 1.1547, i.e. s/√n is 1 − √(3/4) = 13.4 % too small (DOMAIN.md: ≈ 13 %)
     big = 10 ** 6
     ng_big = (2 * big - 0.5) * (big - 1) / (big * (1.5 * big - 2 + 1 / (2 * big)))
-    assert 1 - 1 / math.sqrt(ng_big) == pytest.approx(0.134, abs=5e-4)
+    assert 1 - 1 / math.sqrt(ng_big) == near(0.134, abs=5e-4)
     # Satterthwaite ν → n·(1.5)²/(1.5² + 2/16) = 18n/19 (derivation: tr C², band 1/4)
-    assert model.dof == pytest.approx(18 * n / 19, rel=0.02)
+    assert model.dof == near(18 * n / 19, rel=0.02)
 
 
 def test_domain_planning_formula_is_the_white_model():
@@ -127,7 +128,7 @@ def test_domain_planning_formula_is_the_white_model():
     _, model, _ = pipeline(t, y, on)
     k = SEG / DT - SETTLE / DT                      # kept readings per segment
     delta_t = 2 * n * k * DT
-    assert model.var_mean == pytest.approx(2 / delta_t * (1 - 1 / (4 * n)), rel=1e-12)
+    assert model.var_mean == near(2 / delta_t * (1 - 1 / (4 * n)), rel=1e-12)
 
 
 # ------------------------------------------------------------------------ white ensembles
@@ -178,7 +179,7 @@ def test_noise_density_recovers_the_white_level(white_ensemble):
     # density, derivation in onoff.py). Mean of 200 S² estimates, each χ²_ν/ν (ν ≈ 190):
     # relative sd ≈ √(2/(190·200)) = 0.7 %; 4 sd.
     s2 = np.mean([r.noise_density ** 2 for r in white_ensemble])
-    assert s2 == pytest.approx(WHITE ** 2 * 2 * DT, rel=4 * 0.0073)
+    assert s2 == near(WHITE ** 2 * 2 * DT, rel=4 * 0.0073)
 
 
 def test_cubic_estimator_is_calibrated_too():
@@ -251,15 +252,15 @@ def test_module_matches_pipeline_and_reports(tmp_path):
     (q,) = result.quantities
     ref, _, _ = pipeline(t, y, on)
     assert q.name == "dV" and q.unit == "V" and q.evaluation == "A"
-    assert q.value == pytest.approx(ref.mean, rel=1e-9)          # CSV keeps 12 digits
-    assert q.standard_uncertainty == pytest.approx(ref.u, rel=1e-6)
-    assert q.dof == pytest.approx(ref.dof, rel=1e-9)
+    assert q.value == near(ref.mean, rel=1e-9)          # CSV keeps 12 digits
+    assert q.standard_uncertainty == near(ref.u, rel=1e-6)
+    assert q.dof == near(ref.dof, rel=1e-9)
     # estimate within its expanded uncertainty (99 % two-sided t interval)
     assert abs(q.value - STEP) <= stats.t.ppf(0.995, q.dof) * q.standard_uncertainty
     d = result.diagnostics
     json.dumps(d, allow_nan=False)                               # plain JSON
     assert d["cycles_used"] == 100 and d["cycles_rejected"] == 0
-    assert d["records"][0]["settle_s"] == pytest.approx(SETTLE)
+    assert d["records"][0]["settle_s"] == near(SETTLE)
     assert d["records"][0]["settle_default"] is True
     assert d["noise_density_unit"] == "V/√Hz"
     assert d["white_noise"]["test"] and "p_value" in d["white_noise"]
@@ -285,8 +286,8 @@ def test_planning_time_reaches_the_target(tmp_path):
     assert res.method == "white"
     target = res.u / STEP / 2.0                       # half the present uncertainty
     plan = typea.planning(res, model, target, cycle_s=2 * SEG, used_s=t[-1])
-    assert plan["cycles_needed"] == pytest.approx(100 * (res.u / (target * res.mean)) ** 2)
-    assert plan["time_needed_s"] == pytest.approx(plan["cycles_needed"] * 2 * SEG)
+    assert plan["cycles_needed"] == near(100 * (res.u / (target * res.mean)) ** 2)
+    assert plan["time_needed_s"] == near(plan["cycles_needed"] * 2 * SEG)
     n_new = int(round(plan["cycles_needed"]))
     t2, y2, on2 = synth(rng, n_new)
     res2, _, _ = pipeline(t2, y2, on2)
@@ -320,7 +321,7 @@ def test_settle_removes_the_transient(tmp_path):
     biased = cycles.evaluate(ctx_for(tmp_path, file="r.csv", settle_s=0)).quantities[0]
     assert biased.value - STEP < -5 * biased.standard_uncertainty
     a = math.exp(-0.5)
-    assert biased.value - STEP == pytest.approx(-2 * STEP * a / (1 - a) / 60, rel=0.05)
+    assert biased.value - STEP == near(-2 * STEP * a / (1 - a) / 60, rel=0.05)
     good = cycles.evaluate(ctx_for(tmp_path, file="r.csv", settle_s=30)).quantities[0]
     assert abs(good.value - STEP) < 3.3 * good.standard_uncertainty
 
@@ -336,7 +337,7 @@ def test_pooled_files_and_window(tmp_path):
     (q,) = r.quantities
     pooled = np.concatenate([p.d for p in parts])
     assert r.diagnostics["cycles_used"] == 80
-    assert q.value == pytest.approx(pooled.mean(), rel=1e-9)
+    assert q.value == near(pooled.mean(), rel=1e-9)
     assert [f.path for f in q.provenance.files] == ["a.csv", "b.csv"]
     # window: only readings from 400 s on; segment starting at 400 s is the first one
     w = cycles.evaluate(ctx_for(tmp_path, file="a.csv", start_s=400.0, stop_s=1200.0))
@@ -411,7 +412,7 @@ def _rows(k, value):
 def test_good_fixture_is_accepted(tmp_path):
     (tmp_path / "ok.csv").write_text(HEADER + GOOD_ROWS)
     q = cycles.evaluate(ctx_for(tmp_path, file="ok.csv", settle_s=0)).quantities[0]
-    assert q.value == pytest.approx(1e-3, rel=1e-2)
+    assert q.value == near(1e-3, rel=1e-2)
 
 
 @pytest.mark.parametrize("content, row, field, words", [

@@ -23,6 +23,7 @@ import numpy as np
 import pytest
 from hypothesis import given, settings
 from hypothesis import strategies as st
+from numeric import near
 from scipy import stats
 
 from budget.distributions import KINDS, Distribution
@@ -40,19 +41,19 @@ def test_rectangular_std():
     a, b = 2.0, 5.0
     d = Distribution.rectangular(a, b)
     # JCGM 101 Table 1 / §6.4.2 (memory): V = (b − a)²/12; JCGM 100 §4.3.7: u² = a_h²/3
-    assert d.std == pytest.approx((b - a) / math.sqrt(12), rel=1e-15)
-    assert d.std == pytest.approx(((b - a) / 2) / math.sqrt(3), rel=1e-15)
-    assert d.std == pytest.approx(stats.uniform(loc=a, scale=b - a).std(), rel=1e-14)  # scipy
-    assert d.mean == pytest.approx((a + b) / 2)
+    assert d.std == near((b - a) / math.sqrt(12), rel=1e-15)
+    assert d.std == near(((b - a) / 2) / math.sqrt(3), rel=1e-15)
+    assert d.std == near(stats.uniform(loc=a, scale=b - a).std(), rel=1e-14)  # scipy
+    assert d.mean == near((a + b) / 2)
 
 
 def test_symmetric_triangular_std():
     a, b = -1.0, 3.0
     d = Distribution.triangular(a, b)
     # JCGM 101 §6.4.5 (memory): V = (b − a)²/24; JCGM 100 §4.3.9: u² = a_h²/6
-    assert d.std == pytest.approx((b - a) / math.sqrt(24), rel=1e-15)
-    assert d.std == pytest.approx(((b - a) / 2) / math.sqrt(6), rel=1e-15)
-    assert d.std == pytest.approx(stats.triang(0.5, loc=a, scale=b - a).std(), rel=1e-14)
+    assert d.std == near((b - a) / math.sqrt(24), rel=1e-15)
+    assert d.std == near(((b - a) / 2) / math.sqrt(6), rel=1e-15)
+    assert d.std == near(stats.triang(0.5, loc=a, scale=b - a).std(), rel=1e-14)
 
 
 def test_asymmetric_triangular_std_and_mean():
@@ -61,17 +62,17 @@ def test_asymmetric_triangular_std_and_mean():
     # textbook result for the triangular distribution (memory):
     # V = (a² + b² + c² − ab − ac − bc)/18, E = (a + b + c)/3; scipy.stats.triang as oracle
     ref = stats.triang((c - a) / (b - a), loc=a, scale=b - a)
-    assert d.std == pytest.approx(math.sqrt((a * a + b * b + c * c - a * b - a * c - b * c) / 18))
-    assert d.std == pytest.approx(ref.std(), rel=1e-14)
-    assert d.mean == pytest.approx(ref.mean(), rel=1e-14)
+    assert d.std == near(math.sqrt((a * a + b * b + c * c - a * b - a * c - b * c) / 18))
+    assert d.std == near(ref.std(), rel=1e-14)
+    assert d.mean == near(ref.mean(), rel=1e-14)
 
 
 def test_arcsine_std():
     a, b = -2.0, 2.0
     d = Distribution.arcsine(a, b)
     # JCGM 101 §6.4.6 (memory): V = (b − a)²/8 (U-shaped, e.g. a sinusoidal quantity)
-    assert d.std == pytest.approx((b - a) / math.sqrt(8), rel=1e-15)
-    assert d.std == pytest.approx(stats.arcsine(loc=a, scale=b - a).std(), rel=1e-14)
+    assert d.std == near((b - a) / math.sqrt(8), rel=1e-15)
+    assert d.std == near(stats.arcsine(loc=a, scale=b - a).std(), rel=1e-14)
 
 
 @pytest.mark.parametrize("beta", [0.0, 0.3, 0.5, 1.0])
@@ -79,15 +80,15 @@ def test_trapezoidal_std(beta):
     a, b = 1.0, 3.0
     d = Distribution.trapezoidal(a, b, beta)
     # JCGM 101 §6.4.4 (memory): V = (b − a)²(1 + β²)/24; JCGM 100 §4.3.9 eq. (9b): a_h²(1 + β²)/6
-    assert d.std == pytest.approx((b - a) * math.sqrt((1 + beta ** 2) / 24), rel=1e-15)
-    assert d.std == pytest.approx(((b - a) / 2) * math.sqrt((1 + beta ** 2) / 6), rel=1e-15)
+    assert d.std == near((b - a) * math.sqrt((1 + beta ** 2) / 24), rel=1e-15)
+    assert d.std == near(((b - a) / 2) * math.sqrt((1 + beta ** 2) / 6), rel=1e-15)
     ref = stats.trapezoid((1 - beta) / 2, (1 + beta) / 2, loc=a, scale=b - a)
-    assert d.std == pytest.approx(ref.std(), rel=1e-12)
+    assert d.std == near(ref.std(), rel=1e-12)
     # limits: β = 0 is the triangular, β = 1 the rectangular (JCGM 100 §4.3.9)
     if beta == 0.0:
-        assert d.std == pytest.approx(Distribution.triangular(a, b).std, rel=1e-15)
+        assert d.std == near(Distribution.triangular(a, b).std, rel=1e-15)
     if beta == 1.0:
-        assert d.std == pytest.approx(Distribution.rectangular(a, b).std, rel=1e-15)
+        assert d.std == near(Distribution.rectangular(a, b).std, rel=1e-15)
 
 
 @pytest.mark.parametrize("dof", [3.0, 4.0, 10.0, 30.0])
@@ -95,8 +96,8 @@ def test_student_t_std(dof):
     s = 0.2
     d = Distribution.student_t(1.0, s, dof)
     # JCGM 101 §6.4.9 (memory): scaled and shifted t_ν with scale s has V = ν s²/(ν − 2), ν > 2
-    assert d.std == pytest.approx(s * math.sqrt(dof / (dof - 2)), rel=1e-15)
-    assert d.std == pytest.approx(stats.t(dof, loc=1.0, scale=s).std(), rel=1e-13)
+    assert d.std == near(s * math.sqrt(dof / (dof - 2)), rel=1e-15)
+    assert d.std == near(stats.t(dof, loc=1.0, scale=s).std(), rel=1e-13)
 
 
 def test_student_t_without_finite_variance():

@@ -12,7 +12,7 @@ import math
 import textwrap
 
 import numpy as np
-import pytest
+from numeric import near
 from scipy import stats
 
 from budget import evaluate, load_spec
@@ -46,7 +46,7 @@ def test_unused_correlated_input_takes_no_part():
     """))
     m2 = b.measurand("Y2")
     assert math.isinf(m2.effective_dof)
-    assert m2.coverage_factor == pytest.approx(stats.norm.ppf(0.975), rel=1e-12)
+    assert m2.coverage_factor == near(stats.norm.ppf(0.975), rel=1e-12)
 
 
 TWO = """
@@ -71,14 +71,14 @@ def test_weak_correlation_keeps_the_weight_of_the_small_term():
     # issue 11 item 1: u_A = 0.01 (ν = 4), u_B = 0.1 (ν = ∞). r = 0: G.2b gives
     # ν = 0.0101² / (0.0001²/4) = 40 804 (JCGM 100 eq. G.2b, by hand)
     m0 = evaluate(spec_of(TWO.replace("R]", "0.0]")), monte_carlo_enabled=False).measurand("Y")
-    assert m0.effective_dof == pytest.approx(0.0101 ** 2 / (0.0001 ** 2 / 4), rel=1e-12)
+    assert m0.effective_dof == near(0.0101 ** 2 / (0.0001 ** 2 / 4), rel=1e-12)
     # r = 0.01: u_c² = 0.0001 + 0.01 + 2·0.01·0.001 = 0.01012; A's weight
     # w_A = 0.01·(0.01 + 0.01·0.1) = 0.00011 (derived in lpu.py): ν = 0.01012²/(0.00011²/4)
     b = evaluate(spec_of(TWO.replace("R]", "0.01]")))
     m = b.measurand("Y")
-    assert m.effective_dof == pytest.approx(0.01012 ** 2 / (0.00011 ** 2 / 4), rel=1e-12)
+    assert m.effective_dof == near(0.01012 ** 2 / (0.00011 ** 2 / 4), rel=1e-12)
     assert m.effective_dof > 3e4                       # not 4 (the old group rule)
-    assert m.expanded_uncertainty == pytest.approx(stats.norm.ppf(0.975) * math.sqrt(0.01012),
+    assert m.expanded_uncertainty == near(stats.norm.ppf(0.975) * math.sqrt(0.01012),
                                                    rel=1e-4)
     # the tool's Monte Carlo (A drawn from t_4, JCGM 101 §6.4.9) validates it (JCGM 101 §8)
     assert b.mc("Y").validated
@@ -92,7 +92,7 @@ def test_reduces_to_g2b_without_correlation():
     var = float(cu @ cu)
     g2b = var ** 2 / sum(c ** 4 / v for c, v in zip(cu, dof) if math.isfinite(v))
     got = effective_dof(cu, cu, dof, var, estimation_groups([str(i) for i in range(6)], ()))
-    assert got == pytest.approx(g2b, rel=1e-12)
+    assert got == near(g2b, rel=1e-12)
 
 
 def test_simultaneous_observations_give_n_minus_1():
@@ -100,7 +100,7 @@ def test_simultaneous_observations_give_n_minus_1():
     # sample's covariance is a scaled χ²_{n−1}, so every output has ν_eff = n − 1 = 4 exactly.
     b = evaluate(load_spec(spec_path("gum_h2")))
     for name in ("R", "X", "Z"):
-        assert b.measurand(name).effective_dof == pytest.approx(4.0, rel=1e-12)
+        assert b.measurand(name).effective_dof == near(4.0, rel=1e-12)
     assert ["V", "I", "phi"] in b.run["dof_groups"]
 
 
@@ -131,4 +131,4 @@ def test_one_sample_coverage_with_known_truth():
         m = evaluate(spec_of(template.format(v=x[:, 0].tolist(), i=x[:, 1].tolist())),
                      monte_carlo_enabled=False).measurand("Y")
         hits += abs(m.value - (truth[0] - 2 * truth[1])) <= m.expanded_uncertainty
-    assert hits / n_rep == pytest.approx(0.95, abs=0.015)
+    assert hits / n_rep == near(0.95, abs=0.015)

@@ -19,6 +19,7 @@ import math
 from pathlib import Path
 
 import pytest
+from numeric import near
 from scipy import stats
 
 from budget.cli import main
@@ -98,20 +99,20 @@ def budget():
 
 def test_hand_numbers_of_the_model(budget):
     m = budget.measurand("Y")
-    assert m.value == pytest.approx(2.5, rel=1e-12)        # 2·3/4 + 1² = 2.5
-    assert m.standard_uncertainty == pytest.approx(math.sqrt(VAR), rel=1e-12)
-    assert NU == pytest.approx(69.85159, abs=1e-5)
-    assert m.effective_dof == pytest.approx(NU, rel=1e-12)
-    assert m.coverage_factor == pytest.approx(k95(NU), rel=1e-12)
+    assert m.value == near(2.5, rel=1e-12)        # 2·3/4 + 1² = 2.5
+    assert m.standard_uncertainty == near(math.sqrt(VAR), rel=1e-12)
+    assert NU == near(69.85159, abs=1e-5)
+    assert m.effective_dof == near(NU, rel=1e-12)
+    assert m.coverage_factor == near(k95(NU), rel=1e-12)
 
 
 def test_each_term_answer_has_the_hand_derivative(budget):
     for name, c in C.items():
         (a,) = explain_term(budget, name).answers
-        assert a.term.sensitivity == pytest.approx(c, rel=1e-12)
+        assert a.term.sensitivity == near(c, rel=1e-12)
         # the written-out derivative, parsed and evaluated at the estimates, gives the same
-        assert a.derivative_value == pytest.approx(c, rel=1e-12)
-        assert a.signed_contribution == pytest.approx(c * U[name], rel=1e-12)
+        assert a.derivative_value == near(c, rel=1e-12)
+        assert a.signed_contribution == near(c * U[name], rel=1e-12)
         assert a.cautions == ()
         assert a.model == (("Y", "a * b / c + d**2"),)
     # the derivative text names exactly the inputs the hand derivative uses (−a·b/c²)
@@ -139,8 +140,8 @@ def test_shares_and_overview_order(budget):
     rows = ov.measurands[0].rows
     assert [r.term.name for r in rows] == ["b", "c", "d", "a"]     # largest share first
     for r in rows:
-        assert r.term.variance_share == pytest.approx(share[r.term.name], rel=1e-12)
-    assert sum(share.values()) == pytest.approx(1.0, rel=1e-12)
+        assert r.term.variance_share == near(share[r.term.name], rel=1e-12)
+    assert sum(share.values()) == near(1.0, rel=1e-12)
 
 
 def _what_if(var: float, denom: float) -> float:
@@ -157,16 +158,16 @@ def test_what_if_lines_by_hand(budget):
     # d removed: variance 0.04484375 − 0.01 = 0.03484375; only a (w_a, ν = 10) has finite ν
     u_gone = _what_if(VAR - 0.01, W_A ** 2 / 10)
     now, half, gone = explain_term(budget, "d").answers[0].what_if
-    assert now.expanded_uncertainty == pytest.approx(m.expanded_uncertainty, rel=1e-12)
-    assert half.expanded_uncertainty == pytest.approx(u_half, rel=1e-12)
-    assert gone.expanded_uncertainty == pytest.approx(u_gone, rel=1e-12)
-    assert half.relative_change == pytest.approx(u_half / m.expanded_uncertainty - 1, rel=1e-12)
+    assert now.expanded_uncertainty == near(m.expanded_uncertainty, rel=1e-12)
+    assert half.expanded_uncertainty == near(u_half, rel=1e-12)
+    assert gone.expanded_uncertainty == near(u_gone, rel=1e-12)
+    assert half.relative_change == near(u_half / m.expanded_uncertainty - 1, rel=1e-12)
 
     # a removed: only d's ν = 5 counts: variance 0.01 + 0.01171875 + 0.01 = 0.03171875
     gone_a = explain_term(budget, "a").answers[0].what_if[2]
-    assert gone_a.standard_uncertainty == pytest.approx(math.sqrt(0.03171875), rel=1e-12)
-    assert gone_a.effective_dof == pytest.approx(0.03171875 ** 2 / (0.01 ** 2 / 5), rel=1e-12)
-    assert gone_a.expanded_uncertainty == pytest.approx(_what_if(0.03171875, 0.01 ** 2 / 5),
+    assert gone_a.standard_uncertainty == near(math.sqrt(0.03171875), rel=1e-12)
+    assert gone_a.effective_dof == near(0.03171875 ** 2 / (0.01 ** 2 / 5), rel=1e-12)
+    assert gone_a.expanded_uncertainty == near(_what_if(0.03171875, 0.01 ** 2 / 5),
                                                         rel=1e-12)
     # a halved: u_c² part of a and b 0.0375² + 0.1² + 2·0.5·0.0375·0.1 = 0.01515625; a's own
     # weight w_a = 0.0375·(0.0375 + 0.5·0.1) = 0.00328125 (ν = 10)
@@ -174,7 +175,7 @@ def test_what_if_lines_by_hand(budget):
     w_a = 0.0375 * (0.0375 + 0.5 * 0.1)
     half_a = explain_term(budget, "a").answers[0].what_if[1]
     var_a = g + 0.01171875 + 0.01
-    assert half_a.expanded_uncertainty == pytest.approx(
+    assert half_a.expanded_uncertainty == near(
         _what_if(var_a, w_a ** 2 / 10 + 0.01 ** 2 / 5), rel=1e-12)
 
 
@@ -239,22 +240,22 @@ def test_ea402_s3_what_if_by_hand():
              "r": (s * 1.0 * 0.07e-6) ** 2,              # c = s·r_C, u = 0.07e-6
              "dR_TX": 0.0055 ** 2 / 3}                   # rectangular ±5.5 mΩ, c = −1
     var = sum(parts.values())
-    assert math.sqrt(var) == pytest.approx(0.0083, abs=0.00005)    # published u = 8.3 mΩ
-    assert m.expanded_uncertainty == pytest.approx(0.017, abs=0.0005)  # published U, k = 2
+    assert math.sqrt(var) == near(0.0083, abs=0.00005)    # published u = 8.3 mΩ
+    assert m.expanded_uncertainty == near(0.017, abs=0.0005)  # published U, k = 2
     # The engine's u_c² agrees with this hand sum to ~1e-11 relative: the triangular bounds of
     # r_C are the floats 1 ∓ 1e-6, whose difference carries a rounding of ~1e-16/2e-6 ≈ 1e-10
     # relative (derivation), so 1e-9 is the honest demand. The what-if checks below start from
     # the record's u_c² and take out the hand-computed part of δR_D only.
-    assert m.standard_uncertainty ** 2 == pytest.approx(var, rel=1e-9)
+    assert m.standard_uncertainty ** 2 == near(var, rel=1e-9)
     var = m.standard_uncertainty ** 2
     k = float(stats.norm.ppf((1 + 0.9545) / 2))        # ν = ∞: the normal quantile, ≈ 2.000
     (a,) = explain_term(b, "dR_D").answers
     now, half, gone = a.what_if
-    assert half.expanded_uncertainty == pytest.approx(
+    assert half.expanded_uncertainty == near(
         k * math.sqrt(var - parts["dR_D"] * 0.75), rel=1e-9)    # (u/2)² = u²/4
-    assert gone.expanded_uncertainty == pytest.approx(k * math.sqrt(var - parts["dR_D"]),
+    assert gone.expanded_uncertainty == near(k * math.sqrt(var - parts["dR_D"]),
                                                       rel=1e-9)
-    assert a.term.variance_share == pytest.approx(parts["dR_D"] / var, rel=1e-9)
+    assert a.term.variance_share == near(parts["dR_D"] / var, rel=1e-9)
 
 
 @pytest.mark.parametrize("spec", [REFS / "gum_h2.toml", REFS / "ea402_s3.toml",
@@ -271,7 +272,7 @@ def test_every_term_of_the_worked_examples_is_answered(spec):
     if spec.name == "gum_h2.toml":
         # GUM H.2 published u(R) = 0.071 Ω (REFERENCES.md), recomputed from the terms with the
         # observed correlations
-        assert combine_terms(b, b.measurand("R")).standard_uncertainty == pytest.approx(
+        assert combine_terms(b, b.measurand("R")).standard_uncertainty == near(
             0.071, abs=0.0005)
 
 
@@ -298,7 +299,7 @@ def test_cli_overview_and_term(tmp_path, capsys):
     assert "∂Y/∂d" in out and "d removed" in out and "u(d) halved" in out
     assert max(len(ln) for ln in out.splitlines()) <= 100
     data = json.loads(out_json.read_text(encoding="utf-8"))
-    assert data["answers"][0]["term"]["sensitivity"] == pytest.approx(2.0)   # ∂Y/∂d = 2d
+    assert data["answers"][0]["term"]["sensitivity"] == near(2.0)   # ∂Y/∂d = 2d
 
 
 def test_cli_record(tmp_path, capsys):

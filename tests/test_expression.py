@@ -20,6 +20,7 @@ import numpy as np
 import pytest
 from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
+from numeric import near
 from uncertainties import ufloat, umath
 
 from budget import expression as ex
@@ -51,7 +52,7 @@ def test_each_function_evaluates_like_math(fn):
     tree = ex.parse(f"{fn}(x)")
     assert tree == ex.Call(fn, ex.Var("x"))
     got = float(ex.compile_node(tree)({"x": x}))
-    assert got == pytest.approx(oracle(x), rel=1e-15, abs=1e-300)  # oracle: Python math
+    assert got == near(oracle(x), rel=1e-15, abs=1e-300)  # oracle: Python math
 
 
 @pytest.mark.parametrize("text, env, expected", [
@@ -77,7 +78,7 @@ def test_each_function_evaluates_like_math(fn):
 ])
 def test_allowed_constructs(text, env, expected):
     got = ex.compile_node(ex.parse(text))(env)
-    assert float(got) == pytest.approx(expected, rel=1e-15)
+    assert float(got) == near(expected, rel=1e-15)
 
 
 def test_compiled_form_is_vectorised():
@@ -94,7 +95,7 @@ def test_names_and_substitute():
     sub = ex.substitute(tree, {"R": ex.parse("R0 * (1 + a)")})
     assert ex.names(sub) == {"g", "dV", "R0", "a"}
     env = {"g": 2.0, "dV": 3.0, "R0": 4.0, "a": 0.5}
-    assert float(ex.compile_node(sub)(env)) == pytest.approx(2.0 * 3.0 / (4.0 * 1.5))
+    assert float(ex.compile_node(sub)(env)) == near(2.0 * 3.0 / (4.0 * 1.5))
 
 
 # --------------------------------------------------------------------------- refused constructs
@@ -282,12 +283,12 @@ def test_derivatives_match_uncertainties(case):
         env = {**CONSTANTS, **point}
         value, grad = value_and_gradient(tree, env, index)
         # oracle: uncertainties' value and derivatives (independent automatic differentiation)
-        assert value == pytest.approx(ref.nominal_value, rel=1e-12)
+        assert value == near(ref.nominal_value, rel=1e-12)
         for v in variables:
             expected = ref.derivatives[uf[v]]
             symbolic = float(ex.compile_node(ex.diff(tree, v))(env))
-            assert symbolic == pytest.approx(expected, rel=1e-9, abs=1e-12 * abs(expected) + 1e-300)
-            assert grad[index[v]] == pytest.approx(expected, rel=1e-9, abs=1e-300)
+            assert symbolic == near(expected, rel=1e-9, abs=1e-12 * abs(expected) + 1e-300)
+            assert grad[index[v]] == near(expected, rel=1e-9, abs=1e-300)
 
 
 def test_forward_mode_ignores_names_outside_index():
@@ -307,7 +308,7 @@ def test_forward_mode_power_overflow_is_not_a_raw_exception():
         value, grad = value_and_gradient(tree, {"x": 1e-100, "y": -3.0}, {"x": 0, "y": 1})
     except ModelError:
         return                                    # a located project error would be fine too
-    assert value == pytest.approx(1e300)          # 1e-100 ** -3 (by hand)
+    assert value == near(1e300)          # 1e-100 ** -3 (by hand)
     assert not np.isfinite(grad[0])               # -3 · 1e400 overflows a float64
 
 
@@ -325,7 +326,7 @@ def test_to_text_round_trip(case):
             again = ex.parse(ex.to_text(t))
             a = float(ex.compile_node(t)(env))
             b = float(ex.compile_node(again)(env))
-            assert a == pytest.approx(b, rel=1e-14, abs=0.0) or (math.isnan(a) and math.isnan(b))
+            assert a == near(b, rel=1e-14, abs=0.0) or (math.isnan(a) and math.isnan(b))
 
 
 def test_to_text_keeps_only_needed_parentheses():
@@ -403,7 +404,7 @@ def test_random_whitelist_trees_evaluate_and_differentiate(text, seed):
     assert grad.shape == (3,)
     # the two evaluations of the value agree wherever both are finite (same IEEE operations)
     if math.isfinite(compiled) and math.isfinite(value):
-        assert value == pytest.approx(compiled, rel=1e-12, abs=1e-300)
+        assert value == near(compiled, rel=1e-12, abs=1e-300)
     # symbolic and forward-mode derivatives agree wherever both are finite; the tolerance allows
     # for the different rounding of a/b differentiated as (da − (a/b)db)/b versus da/b − a·db/b²
     # (a value NaN outside its domain, e.g. ln of a negative, still has finite derivatives:
@@ -411,11 +412,11 @@ def test_random_whitelist_trees_evaluate_and_differentiate(text, seed):
     scale = 1 + (abs(compiled) if math.isfinite(compiled) else 0.0)
     for s, f in zip(symbolic, grad):
         if math.isfinite(s) and math.isfinite(f):
-            assert s == pytest.approx(f, rel=1e-6, abs=1e-6 * scale)
+            assert s == near(f, rel=1e-6, abs=1e-6 * scale)
     # printing and re-parsing keeps the value
     with np.errstate(all="ignore"):
         again = float(np.asarray(ex.compile_node(ex.parse(ex.to_text(tree)))(point), dtype=float))
-    assert again == pytest.approx(compiled, rel=1e-14, abs=0) or (
+    assert again == near(compiled, rel=1e-14, abs=0) or (
         math.isnan(again) and math.isnan(compiled))
 
 
@@ -439,4 +440,4 @@ def test_smooth_trees_give_finite_values_and_derivatives(text, seed):
     for v in VARS:
         s = float(np.asarray(ex.compile_node(ex.diff(tree, v))(point), dtype=float))
         assert math.isfinite(s)
-        assert s == pytest.approx(grad[index[v]], rel=1e-9, abs=1e-9 * (1 + abs(value)))
+        assert s == near(grad[index[v]], rel=1e-9, abs=1e-9 * (1 + abs(value)))

@@ -16,6 +16,7 @@ from pathlib import Path
 import allantools
 import numpy as np
 import pytest
+from numeric import near
 
 from budget.errors import DataError, SpecError
 from budget.expression import compile_node, parse
@@ -32,16 +33,16 @@ def ctx(folder, **table):
 def test_single_typed_offset_gives_hz(tmp_path):
     (q,) = run_module(ctx(tmp_path, offset=2e-11, offset_uncertainty=1e-11)).quantities
     assert q.name == "f" and q.unit == "Hz"
-    assert q.value == pytest.approx(F0 * (1 + 2e-11), rel=1e-15)
-    assert q.standard_uncertainty == pytest.approx(F0 * 1e-11)
+    assert q.value == near(F0 * (1 + 2e-11), rel=1e-15)
+    assert q.standard_uncertainty == near(F0 * 1e-11)
     assert q.distribution.kind == "normal"
 
 
 def test_offset_bound_rectangular(tmp_path):
     (q,) = run_module(ctx(tmp_path, offset_bound=5e-11)).quantities
     assert q.distribution.kind == "rectangular"
-    assert q.standard_uncertainty == pytest.approx(F0 * 5e-11 / math.sqrt(3))     # a/√3
-    assert q.distribution.low == pytest.approx(F0 * (1 - 5e-11), rel=1e-15)
+    assert q.standard_uncertainty == near(F0 * 5e-11 / math.sqrt(3))     # a/√3
+    assert q.distribution.low == near(F0 * (1 - 5e-11), rel=1e-15)
 
 
 def test_aging_and_allan_rows_and_expression(tmp_path):
@@ -53,12 +54,12 @@ def test_aging_and_allan_rows_and_expression(tmp_path):
     assert names == ["f_offset", "f_aging", "f_stab"]
     assert r.expression == "500000000.0 * (1 + f_offset) * (1 + f_aging) * (1 + f_stab)"
     aging, stab = r.quantities[1], r.quantities[2]
-    assert aging.distribution.half_width / 1e-12 == pytest.approx(5 * 20)   # rate × 20 days
+    assert aging.distribution.half_width / 1e-12 == near(5 * 20)   # rate × 20 days
     # white FM: σ_y(T) = σ_y(τ)·√(τ/T) (compared in units of 1e-12: pytest.approx's default
     # abs = 1e-12 would accept any number of order 1e-14)
-    assert stab.standard_uncertainty / 1e-12 == pytest.approx(3 / math.sqrt(36000.0), rel=1e-12)
+    assert stab.standard_uncertainty / 1e-12 == near(3 / math.sqrt(36000.0), rel=1e-12)
     env = {q.name: q.value for q in r.quantities}
-    assert compile_node(parse(r.expression))(env) == pytest.approx(F0 * (1 + 1e-11), rel=1e-15)
+    assert compile_node(parse(r.expression))(env) == near(F0 * (1 + 1e-11), rel=1e-15)
     json.dumps(r.diagnostics, allow_nan=False)
 
 
@@ -68,7 +69,7 @@ def test_power_law(tmp_path, noise, mu):
     (q,) = run_module(ctx(tmp_path, allan_deviation=1e-12, allan_tau_s=10.0,
                           measurement_time_s=1000.0, noise=noise)).quantities
     # σ_y(T) = σ_y(τ)·(T/τ)^(μ/2), T/τ = 100 (NIST SP 1065 power laws, memory)
-    assert q.standard_uncertainty == pytest.approx(F0 * 1e-12 * 100 ** (mu / 2), rel=1e-12)
+    assert q.standard_uncertainty == near(F0 * 1e-12 * 100 ** (mu / 2), rel=1e-12)
 
 
 @pytest.mark.parametrize("data_type, noise", [("freq", "white-fm"), ("phase", "white-pm")])
@@ -81,7 +82,7 @@ def test_scaling_against_allantools(tmp_path, data_type, noise):
     taus, adev, _, _ = allantools.adev(data, rate=1.0, data_type=data_type, taus=[1.0, 100.0])
     (q,) = run_module(ctx(tmp_path, allan_deviation=float(adev[0]), allan_tau_s=1.0,
                           measurement_time_s=100.0, noise=noise)).quantities
-    assert q.standard_uncertainty / F0 == pytest.approx(adev[1], rel=0.15)
+    assert q.standard_uncertainty / F0 == near(adev[1], rel=0.15)
 
 
 def test_white_fm_allan_equals_sd_of_means():
@@ -93,7 +94,7 @@ def test_white_fm_allan_equals_sd_of_means():
     m = 100
     means = y.reshape(-1, m).mean(axis=1)
     _, adev, _, _ = allantools.adev(y, rate=1.0, data_type="freq", taus=[float(m)])
-    assert adev[0] == pytest.approx(means.std(ddof=1), rel=0.15)
+    assert adev[0] == near(means.std(ddof=1), rel=0.15)
 
 
 def write_comparisons(folder, rows, header="date,fractional_offset"):
@@ -105,8 +106,8 @@ def test_comparison_file_constant(tmp_path):
     write_comparisons(tmp_path, [f"2026-10-{d:02d},{y!r}" for d, y in zip((1, 8, 15, 22, 29), ys)])
     (q,) = run_module(ctx(tmp_path, file="cmp.csv", at="2026-11-20")).quantities
     arr = np.array(ys)
-    assert q.value == pytest.approx(F0 * (1 + arr.mean()), rel=1e-15)       # JCGM 100 4.2.1
-    assert q.standard_uncertainty == pytest.approx(F0 * arr.std(ddof=1) / math.sqrt(5))
+    assert q.value == near(F0 * (1 + arr.mean()), rel=1e-15)       # JCGM 100 4.2.1
+    assert q.standard_uncertainty == near(F0 * arr.std(ddof=1) / math.sqrt(5))
     assert q.dof == 4 and q.evaluation == "A"                                # ν = n − 1
     assert q.provenance.files[0].rows == "1-5"
     assert any("past the last comparison" in n for n in q.provenance.notes)
@@ -118,8 +119,8 @@ def test_comparison_file_with_aging_from_last_row(tmp_path):
     r = run_module(ctx(tmp_path, file="cmp.csv", at="2026-11-20", aging_per_day=1e-12))
     off, aging = r.quantities
     # weighted mean of two equal-u comparisons: u = 2e-12/√2 ((Σw)^-1/2)
-    assert off.standard_uncertainty == pytest.approx(2e-12 / math.sqrt(2))
-    assert aging.distribution.half_width == pytest.approx(1e-12 * 20)   # 20 days since 10-31
+    assert off.standard_uncertainty == near(2e-12 / math.sqrt(2))
+    assert aging.distribution.half_width == near(1e-12 * 20)   # 20 days since 10-31
 
 
 @pytest.mark.parametrize("table, field", [
@@ -177,7 +178,7 @@ def test_allan_white_fm_held_beyond_range_with_range_in_notes(tmp_path):
                           measurement_time_s=36000.0)).quantities
     # default range 1 s … 100 s (two decades, this project's rule); held at σ_y(100 s) =
     # 1e-12·(100)^(-1/2) = 1e-13 (white FM, μ = −1, NIST SP 1065 power law, memory)
-    assert q.standard_uncertainty / F0 / 1e-13 == pytest.approx(1.0, rel=1e-12)
+    assert q.standard_uncertainty / F0 / 1e-13 == near(1.0, rel=1e-12)
     notes = " ".join(q.provenance.notes)
     assert "1 s … 100 s" in notes and "held" in notes and "360 times" in notes
 
@@ -186,7 +187,7 @@ def test_allan_rising_law_extrapolated_with_note(tmp_path):
     (q,) = run_module(ctx(tmp_path, allan_deviation=1e-13, allan_tau_s=1.0,
                           measurement_time_s=400.0, noise="random-walk-fm")).quantities
     # random-walk FM, μ = +1: σ_y(T) = σ_y(τ)·√(T/τ) = 1e-13·20 (NIST SP 1065, memory)
-    assert q.standard_uncertainty / F0 / 1e-13 == pytest.approx(20.0, rel=1e-12)
+    assert q.standard_uncertainty / F0 / 1e-13 == near(20.0, rel=1e-12)
     assert any("extrapolated beyond" in n for n in q.provenance.notes)
 
 

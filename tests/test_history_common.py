@@ -19,6 +19,7 @@ from pathlib import Path
 import numpy as np
 import pandas as pd
 import pytest
+from numeric import near
 
 from budget.engine import evaluate
 from budget.errors import DataError, SpecError
@@ -59,17 +60,17 @@ def test_issue_example_ten_calibrations_common_80_ohm(tmp_path):
                               common_standard_uncertainty=80.0, inflate="never")))
     assert set(r) == {"R_cal", "R_common"}
     cal, com = r["R_cal"], r["R_common"]
-    assert cal.standard_uncertainty == pytest.approx(60 / math.sqrt(10), rel=1e-12)
-    assert com.standard_uncertainty * cal.value == pytest.approx(80.0, rel=1e-12)
+    assert cal.standard_uncertainty == near(60 / math.sqrt(10), rel=1e-12)
+    assert com.standard_uncertainty * cal.value == near(80.0, rel=1e-12)
     total = math.hypot(cal.standard_uncertainty, com.standard_uncertainty * cal.value)
-    assert total == pytest.approx(math.sqrt(60 ** 2 / 10 + 80 ** 2), rel=1e-12)
-    assert total == pytest.approx(82.22, abs=0.005)
+    assert total == near(math.sqrt(60 ** 2 / 10 + 80 ** 2), rel=1e-12)
+    assert total == near(82.22, abs=0.005)
     assert com.provenance.across_runs == "shared" and com.distribution.kind == "normal"
     assert "F.1.2.3" in com.provenance.method
     # without the key the same file gives 100/√10 = 31.6 Ω, the issue's "32 Ω" (no common part)
     (q,) = run_module(_ctx(tmp_path, at="2024-12-01", drift="constant",
                            inflate="never")).quantities
-    assert q.standard_uncertainty == pytest.approx(100 / math.sqrt(10), rel=1e-12)
+    assert q.standard_uncertainty == near(100 / math.sqrt(10), rel=1e-12)
 
 
 def test_issue_example_through_the_budget(tmp_path):
@@ -82,7 +83,7 @@ def test_issue_example_through_the_budget(tmp_path):
         'common_standard_uncertainty = 80.0\n', file="spec.toml", folder=tmp_path)
     b = evaluate(spec)
     m = b.measurand("Y")
-    assert m.standard_uncertainty == pytest.approx(math.sqrt(60 ** 2 / 10 + 80 ** 2), rel=1e-9)
+    assert m.standard_uncertainty == near(math.sqrt(60 ** 2 / 10 + 80 ** 2), rel=1e-9)
     assert {t.name for t in m.terms} == {"R_cal", "R_common"}
 
 
@@ -107,17 +108,17 @@ def test_linear_drift_matches_textbook_gls_and_ols_formula(tmp_path):
     val, c = _gls(t, y, v, 400.0)
     # GLS (Aitken) oracle: same estimate (to 1e-5 Ω = 1e-14 of R: values near 1e9 Ω carry
     # ~1e-7 Ω of float rounding, and the oracle's explicit inverse loses a few digits more)
-    assert (r["R_cal"].value - R0) == pytest.approx(val - R0, abs=1e-5)
+    assert (r["R_cal"].value - R0) == near(val - R0, abs=1e-5)
     u_cal = r["R_cal"].standard_uncertainty
     u_com = r["R_common"].standard_uncertainty * r["R_cal"].value
-    assert math.hypot(u_cal, u_com) == pytest.approx(math.sqrt(c[0, 0]), rel=1e-9)
+    assert math.hypot(u_cal, u_com) == near(math.sqrt(c[0, 0]), rel=1e-9)
     # the common offset lies in the span of the design (a constant), so the independent part
     # is the equal-weight OLS line with σ = 60 Ω (JCGM 100 H.3):
     # u² = 60²·(1/n + (t − t̄)²/Σ(t_i − t̄)²), and the common part is all of u_c
     tbar = t.mean()
     expect = 60.0 ** 2 * (1 / n + (400.0 - tbar) ** 2 / np.sum((t - tbar) ** 2))
-    assert u_cal == pytest.approx(math.sqrt(expect), rel=1e-9)
-    assert u_com == pytest.approx(uc, rel=1e-9)
+    assert u_cal == near(math.sqrt(expect), rel=1e-9)
+    assert u_com == near(uc, rel=1e-9)
 
 
 def test_reference_column_shares_only_within_a_reference(tmp_path):
@@ -129,9 +130,9 @@ def test_reference_column_shares_only_within_a_reference(tmp_path):
     _write(tmp_path, [R0 + 5.0 * (i % 3) for i in range(10)], 200.0, refs=refs)
     r = _rows(run_module(_ctx(tmp_path, at="2024-12-01", drift="constant",
                               common_standard_uncertainty=80.0, inflate="never")))
-    assert r["R_common"].standard_uncertainty * r["R_cal"].value == pytest.approx(
+    assert r["R_common"].standard_uncertainty * r["R_cal"].value == near(
         80 / math.sqrt(2), rel=1e-12)
-    assert r["R_cal"].standard_uncertainty == pytest.approx(60 / math.sqrt(10), rel=1e-12)
+    assert r["R_cal"].standard_uncertainty == near(60 / math.sqrt(10), rel=1e-12)
 
 
 def test_blank_reference_shares_with_no_row(tmp_path):
@@ -144,7 +145,7 @@ def test_blank_reference_shares_with_no_row(tmp_path):
                               common_standard_uncertainty=80.0, inflate="never")))
     w = np.array([1 / 16400, 1 / 16400, 1 / 10000])
     a = w / w.sum()
-    assert r["R_common"].standard_uncertainty * r["R_cal"].value == pytest.approx(
+    assert r["R_common"].standard_uncertainty * r["R_cal"].value == near(
         80 * math.sqrt((a[0] + a[1]) ** 2 + a[2] ** 2), rel=1e-12)   # = 56.84 Ω
 
 
@@ -158,7 +159,7 @@ def test_inflation_touches_only_the_independent_part(tmp_path):
     cal = r["R_cal"]
     assert cal.standard_uncertainty > 3 * 60 / math.sqrt(10)
     assert math.isfinite(cal.dof) and cal.dof == 9            # ν = n − p
-    assert r["R_common"].standard_uncertainty * cal.value == pytest.approx(80.0, rel=1e-12)
+    assert r["R_common"].standard_uncertainty * cal.value == near(80.0, rel=1e-12)
 
 
 def test_amplifier_and_frequency_histories_take_the_key(tmp_path):
@@ -168,7 +169,7 @@ def test_amplifier_and_frequency_histories_take_the_key(tmp_path):
                               inflate="never")))
     # 6 equal rows: √(60²/6 + 80²) (JCGM 100 §5.2.2 eq. 13)
     u = math.hypot(r["A_cal"].standard_uncertainty, r["A_common"].standard_uncertainty * R0)
-    assert u == pytest.approx(math.sqrt(60 ** 2 / 6 + 80 ** 2), rel=1e-6)
+    assert u == near(math.sqrt(60 ** 2 / 6 + 80 ** 2), rel=1e-6)
     lines = ["date,fractional_offset,uncertainty"] + [
         f"2026-0{i + 1}-01,{1e-12 * (i % 2)!r},5e-12" for i in range(4)]
     (tmp_path / "cmp.csv").write_text("\n".join(lines) + "\n")
@@ -178,8 +179,8 @@ def test_amplifier_and_frequency_histories_take_the_key(tmp_path):
                          "inflate": "never"}, folder=tmp_path, spec_file="spec.toml"))
     f = _rows(res)
     # u_i = 5e-12 with 4e-12 common → independent 3e-12; 4 rows: 3e-12/2 and 4e-12 (eq. 13)
-    assert f["f_offset"].standard_uncertainty / 1e-12 == pytest.approx(1.5, rel=1e-9)
-    assert f["f_common"].standard_uncertainty / 1e-12 == pytest.approx(4.0, rel=1e-9)
+    assert f["f_offset"].standard_uncertainty / 1e-12 == near(1.5, rel=1e-9)
+    assert f["f_common"].standard_uncertainty / 1e-12 == near(4.0, rel=1e-9)
     assert "f_common" in res.expression
 
 

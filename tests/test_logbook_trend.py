@@ -16,6 +16,7 @@ import math
 import numpy as np
 import pytest
 from logbook_helpers import SEASON, season_records
+from numeric import near
 from scipy import stats
 
 from budget.logbook import Logbook, add_files, compute_trend
@@ -49,17 +50,17 @@ def test_gls_matches_dense_matrix(seed):
     b = rng.normal(0, 0.2, (n, k)) * (rng.uniform(size=(n, k)) < 0.6)
     m, u, chi2, v, a = _dense(x, d, b)
     g = mean_stats(_sums(x, d, b))
-    assert g.value == pytest.approx(m, rel=1e-10)
-    assert g.standard_uncertainty == pytest.approx(u, rel=1e-10)
-    assert g.chi2 == pytest.approx(chi2, rel=1e-8)
-    assert g.p_value == pytest.approx(stats.chi2.sf(chi2, n - 1), rel=1e-8)
+    assert g.value == near(m, rel=1e-10)
+    assert g.standard_uncertainty == near(u, rel=1e-10)
+    assert g.chi2 == near(chi2, rel=1e-8)
+    assert g.p_value == near(stats.chi2.sf(chi2, n - 1), rel=1e-8)
     # covariance of a run outside the set with the mean: Σ_j a_j V_ij over the shared part
     bj = rng.normal(0, 0.2, k)
-    assert g.cov_with_run(bj) == pytest.approx(float(bj @ b.T @ a), rel=1e-10)
+    assert g.cov_with_run(bj) == near(float(bj @ b.T @ a), rel=1e-10)
     # two disjoint means: aᵀ V_ST a' with V_ST = B_S B_Tᵀ
     g1, g2 = mean_stats(_sums(x[:4], d[:4], b[:4])), mean_stats(_sums(x[4:], d[4:], b[4:]))
     a1, a2 = _dense(x[:4], d[:4], b[:4])[4], _dense(x[4:], d[4:], b[4:])[4]
-    assert cov_of_means(g1, g2) == pytest.approx(float(a1 @ b[:4] @ b[4:].T @ a2), rel=1e-10)
+    assert cov_of_means(g1, g2) == near(float(a1 @ b[:4] @ b[4:].T @ a2), rel=1e-10)
 
 
 def test_independent_runs_give_the_textbook_weighted_mean():
@@ -68,11 +69,11 @@ def test_independent_runs_give_the_textbook_weighted_mean():
     w = 1 / u ** 2
     g = mean_stats(_sums(x, u ** 2, np.zeros((4, 0))))
     xbar = float(np.sum(w * x) / np.sum(w))
-    assert g.value == pytest.approx(xbar, rel=1e-12)
-    assert g.standard_uncertainty == pytest.approx(float(np.sum(w) ** -0.5), rel=1e-12)
+    assert g.value == near(xbar, rel=1e-12)
+    assert g.standard_uncertainty == near(float(np.sum(w) ** -0.5), rel=1e-12)
     chi2 = float(np.sum(w * (x - xbar) ** 2))
-    assert g.chi2 == pytest.approx(chi2, rel=1e-10)
-    assert g.birge_ratio == pytest.approx(math.sqrt(chi2 / 3), rel=1e-10)
+    assert g.chi2 == near(chi2, rel=1e-10)
+    assert g.birge_ratio == near(math.sqrt(chi2 / 3), rel=1e-10)
 
 
 def _series(points, calibrations=(), terms=()) -> Series:
@@ -100,8 +101,8 @@ def test_step_test_flags_the_recalibration_and_names_it():
     step = [s for s in t.steps if s.recalibration.chain == "A"][0]
     # 8 runs each side, u = 0.2 each: u(mean) = 0.2/√8, u(diff) = 0.2/2 = 0.1,
     # E_n = −0.7 / (2 · 0.1) = −3.5 (derivation)
-    assert step.en == pytest.approx(-3.5, rel=1e-9)
-    assert step.other_en == pytest.approx(0.0, abs=1e-9)
+    assert step.en == near(-3.5, rel=1e-9)
+    assert step.other_en == near(0.0, abs=1e-9)
     flags = [f for f in t.flags if f.kind == "step"]
     assert len(flags) == 1 and flags[0].chain == "A"
     assert flags[0].calibrations[0]["identifier"] == "cert-2"
@@ -111,7 +112,7 @@ def test_step_test_flags_the_recalibration_and_names_it():
 
 def test_no_step_no_flag():
     t = compute_trend(_two_chains(0.0))
-    assert [s.en for s in t.steps] == [pytest.approx(0.0, abs=1e-12)]
+    assert [s.en for s in t.steps] == [near(0.0, abs=1e-12)]
     assert t.flags == ()
 
 
@@ -121,7 +122,7 @@ def test_run_against_running_mean_of_other_chain():
     # against 8 runs of B (u = 0.2 each → u(mean)² = 0.005) and no shared terms:
     # E_n = −0.7 / (2·√(0.04 + 0.005)) (derivation)
     assert first_after["runs_in_mean"] == 8
-    assert first_after["en"] == pytest.approx(-0.7 / (2 * math.sqrt(0.045)), rel=1e-9)
+    assert first_after["en"] == near(-0.7 / (2 * math.sqrt(0.045)), rel=1e-9)
     flagged = {f.runs[0] for f in t.flags if f.kind == "run-vs-other-chain"}
     a_after = {c["id"] for c in t.run_checks if c["chain"] == "A"}
     assert len(flagged & a_after) >= 8
@@ -137,7 +138,7 @@ def test_shared_term_is_left_out_of_the_step():
         terms.append((i + 1, 0.15, "shared-voltmeter"))
     t = compute_trend(_series(pts, cals, terms))
     # u(diff)² = 0.2²/4 · 2 = 0.02 → E_n = 0.4 / (2·√0.02) (derivation)
-    assert t.steps[0].en == pytest.approx(0.4 / (2 * math.sqrt(0.02)), rel=1e-9)
+    assert t.steps[0].en == near(0.4 / (2 * math.sqrt(0.02)), rel=1e-9)
 
 
 def test_weighted_mean_covers_synthetic_truth():

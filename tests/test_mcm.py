@@ -21,6 +21,7 @@ from pathlib import Path
 
 import numpy as np
 import pytest
+from numeric import near
 from published_examples import EA402_SPEC_MC
 from scipy import optimize, stats
 
@@ -84,15 +85,15 @@ def test_jcgm101_9_2_2_normal_inputs(tmp_path):
     b = additive(tmp_path, NORMAL_INPUT, seed=922)
     m, mc = b.measurand("Y"), b.mc("Y")
     # JCGM 101 §9.2.2 (REFERENCES.md, memory): u(y) = 2, 95 % interval ±3.92, LPU and MCM agree
-    assert m.standard_uncertainty == pytest.approx(2.0, abs=5e-3)
-    assert m.expanded_uncertainty == pytest.approx(3.92, abs=5e-3)
+    assert m.standard_uncertainty == near(2.0, abs=5e-3)
+    assert m.expanded_uncertainty == near(3.92, abs=5e-3)
     # Y ~ N(0, 4) exactly; density at 3.92 is φ(1.96)/2; allow half a digit + 4 standard errors
     tol = 5e-3 + 4 * quantile_se(0.025, mc.trials, stats.norm(0, 2).pdf(3.92))
     assert mc.trials == 1_000_000
-    assert mc.interval_high == pytest.approx(3.92, abs=tol)
-    assert mc.interval_low == pytest.approx(-3.92, abs=tol)
-    assert mc.standard_uncertainty == pytest.approx(2.0, abs=5 * 2.0 * math.sqrt(2 / (4 * 1e6)))
-    assert mc.value == pytest.approx(0.0, abs=5 * 2.0 / 1e3)
+    assert mc.interval_high == near(3.92, abs=tol)
+    assert mc.interval_low == near(-3.92, abs=tol)
+    assert mc.standard_uncertainty == near(2.0, abs=5 * 2.0 * math.sqrt(2 / (4 * 1e6)))
+    assert mc.value == near(0.0, abs=5 * 2.0 / 1e3)
     # §8 with ndig = 2: δ = 0.05 (u = 2.0 = 20 × 10⁻¹); d ≈ MC noise ≈ 0.005 ≪ δ
     assert mc.tolerance == 0.05
     assert mc.validated is True
@@ -102,23 +103,23 @@ def test_jcgm101_9_2_3_rectangular_inputs(tmp_path):
     b = additive(tmp_path, RECT_INPUT, seed=923)
     m, mc = b.measurand("Y"), b.mc("Y")
     # JCGM 101 §9.2.3 (REFERENCES.md): LPU gives ±3.92 (u = 2, k = 1.96)
-    assert m.standard_uncertainty == pytest.approx(2.0, rel=1e-12)
-    assert m.expanded_uncertainty == pytest.approx(3.92, abs=5e-3)
+    assert m.standard_uncertainty == near(2.0, rel=1e-12)
+    assert m.expanded_uncertainty == near(3.92, abs=5e-3)
     # Exact 95 % symmetric interval, derived from the Irwin–Hall distribution: for the sum S of
     # four U(0, 1), P(S > 4 − t) = t⁴/24 for t ≤ 1, so t = (24 · 0.025)^¼ = 0.6^¼ and the
     # end of Y = √3 (2S − 4) is √3 (4 − 2 · 0.6^¼) = 3.8794. The density of Y there is
     # (t³/6)/(2√3) (change of variables).
     exact = math.sqrt(3) * (4 - 2 * 0.6 ** 0.25)
-    assert exact == pytest.approx(3.8794, abs=5e-5)
+    assert exact == near(3.8794, abs=5e-5)
     t = 0.6 ** 0.25
     tol = 4 * quantile_se(0.025, mc.trials, (t ** 3 / 6) / (2 * math.sqrt(3)))   # ≈ 0.019
-    assert mc.interval_high == pytest.approx(exact, abs=tol)
-    assert mc.interval_low == pytest.approx(-exact, abs=tol)
+    assert mc.interval_high == near(exact, abs=tol)
+    assert mc.interval_low == near(-exact, abs=tol)
     # published Monte Carlo result ±3.88 (memory), half a digit + the same allowance
-    assert mc.interval_high == pytest.approx(3.88, abs=5e-3 + tol)
+    assert mc.interval_high == near(3.88, abs=5e-3 + tol)
     # d_high = |y + U − y_high| ≈ 3.9199 − 3.8794 = 0.0405 (derived)
-    assert mc.d_high == pytest.approx(1.959963985 * 2 - exact, abs=tol)
-    assert mc.d_low == pytest.approx(1.959963985 * 2 - exact, abs=tol)
+    assert mc.d_high == near(1.959963985 * 2 - exact, abs=tol)
+    assert mc.d_low == near(1.959963985 * 2 - exact, abs=tol)
 
 
 def test_jcgm101_9_2_3_validation_arithmetic():
@@ -128,11 +129,11 @@ def test_jcgm101_9_2_3_validation_arithmetic():
     # validated. With ndig = 3 (u = 200 × 10⁻², δ = 0.005) the same d is not validated.
     exact = math.sqrt(3) * (4 - 2 * 0.6 ** 0.25)
     U = stats.norm.ppf(0.975) * 2.0
-    assert numerical_tolerance(2.0, 2) == pytest.approx(0.05)
-    assert numerical_tolerance(2.0, 3) == pytest.approx(0.005)
+    assert numerical_tolerance(2.0, 2) == near(0.05)
+    assert numerical_tolerance(2.0, 3) == near(0.005)
     two = compare_lpu_mcm(0.0, U, 2.0, -exact, exact, ndig=2)
     three = compare_lpu_mcm(0.0, U, 2.0, -exact, exact, ndig=3)
-    assert two.d_high == pytest.approx(0.0405, abs=5e-5)
+    assert two.d_high == near(0.0405, abs=5e-5)
     assert two.validated is True
     assert three.validated is False
 
@@ -141,17 +142,17 @@ def test_jcgm101_9_2_3_not_validated_at_three_digits(tmp_path):
     # as above through the engine: with ndig = 3, δ = 0.005 and d ≈ 0.0405 ± 0.019 (4 standard
     # errors) stays far above it
     mc = additive(tmp_path, RECT_INPUT, seed=9233, ndig=3).mc("Y")
-    assert mc.tolerance == pytest.approx(0.005)
+    assert mc.tolerance == near(0.005)
     assert mc.validated is False
 
 
 def test_numerical_tolerance_examples():
     # JCGM 101 §7.9.2 (memory): u = 0.0035 with ndig = 2 is 35 × 10⁻⁴, δ = ½ × 10⁻⁴
-    assert numerical_tolerance(0.0035, 2) == pytest.approx(0.5e-4)
+    assert numerical_tolerance(0.0035, 2) == near(0.5e-4)
     # u = 1.0 is 10 × 10⁻¹ at two digits: δ = 0.05; u = 9.96 rounds to 10 × 10⁰: δ = 0.5
-    assert numerical_tolerance(1.0, 2) == pytest.approx(0.05)
-    assert numerical_tolerance(9.96, 2) == pytest.approx(0.5)
-    assert numerical_tolerance(8.33e-3, 2) == pytest.approx(0.5e-4)
+    assert numerical_tolerance(1.0, 2) == near(0.05)
+    assert numerical_tolerance(9.96, 2) == near(0.5)
+    assert numerical_tolerance(8.33e-3, 2) == near(0.5e-4)
 
 
 def test_ea402_s3_monte_carlo_agrees_with_lpu(tmp_path):
@@ -160,9 +161,9 @@ def test_ea402_s3_monte_carlo_agrees_with_lpu(tmp_path):
     # (κ ≤ 3 for this sum of normal, rectangular and triangular terms: SE ≤ u·√(2/(4M))).
     mc = run(tmp_path, EA402_SPEC_MC).mc("R_X")
     u = 8.33e-3
-    assert mc.standard_uncertainty * 1e3 == pytest.approx(8.3, abs=0.05 + 5e3 * u * math.sqrt(
+    assert mc.standard_uncertainty * 1e3 == near(8.3, abs=0.05 + 5e3 * u * math.sqrt(
         2 / (4 * 200_000)))
-    assert mc.value == pytest.approx(10000.178, abs=5e-4 + 5 * u / math.sqrt(200_000))
+    assert mc.value == near(10000.178, abs=5e-4 + 5 * u / math.sqrt(200_000))
 
 
 
@@ -189,23 +190,23 @@ def test_symmetric_and_shortest_on_a_lognormal_output():
     res = mc_of({"Y": "exp(X)"}, [q("X", Distribution.normal(0.0, 0.5))], trials=m, seed=77)["Y"]
     ln = stats.lognorm(s=0.5)
     lo, hi = ln.ppf([0.025, 0.975])
-    assert res.symmetric[0] == pytest.approx(lo, abs=4 * quantile_se(0.025, m, ln.pdf(lo)))
-    assert res.symmetric[1] == pytest.approx(hi, abs=4 * quantile_se(0.975, m, ln.pdf(hi)))
+    assert res.symmetric[0] == near(lo, abs=4 * quantile_se(0.025, m, ln.pdf(lo)))
+    assert res.symmetric[1] == near(hi, abs=4 * quantile_se(0.975, m, ln.pdf(hi)))
     # exact shortest 95 % interval: minimise ppf(a + 0.95) − ppf(a) over a in (0, 0.05)
     opt = optimize.minimize_scalar(lambda a: ln.ppf(a + 0.95) - ln.ppf(a), bounds=(1e-9, 0.05 - 1e-9),
                                    method="bounded", options={"xatol": 1e-10})
     s_lo, s_hi = ln.ppf(opt.x), ln.ppf(opt.x + 0.95)
-    assert res.shortest[0] == pytest.approx(s_lo, abs=5 * quantile_se(opt.x, m, ln.pdf(s_lo)))
-    assert res.shortest[1] == pytest.approx(s_hi, abs=5 * quantile_se(opt.x + 0.95, m,
+    assert res.shortest[0] == near(s_lo, abs=5 * quantile_se(opt.x, m, ln.pdf(s_lo)))
+    assert res.shortest[1] == near(s_hi, abs=5 * quantile_se(opt.x + 0.95, m,
                                                                         ln.pdf(s_hi)))
     # for a right-skewed output the shortest interval is shorter and lies to the left
     assert s_hi - s_lo < hi - lo
     assert res.shortest[1] - res.shortest[0] < res.symmetric[1] - res.symmetric[0]
     assert res.shortest[0] < res.symmetric[0] and res.shortest[1] < res.symmetric[1]
     # moments of the lognormal (scipy): mean e^{s²/2}, std √((e^{s²} − 1) e^{s²})
-    assert res.value == pytest.approx(ln.mean(), abs=5 * ln.std() / math.sqrt(m))
+    assert res.value == near(ln.mean(), abs=5 * ln.std() / math.sqrt(m))
     kappa = ln.stats(moments="k") + 3
-    assert res.standard_uncertainty == pytest.approx(
+    assert res.standard_uncertainty == near(
         ln.std(), abs=5 * ln.std() * math.sqrt((kappa - 1) / (4 * m)))
 
 
@@ -237,7 +238,7 @@ def test_adaptive_stops_within_tolerance():
     assert res.adaptive and res.stabilised
     assert res.batches >= 2 and res.trials == res.batches * 10_000
     delta = numerical_tolerance(res.standard_uncertainty, 2)
-    assert delta == pytest.approx(0.05)                       # u ≈ 1.4 = 14 × 10⁻¹
+    assert delta == near(0.05)                       # u ≈ 1.4 = 14 × 10⁻¹
     assert abs(res.value) <= 2 * delta
     assert abs(res.standard_uncertainty - math.sqrt(2)) <= 2 * delta
     z = stats.norm.ppf(0.975) * math.sqrt(2)
@@ -304,8 +305,8 @@ def test_correlated_gaussian_pair_through_sums(tmp_path):
     m = 200_000
     for name, var in (("Y1", 3.6), ("Y2", 0.4)):
         s = math.sqrt(var)
-        assert b.mc(name).standard_uncertainty == pytest.approx(s, abs=5 * s / math.sqrt(2 * m))
-        assert b.measurand(name).standard_uncertainty == pytest.approx(s, rel=1e-12)
+        assert b.mc(name).standard_uncertainty == near(s, abs=5 * s / math.sqrt(2 * m))
+        assert b.measurand(name).standard_uncertainty == near(s, rel=1e-12)
         assert b.mc(name).validated
 
 
@@ -318,9 +319,9 @@ def test_correlated_gaussian_samples_reproduce_r():
     env = mcm._Sampler(qs, corr).draw(np.random.default_rng(12), 200_000)
     r = np.corrcoef(np.vstack([env["a"], env["b"], env["c"]]))
     for i, j in ((0, 1), (0, 2), (1, 2)):
-        assert r[i, j] == pytest.approx(corr[i, j], abs=5 * (1 - corr[i, j] ** 2) / math.sqrt(2e5))
-    assert env["a"].std() == pytest.approx(2.0, abs=5 * 2.0 / math.sqrt(4e5))
-    assert env["b"].mean() == pytest.approx(-1.0, abs=5 * 0.5 / math.sqrt(2e5))
+        assert r[i, j] == near(corr[i, j], abs=5 * (1 - corr[i, j] ** 2) / math.sqrt(2e5))
+    assert env["a"].std() == near(2.0, abs=5 * 2.0 / math.sqrt(4e5))
+    assert env["b"].mean() == near(-1.0, abs=5 * 0.5 / math.sqrt(2e5))
 
 
 def test_gaussian_copula_keeps_rectangular_marginals():
@@ -336,7 +337,7 @@ def test_gaussian_copula_keeps_rectangular_marginals():
     assert stats.kstest(env["b"], stats.uniform(0, 4).cdf).pvalue > 1e-4
     assert env["a"].min() >= -1 and env["a"].max() <= 1
     r_uniform = 6 / math.pi * math.asin(0.8 / 2)
-    assert np.corrcoef(env["a"], env["b"])[0, 1] == pytest.approx(
+    assert np.corrcoef(env["a"], env["b"])[0, 1] == near(
         r_uniform, abs=5 * (1 - r_uniform ** 2) / math.sqrt(1e5))
 
 
@@ -380,8 +381,8 @@ def test_finite_dof_normal_is_drawn_as_t(tmp_path):
     as_t = run(tmp_path, text.format(flag="true")).mc("Y").standard_uncertainty
     as_n = run(tmp_path, text.format(flag="false")).mc("Y").standard_uncertainty
     s_t = math.sqrt(5 / 3)
-    assert as_t == pytest.approx(s_t, abs=5 * s_t * math.sqrt((9 - 1) / (4 * m)))
-    assert as_n == pytest.approx(1.0, abs=5 * math.sqrt(2 / (4 * m)))
+    assert as_t == near(s_t, abs=5 * s_t * math.sqrt((9 - 1) / (4 * m)))
+    assert as_n == near(1.0, abs=5 * math.sqrt(2 / (4 * m)))
 
 
 # --------------------------------------------------------------------------- chunking, memory
@@ -413,8 +414,8 @@ def test_several_inputs_chunked_agree_within_monte_carlo_error(monkeypatch):
     sd = math.sqrt(0.09 + 0.16 + 0.0004 + 1 / 12)
     assert many.value != one.value                            # the streams did change
     for res in (one, many):
-        assert res.value == pytest.approx(6.0, abs=5 * sd / math.sqrt(m))
-        assert res.standard_uncertainty == pytest.approx(sd, abs=5 * sd * math.sqrt(2 / (4 * m)))
+        assert res.value == near(6.0, abs=5 * sd / math.sqrt(m))
+        assert res.standard_uncertainty == near(sd, abs=5 * sd * math.sqrt(2 / (4 * m)))
     # the difference of two independent estimates has √2 times the standard error
     assert abs(many.symmetric[1] - one.symmetric[1]) <= 5 * math.sqrt(2) * quantile_se(
         0.975, m, stats.norm(6, sd).pdf(6 + 1.96 * sd))
@@ -479,9 +480,9 @@ def test_results_serialise_to_plain_json():
     assert d["trials"] == 10_000 and d["symmetric"] == list(res.symmetric)
     v = compare_lpu_mcm(0.0, 1.96, 1.0, -1.95, 1.97, ndig=2)
     # δ = 0.05 for u = 1.0 at two digits (see test_numerical_tolerance_examples); d = 0.01
-    assert json.loads(json.dumps(v.to_dict())) == {"tolerance": pytest.approx(0.05),
-                                                   "d_low": pytest.approx(0.01),
-                                                   "d_high": pytest.approx(0.01),
+    assert json.loads(json.dumps(v.to_dict())) == {"tolerance": near(0.05),
+                                                   "d_low": near(0.01),
+                                                   "d_high": near(0.01),
                                                    "validated": True}
 
 
@@ -492,7 +493,7 @@ def test_histogram_counts_cover_the_samples():
     # Its edges are the sample's own 0.05 % and 99.95 % quantiles, so the count is fixed up to
     # the handling of the edge values; 60 trials (far above the ±2 of interpolated quantiles)
     # only guards against a wrong cut, e.g. 1 % (1000 trials off) or no cut (100 off).
-    assert sum(res.histogram_counts) == pytest.approx(0.999 * 100_000, abs=60)
+    assert sum(res.histogram_counts) == near(0.999 * 100_000, abs=60)
 
 
 def test_adaptive_stabilises_the_reported_interval():
@@ -523,7 +524,7 @@ def test_adaptive_stabilises_the_reported_interval():
     """)
     sym = _evaluate(_parse(text.replace("KIND", "symmetric"))).mc("Y")
     assert sym.stabilised and sym.trials < 200000
-    assert sym.interval_high == pytest.approx(0.95, abs=0.01)
+    assert sym.interval_high == near(0.95, abs=0.01)
     short = _evaluate(_parse(text.replace("KIND", "shortest")))
     assert not short.mc("Y").stabilised
     assert any("before stabilising" in n for n in short.run["notes"])

@@ -12,6 +12,7 @@ import math
 from fractions import Fraction
 
 import pytest
+from numeric import near
 
 from budget import evaluate, parse_spec
 
@@ -62,8 +63,8 @@ def test_deviation_near_1e_10_keeps_its_digits(expr):
     exact = float(_exact_dev())
     # float64 carries ~16 significant digits; a deviation of 3.7e-10 computed as a difference
     # keeps about 16 − 10 = 6 of them, so agreement to 1e-5 relative is the honest demand.
-    assert dev.value == pytest.approx(exact, rel=1e-5)
-    assert exact == pytest.approx(TRUE_DEV, rel=1e-5)   # the construction itself is sound
+    assert dev.value == near(exact, rel=1e-5)
+    assert exact == near(TRUE_DEV, rel=1e-5)   # the construction itself is sound
 
 
 def test_sensitivities_across_magnitudes():
@@ -72,10 +73,10 @@ def test_sensitivities_across_magnitudes():
     b = evaluate(parse_spec(_spec("I / (n * e * f) - 1")))
     dev = b.measurand("dev")
     t = dev.term("R")
-    assert t.contribution == pytest.approx(1e-11 * (1 + TRUE_DEV), rel=1e-9)
+    assert t.contribution == near(1e-11 * (1 + TRUE_DEV), rel=1e-9)
     # u_c from the four relative terms (1e-11, 1e-12, 1e-11, 1e-3/6e8 ≈ 1.67e-12), hand-combined
     expected = math.sqrt(1e-22 + 1e-24 + 1e-22 + (1e-3 / F) ** 2) * (1 + TRUE_DEV)
-    assert dev.standard_uncertainty == pytest.approx(expected, rel=1e-6)
+    assert dev.standard_uncertainty == near(expected, rel=1e-6)
 
 
 def test_monte_carlo_mean_of_small_deviation():

@@ -12,6 +12,7 @@ from pathlib import Path
 
 import numpy as np
 import pytest
+from numeric import near
 from scipy import stats
 from scipy.optimize import curve_fit
 
@@ -41,7 +42,7 @@ def test_model_matches_the_published_formula():
     v = np.linspace(-0.65, -0.44, 500)
     assert np.allclose(m.predict([A_TRUE, V1, V2, V3], v), staircase(v), rtol=0, atol=1e-15)
     # at V = V_k step k stands at e^(−1) of its height (derivation: X_k = 1 there)
-    assert m.predict([A_TRUE, V1, V2, V3], [V1])[0] == pytest.approx(math.exp(-1), abs=1e-9)
+    assert m.predict([A_TRUE, V1, V2, V3], [V1])[0] == near(math.exp(-1), abs=1e-9)
 
 
 def test_jacobian_matches_finite_differences():
@@ -71,7 +72,7 @@ def test_deviation_keeps_tiny_errors():
             x = (-Decimal(300.0) * (Decimal(v) - Decimal(c))).exp()
             ref += (-x).exp() - (1 if k == 0 else 0)
         got = m.deviation_at(theta[None, :], [v], 1)[0]
-        assert got == pytest.approx(float(ref), rel=1e-12)
+        assert got == near(float(ref), rel=1e-12)
 
 
 @pytest.mark.parametrize("fom", [12.0, 20.0, 30.0])
@@ -84,10 +85,10 @@ def test_best_point_follows_delta_two(fom):
     v2 = v1 + fom / a
     m = CascadeModel(2, True)
     best = m.best_gate_voltage(np.array([[a, v1, v2]]), 1)
-    assert best["error_probability"] == pytest.approx((1 + fom) * math.exp(-fom), rel=1e-9,
+    assert best["error_probability"] == near((1 + fom) * math.exp(-fom), rel=1e-9,
                                                       abs=fom ** 2 * math.exp(-2 * fom))
-    assert best["gate_voltage"] == pytest.approx(v2 - math.log(fom) / a, abs=1e-7)
-    assert m.figure_of_merit(np.array([[a, v1, v2]]), 1) == pytest.approx(fom, rel=1e-12)
+    assert best["gate_voltage"] == near(v2 - math.log(fom) / a, abs=1e-7)
+    assert m.figure_of_merit(np.array([[a, v1, v2]]), 1) == near(fom, rel=1e-12)
 
 
 def test_common_practice_parts_have_opposite_signs():
@@ -134,7 +135,7 @@ def test_covariance_scaled_when_scatter_exceeds_n_std(tmp_path):
                      samples=1000)
     # expected 9 (3²); χ²_ν/ν with ν = 296 has sd 9·√(2/296) ≈ 0.74, so [7, 11] is ±2.7 sd
     assert 7 < a.fit.reduced_chi2 < 11
-    assert a.fit.scale == pytest.approx(a.fit.reduced_chi2)
+    assert a.fit.scale == near(a.fit.reduced_chi2)
     assert any("reduced χ²" in n and "> 1" in n for n in a.notes)
 
 
@@ -174,8 +175,8 @@ def test_linear_and_sampled_uncertainty_both_reported(tmp_path):
     y = m.predict([300.0, V1, V2], v) + rng.normal(0, 2e-2, v.size)
     f = write_scan(tmp_path / "coarse.csv", v, y, np.full(v.size, 2e-2))
     deep = analyse_data(f, model="decay-cascade", plateau=1, operating_point=-0.545, steps=2)
-    near = analyse_data(f, model="decay-cascade", plateau=1, operating_point=-0.59, steps=2)
+    at_edge = analyse_data(f, model="decay-cascade", plateau=1, operating_point=-0.59, steps=2)
     assert deep.prediction.differs
     assert any("linear propagation gives" in n for n in deep.notes)
-    assert not near.prediction.differs
-    assert near.prediction.linear_std == pytest.approx(near.prediction.std, rel=0.05)
+    assert not at_edge.prediction.differs
+    assert at_edge.prediction.linear_std == near(at_edge.prediction.std, rel=0.05)

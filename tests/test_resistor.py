@@ -15,6 +15,7 @@ from pathlib import Path
 import numpy as np
 import pandas as pd
 import pytest
+from numeric import near
 
 from budget.errors import DataError, SpecError
 from budget.expression import compile_node, parse
@@ -102,10 +103,10 @@ def test_matches_polyfit_weighted(tmp_path):
     p, cov = np.polyfit(days, df.value.to_numpy(), 1, w=1 / u, cov="unscaled")
     r = run_module(ctx(tmp_path, at=AT, inflate="never"))
     q = r.quantities[0]
-    assert q.value == pytest.approx(p[1], rel=1e-13)
-    assert q.standard_uncertainty == pytest.approx(math.sqrt(cov[1, 1]), rel=1e-8)
+    assert q.value == near(p[1], rel=1e-13)
+    assert q.standard_uncertainty == near(math.sqrt(cov[1, 1]), rel=1e-8)
     d = r.diagnostics
-    assert d["drift_per_year"] == pytest.approx(p[0] * 365.25, rel=1e-8)
+    assert d["drift_per_year"] == near(p[0] * 365.25, rel=1e-8)
     # synthetic truth: drift per year R0·DRIFT within 3 of its standard uncertainties
     assert abs(d["drift_per_year"] - R0 * DRIFT) < 3 * d["drift_per_year_uncertainty"]
 
@@ -115,8 +116,8 @@ def test_constant_drift_is_weighted_mean(tmp_path):
     df = pd.read_csv(tmp_path / "hist.csv")
     w = (df.coverage_factor / df.expanded_uncertainty).to_numpy() ** 2
     q = run_module(ctx(tmp_path, at=AT, drift="constant", inflate="never")).quantities[0]
-    assert q.value == pytest.approx(np.average(df.value, weights=w), rel=1e-14)  # Σwx/Σw
-    assert q.standard_uncertainty == pytest.approx(w.sum() ** -0.5, rel=1e-12)    # (Σw)^-1/2
+    assert q.value == near(np.average(df.value, weights=w), rel=1e-14)  # Σwx/Σw
+    assert q.standard_uncertainty == near(w.sum() ** -0.5, rel=1e-12)    # (Σw)^-1/2
 
 
 def test_inflation_when_scatter_exceeds_stated(tmp_path):
@@ -131,7 +132,7 @@ def test_inflation_when_scatter_exceeds_stated(tmp_path):
     assert q.distribution.kind == "student-t"
     assert any("exceeds" in n for n in q.provenance.notes)
     plain = run_module(ctx(tmp_path, at=AT, inflate="never")).quantities[0]
-    assert q.standard_uncertainty == pytest.approx(plain.standard_uncertainty
+    assert q.standard_uncertainty == near(plain.standard_uncertainty
                                                    * d["birge_ratio"], rel=1e-10)
     # recovered within the (inflated) uncertainty; Student t with 10 dof, 3u ≈ 99 %
     assert abs(q.value - truth(pd.Timestamp(AT))) < 3 * q.standard_uncertainty
@@ -141,7 +142,7 @@ def test_extrapolation_flagged_in_days(tmp_path):
     dates = write_history(tmp_path)
     r = run_module(ctx(tmp_path, at=AT))
     days = (pd.Timestamp(AT) - dates[-1]) / pd.Timedelta(days=1)
-    assert r.diagnostics["days_since_last_calibration"] == pytest.approx(days)
+    assert r.diagnostics["days_since_last_calibration"] == near(days)
     assert r.diagnostics["extrapolated"]
     assert any(f"{days:.1f} days past the last calibration" in n
                for n in r.quantities[0].provenance.notes)
@@ -163,19 +164,19 @@ def test_temperature_and_voltage_rows(tmp_path):
     assert r.expression == "R_cal * (1 + R_temp) * (1 + R_volt)"
     q_t, q_v = r.quantities[1], r.quantities[2]
     dt = 0.4
-    assert q_t.value == pytest.approx(alpha * dt + beta * dt ** 2)   # δ_T = αΔT + βΔT²
+    assert q_t.value == near(alpha * dt + beta * dt ** 2)   # δ_T = αΔT + βΔT²
     # JCGM 100 eq. 10 with ∂δ/∂T = α + 2βΔT, ∂δ/∂α = ΔT
     u_expected = math.hypot((alpha + 2 * beta * dt) * 0.05, dt * u_a)
-    assert q_t.standard_uncertainty == pytest.approx(u_expected, rel=1e-12)
+    assert q_t.standard_uncertainty == near(u_expected, rel=1e-12)
     assert q_t.unit == "1" and q_t.distribution.kind == "normal"
     # δ_V = γ(V_work − V_cal); bound ±|ΔV|·γ_max, rectangular, u = a/√3 (JCGM 100 4.3.7)
-    assert q_v.value == pytest.approx(-1e-8 * (0.1 - 10.0))
-    assert q_v.standard_uncertainty == pytest.approx(9.9 * 2e-8 / math.sqrt(3))
+    assert q_v.value == near(-1e-8 * (0.1 - 10.0))
+    assert q_v.standard_uncertainty == near(9.9 * 2e-8 / math.sqrt(3))
     assert q_v.distribution.kind == "rectangular"
     # the expression evaluates (budget.expression) to the corrected resistance
     env = {q.name: q.value for q in r.quantities}
     val = compile_node(parse(r.expression))(env)
-    assert val == pytest.approx(env["R_cal"] * (1 + q_t.value) * (1 + q_v.value), rel=1e-15)
+    assert val == near(env["R_cal"] * (1 + q_t.value) * (1 + q_v.value), rel=1e-15)
 
 
 def test_rectangular_temperature_bound(tmp_path):
@@ -184,7 +185,7 @@ def test_rectangular_temperature_bound(tmp_path):
                        temperature_C=23.0, temperature_half_width_C=0.1))
     q = r.quantities[1]
     assert q.distribution.kind == "rectangular"
-    assert q.standard_uncertainty == pytest.approx(1e-6 * 0.1 / math.sqrt(3))  # a/√3
+    assert q.standard_uncertainty == near(1e-6 * 0.1 / math.sqrt(3))  # a/√3
 
 
 def test_history_values_referred_to_reference_temperature(tmp_path):

@@ -14,6 +14,7 @@ from pathlib import Path
 
 import numpy as np
 import pytest
+from numeric import near
 from scipy import optimize
 
 from budget.errors import BudgetError, DataError, SpecError
@@ -47,8 +48,8 @@ def test_gain_from_table_with_offset(tmp_path):
     # scipy curve_fit, unweighted (covariance scaled by the residual variance)
     popt, pcov = optimize.curve_fit(lambda x, b, G: b + G * x, data[:, 0], data[:, 1])
     big_g, u_big_g = popt[1], math.sqrt(pcov[1, 1])
-    assert q.value == pytest.approx(1 / big_g, rel=1e-13)
-    assert q.standard_uncertainty == pytest.approx(u_big_g / big_g ** 2, rel=1e-5)
+    assert q.value == near(1 / big_g, rel=1e-13)
+    assert q.standard_uncertainty == near(u_big_g / big_g ** 2, rel=1e-5)
     assert q.dof == 21 - 2 and q.evaluation == "A"
     # synthetic truth: g = 1/G_true within 3u
     assert abs(q.value - 1 / G_TRUE) < 3 * q.standard_uncertainty
@@ -67,7 +68,7 @@ def test_fit_through_origin_is_biased_by_an_offset_the_default_is_not(tmp_path):
     assert abs(off.value - 1 / G_TRUE) < 3 * off.standard_uncertainty
     assert abs(org.value - 1 / G_TRUE) > 3 * org.standard_uncertainty
     popt, _ = optimize.curve_fit(lambda x, G: G * x, ref, rd)    # independent origin fit
-    assert org.value == pytest.approx(1 / popt[0], rel=1e-12)
+    assert org.value == near(1 / popt[0], rel=1e-12)
     assert org.dof == 10 - 1
 
 
@@ -78,10 +79,10 @@ def test_linearity_from_fit_and_resolution(tmp_path):
     assert r.expression == "g_cal * (1 + g_lin) * (1 + g_res)"
     lin, res = r.quantities[1], r.quantities[2]
     max_res = r.diagnostics["calibration"]["max_abs_residual_V"]
-    assert lin.distribution.half_width == pytest.approx(max_res / 0.16)
-    assert lin.standard_uncertainty == pytest.approx(max_res / 0.16 / math.sqrt(3))  # a/√3
+    assert lin.distribution.half_width == near(max_res / 0.16)
+    assert lin.standard_uncertainty == near(max_res / 0.16 / math.sqrt(3))  # a/√3
     # JCGM 100 F.2.2.1: resolution δx → u = δx/√12, here relative to the working voltage
-    assert res.standard_uncertainty == pytest.approx(1e-8 / math.sqrt(12) / 0.16)
+    assert res.standard_uncertainty == near(1e-8 / math.sqrt(12) / 0.16)
     (fig,) = r.diagnostics["figures"]
     assert len(fig["series"][0]["x"]) == 21
     json.dumps(r.diagnostics, allow_nan=False)
@@ -91,14 +92,14 @@ def test_certificate_values(tmp_path):
     r = run_module(ctx(tmp_path, gain=1.00000012, gain_expanded_uncertainty=4e-8,
                        gain_coverage_factor=2.0, gain_dof=30, linearity=5e-8))
     cal, lin = r.quantities
-    assert cal.value == 1.00000012 and cal.standard_uncertainty == pytest.approx(2e-8)  # U/k
+    assert cal.value == 1.00000012 and cal.standard_uncertainty == near(2e-8)  # U/k
     assert cal.dof == 30 and cal.distribution.kind == "student-t"
     assert lin.distribution.kind == "rectangular"
     (q,) = run_module(ctx(tmp_path, gain=1.0000003, gain_is="reading-ratio",
                           gain_uncertainty=1e-8)).quantities
     # g = 1/G, u(g) = u(G)/G²
-    assert q.name == "g" and q.value == pytest.approx(1 / 1.0000003, rel=1e-15)
-    assert q.standard_uncertainty == pytest.approx(1e-8 / 1.0000003 ** 2, rel=1e-12)
+    assert q.name == "g" and q.value == near(1 / 1.0000003, rel=1e-15)
+    assert q.standard_uncertainty == near(1e-8 / 1.0000003 ** 2, rel=1e-12)
     assert math.isinf(q.dof)
 
 
@@ -106,7 +107,7 @@ def test_stability_per_day(tmp_path):
     r = run_module(ctx(tmp_path, gain=1.0, gain_uncertainty=1e-8, stability_per_day=1e-10,
                        calibration_date="2026-01-01", at="2026-03-02"))
     stab = r.quantities[1]
-    assert stab.distribution.half_width == pytest.approx(1e-10 * 60)   # 60 days × rate
+    assert stab.distribution.half_width == near(1e-10 * 60)   # 60 days × rate
     assert stab.distribution.kind == "rectangular"
 
 

@@ -32,6 +32,7 @@ from functools import cache
 from pathlib import Path
 
 import pytest
+from numeric import near
 
 from budget import evaluate, load_spec
 
@@ -171,7 +172,7 @@ def test_every_file_term_names_its_file_digest_and_rows(spec):
     kept = len(_row_set(ref.rows)) / _data_rows(folder / ref.path)
     settle = 20 if "amplifier" in spec else 36
     # fraction kept of the whole file: (100 − settle)/100 of the 2·cycles middle segments
-    assert kept == pytest.approx((100 - settle) / 100, abs=0.02)
+    assert kept == near((100 - settle) / 100, abs=0.02)
 
 
 def test_shared_files_are_byte_identical():
@@ -211,7 +212,7 @@ def test_truth_files_match_the_generator(tmp_path):
         fresh = sc.run_truth(sc.RUNS[t["run"]])
         for key, value in fresh.items():
             if isinstance(value, float):
-                assert t[key] == pytest.approx(value, rel=1e-15, abs=0.0), key
+                assert t[key] == near(value, rel=1e-15, abs=0.0), key
             else:
                 assert t[key] == value, key
     for writer in (sc.write_resistor_history, sc.write_voltmeter_table,
