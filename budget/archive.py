@@ -34,6 +34,7 @@ from typing import Any
 
 from . import __version__
 from .errors import DataError, UsageError
+from .outputs import name_max, temp_prefix
 from .record import record_data
 
 __all__ = ["MANIFEST_SCHEMA", "ARCHIVE_SCHEMA", "input_manifest", "archive",
@@ -126,6 +127,10 @@ def check_archive_target(out_dir: str | Path, *, force: bool = False) -> Path:
     folder that is not an archive never (``force`` must not delete a user's folder).
     """
     out = Path(out_dir)
+    if out.parent.is_dir() and len(out.name.encode("utf-8", "surrogateescape")) > \
+            name_max(out.parent):
+        raise UsageError(f"folder name too long (the file system allows "
+                         f"{name_max(out.parent)} bytes)", file=str(out_dir), field="--archive")
     if not out.parent.is_dir():
         raise UsageError("the folder it would go in does not exist", file=str(out_dir),
                          field="--archive")
@@ -216,7 +221,7 @@ def archive(spec, budget, out_dir: str | Path, *, force: bool = False) -> Archiv
         src = src if src.is_absolute() else folder / src
         entries.append((_relative(f["path"], folder), src, f["sha256"]))
 
-    tmp = Path(tempfile.mkdtemp(prefix=f".{out.name}.", suffix=".part", dir=out.parent))
+    tmp = Path(tempfile.mkdtemp(prefix=temp_prefix(out), suffix=".part", dir=out.parent))
     try:
         objects = tmp / "objects"
         objects.mkdir()
@@ -260,7 +265,7 @@ def _swap_into_place(tmp: Path, out: Path) -> None:
     if not out.exists():
         os.replace(tmp, out)
         return
-    old = Path(tempfile.mkdtemp(prefix=f".{out.name}.", suffix=".old", dir=out.parent))
+    old = Path(tempfile.mkdtemp(prefix=temp_prefix(out), suffix=".old", dir=out.parent))
     old.rmdir()
     os.replace(out, old)
     try:

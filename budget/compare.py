@@ -58,6 +58,7 @@ from scipy import stats
 from .compare_basis import SharedTerm, TermBasis, cross_correlation, identity, term_bases
 from .errors import DataError, UsageError, did_you_mean
 from .explain import correlation_matrix
+from .numbers import overflow_checked
 from .result import Budget, Measurand, Term
 
 __all__ = ["ReferenceValue", "RunEntry", "SharedTerm", "MeanResult", "NormalisedError",
@@ -81,6 +82,10 @@ class ReferenceValue:
                 and self.expanded_uncertainty >= 0):
             raise UsageError("the reference needs a finite VALUE and a finite U >= 0; got "
                              f"{self.value!r} {self.expanded_uncertainty!r}", field="--reference")
+        # E_n and χ² square both: a VALUE or U beyond about 1e154 overflows a float
+        overflow_checked(lambda: (self.value ** 2, (self.expanded_uncertainty / K_EN) ** 2),
+                         "the square of the reference VALUE or U",
+                         lambda msg: UsageError(msg, field="--reference"))
 
 
 @dataclass(frozen=True)

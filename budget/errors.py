@@ -61,8 +61,9 @@ class BudgetError(Exception):
 
     def one_line(self) -> str:
         """The message as a single line: ``file:line N: field 'x': message``."""
+        from .numbers import escape  # names and fields may hold line breaks: show them escaped
         parts = []
-        where = self.file or ""
+        where = escape(self.file or "")
         if self.line is not None:
             where += f":{self.line}" if where else f"line {self.line}"
         if self.row is not None:
@@ -70,8 +71,10 @@ class BudgetError(Exception):
         if where:
             parts.append(where)
         if self.field:
-            parts.append(f"field '{self.field}'")
-        parts.append(" ".join(str(self.message).split()))
+            parts.append(f"field '{escape(self.field)}'")
+        # line breaks that format a long message become spaces; any other control character
+        # (inside a quoted name, say) is shown escaped
+        parts.append(escape(" ".join(str(self.message).split())))
         return ": ".join(parts)
 
     def __str__(self) -> str:  # pragma: no cover - trivial

@@ -19,7 +19,6 @@ Stable sections and keys (see README "The budget spec"):
 from __future__ import annotations
 
 import hashlib
-import math
 import re
 import tomllib
 from dataclasses import dataclass, field
@@ -27,6 +26,8 @@ from pathlib import Path
 from typing import Any
 
 from .errors import SpecError, did_you_mean
+from .numbers import NumberError, checked, shown
+from .schema import SchemaViolation, load_schema, validate
 
 __all__ = ["Spec", "load_spec", "parse_spec", "SECTIONS", "REPORT_KEYS", "MAX_TRIALS"]
 
@@ -117,23 +118,42 @@ def load_spec(path: str | Path) -> Spec:
     return parse_spec(text, file=str(path), folder=p.resolve().parent, raw=raw)
 
 
+def _toml_key(text: str) -> tuple[str, ...] | None:
+    """The key path of a TOML key as written (bare, quoted with escapes, dotted), or None."""
+    try:
+        data = tomllib.loads(text + " = 0")
+    except tomllib.TOMLDecodeError:
+        return None
+    path = []
+    while isinstance(data, dict) and len(data) == 1:
+        k, data = next(iter(data.items()))
+        path.append(k)
+    return tuple(path) if data == 0 else None
+
+
 def _locate(text: str) -> dict[tuple[str, ...], dict[str, int]]:
-    """Map each TOML table to the lines of its header and keys (for error messages)."""
+    """Map each TOML table to the lines of its header and keys (for error messages).
+
+    Keys are read with the TOML parser itself, so a quoted key with escapes (``"a\\nb" = 1``)
+    is found at its own line, not at its table's header."""
     out: dict[tuple[str, ...], dict[str, int]] = {(): {}}
     current: tuple[str, ...] = ()
     header = re.compile(r"^\s*\[\s*([^\[\]]+?)\s*\]\s*(#.*)?$")
-    keyline = re.compile(r'^\s*("?)([A-Za-z0-9_\-\.]+)\1\s*=')
-    for i, ln in enumerate(text.splitlines(), start=1):
+    keyline = re.compile(r"""^\s*((?:[A-Za-z0-9_\-]+|"(?:[^"\\]|\\.)*"|'[^']*')"""
+                         r"""(?:\s*\.\s*(?:[A-Za-z0-9_\-]+|"(?:[^"\\]|\\.)*"|'[^']*'))*)\s*=""")
+    for i, ln in enumerate(text.split("\n"), start=1):  # TOML ends lines at LF only
         m = header.match(ln)
         if m:
-            current = tuple(part.strip().strip('"') for part in m.group(1).split("."))
+            current = _toml_key(m.group(1)) or tuple(
+                part.strip().strip('"') for part in m.group(1).split("."))
             out.setdefault(current, {})[""] = i
             continue
         k = keyline.match(ln)
         if k:
-            dotted = tuple(k.group(2).split("."))
-            sect = current + dotted[:-1]
-            out.setdefault(sect, {}).setdefault(dotted[-1], i)
+            dotted = _toml_key(k.group(1))
+            if dotted:
+                sect = current + dotted[:-1]
+                out.setdefault(sect, {}).setdefault(dotted[-1], i)
     return out
 
 
@@ -156,6 +176,7 @@ def parse_spec(text: str, *, file: str = "<string>", folder: Path | None = None,
         if not isinstance(data[sect], dict):
             raise SpecError(f"'{sect}' must be a table [{sect}]", file=file,
                             line=chk.line((), sect), field=sect)
+    chk.types(data)
 
     b = data.get("budget", {})
     chk.keys(("budget",), b, BUDGET_KEYS)
@@ -163,16 +184,16 @@ def parse_spec(text: str, *, file: str = "<string>", folder: Path | None = None,
     description = chk.string(("budget",), b, "description", "")
     p = chk.number(("budget",), b, "coverage_probability", 0.95)
     if not 0.5 <= p < 1:
-        raise chk.error(("budget",), "coverage_probability", f"must lie in [0.5, 1); got {p!r}")
+        raise chk.error(("budget",), "coverage_probability", f"must lie in [0.5, 1); got {shown(p)}")
     order = b.get("propagation_order", 1)
     if isinstance(order, bool) or order not in (1, 2):
-        raise chk.error(("budget",), "propagation_order", f"must be 1 or 2; got {order!r}")
+        raise chk.error(("budget",), "propagation_order", f"must be 1 or 2; got {shown(order)}")
     dof_rounding = chk.choice(("budget",), b, "dof_rounding", ("floor", "interpolate"), "floor")
     kfix = b.get("coverage_factor")
     if kfix is not None:
         kfix = chk.number(("budget",), b, "coverage_factor", None)
         if not kfix > 0:
-            raise chk.error(("budget",), "coverage_factor", f"must be > 0; got {kfix!r}")
+            raise chk.error(("budget",), "coverage_factor", f"must be > 0; got {shown(kfix)}")
 
     rep = data.get("report", {})
     chk.keys(("report",), rep, REPORT_KEYS)
@@ -209,11 +230,9 @@ def parse_spec(text: str, *, file: str = "<string>", folder: Path | None = None,
         units[k] = chk.string(("units",), data["units"], k, "")
 
     constants = {}
-    for k, v in data.get("constants", {}).items():
+    for k in data.get("constants", {}):
         chk.ident(("constants",), k)
-        if isinstance(v, bool) or not isinstance(v, (int, float)) or not math.isfinite(v):
-            raise chk.error(("constants",), k, f"must be a finite number; got {v!r}")
-        constants[k] = float(v)
+        constants[k] = chk.number(("constants",), data["constants"], k, None)
     for k, v in chain_constants.items():
         if k in constants and constants[k] != v:
             raise chk.error(("constants",), k, f"conflicts with {k} = {v:g} in [model]")
@@ -231,28 +250,28 @@ def parse_spec(text: str, *, file: str = "<string>", folder: Path | None = None,
     else:
         if isinstance(trials_v, bool) or not isinstance(trials_v, int):
             raise chk.error(("monte_carlo",), "trials",
-                            f"must be an integer or \"adaptive\"; got {trials_v!r}")
+                            f"must be an integer or \"adaptive\"; got {shown(trials_v)}")
         trials = check_trials(trials_v, file=file, line=chk.line(("monte_carlo",), "trials"))
     seed = mc.get("seed")
     if seed is not None and (isinstance(seed, bool) or not isinstance(seed, int) or seed < 0):
-        raise chk.error(("monte_carlo",), "seed", f"must be a non-negative integer; got {seed!r}")
+        raise chk.error(("monte_carlo",), "seed", f"must be a non-negative integer; got {shown(seed)}")
     interval = chk.choice(("monte_carlo",), mc, "interval", ("symmetric", "shortest"),
                           "symmetric")
     ndig = mc.get("significant_digits", 2)
     if isinstance(ndig, bool) or ndig not in (1, 2, 3, 4):
-        raise chk.error(("monte_carlo",), "significant_digits", f"must be 1, 2, 3 or 4; got {ndig!r}")
+        raise chk.error(("monte_carlo",), "significant_digits", f"must be 1, 2, 3 or 4; got {shown(ndig)}")
     max_trials = mc.get("max_trials", 10_000_000)
     if isinstance(max_trials, bool) or not isinstance(max_trials, int):
-        raise chk.error(("monte_carlo",), "max_trials", f"must be an integer; got {max_trials!r}")
+        raise chk.error(("monte_carlo",), "max_trials", f"must be an integer; got {shown(max_trials)}")
     max_trials = check_trials(max_trials, file=file, line=chk.line(("monte_carlo",), "max_trials"),
                               field="monte_carlo.max_trials")
     enabled = mc.get("enabled", True)
     if not isinstance(enabled, bool):
-        raise chk.error(("monte_carlo",), "enabled", f"must be true or false; got {enabled!r}")
+        raise chk.error(("monte_carlo",), "enabled", f"must be true or false; got {shown(enabled)}")
 
     t_dof = mc.get("t_for_finite_dof", True)
     if not isinstance(t_dof, bool):
-        raise chk.error(("monte_carlo",), "t_for_finite_dof", f"must be true or false; got {t_dof!r}")
+        raise chk.error(("monte_carlo",), "t_for_finite_dof", f"must be true or false; got {shown(t_dof)}")
 
     inputs = data.get("inputs", {})
     if not inputs:
@@ -273,20 +292,9 @@ def parse_spec(text: str, *, file: str = "<string>", folder: Path | None = None,
     corr = data.get("correlations", {})
     chk.keys(("correlations",), corr, CORRELATION_KEYS)
     pairs = []
-    for i, item in enumerate(corr.get("pairs", [])):
-        ok = (isinstance(item, list) and len(item) == 3 and isinstance(item[0], str)
-              and isinstance(item[1], str) and isinstance(item[2], (int, float))
-              and not isinstance(item[2], bool))
-        if not ok:
-            raise chk.error(("correlations",), "pairs",
-                            f"entry {i + 1} must be [\"a\", \"b\", r]; got {item!r}")
-        pairs.append((item[0], item[1], float(item[2])))
-    groups = []
-    for i, item in enumerate(corr.get("from_observations", [])):
-        if not (isinstance(item, list) and len(item) >= 2 and all(isinstance(s, str) for s in item)):
-            raise chk.error(("correlations",), "from_observations",
-                            f"entry {i + 1} must be a list of two or more input names; got {item!r}")
-        groups.append(tuple(item))
+    # types and shapes were checked against spec.schema.json (chk.types)
+    pairs = [(a, b, float(r)) for a, b, r in corr.get("pairs", [])]
+    groups = [tuple(item) for item in corr.get("from_observations", [])]
 
     return Spec(path=file, folder=folder or Path.cwd(), text=text,
                 sha256=hashlib.sha256(raw if raw is not None else text.encode()).hexdigest(),
@@ -303,7 +311,8 @@ def check_trials(n: int, *, file: str | None = None, line: int | None = None,
                  field: str = "monte_carlo.trials") -> int:
     """Refuse trial counts outside [MIN_TRIALS, MAX_TRIALS]."""
     if not MIN_TRIALS <= n <= MAX_TRIALS:
-        raise SpecError(f"must lie between {MIN_TRIALS:,} and {MAX_TRIALS:,}; got {n:,}",
+        got = f"{n:,}" if abs(n) < 10 ** 30 else shown(n)
+        raise SpecError(f"must lie between {MIN_TRIALS:,} and {MAX_TRIALS:,}; got {got}",
                         file=file, line=line, field=field)
     return n
 
@@ -339,18 +348,30 @@ class _Checker:
     def string(self, section, table, key, default):
         v = table.get(key, default)
         if not isinstance(v, str):
-            raise self.error(section, key, f"must be a string; got {v!r}")
+            raise self.error(section, key, f"must be a string; got {shown(v)}")
         return v
 
     def number(self, section, table, key, default):
-        v = table.get(key, default)
-        if isinstance(v, bool) or not isinstance(v, (int, float)) or not math.isfinite(v):
-            raise self.error(section, key, f"must be a finite number; got {v!r}")
-        return float(v)
+        try:
+            return checked(table.get(key, default))
+        except NumberError as exc:
+            raise self.error(section, key, str(exc)) from None
+
+    def types(self, data: dict) -> None:
+        """Check the types of every known key against ``spec.schema.json`` (one place)."""
+        try:
+            validate(data, load_schema("spec.schema.json"))
+        except SchemaViolation as exc:
+            keys = [p for p in exc.path if isinstance(p, str)]
+            idx = [q for q in exc.path if isinstance(q, int)]
+            words = [f"{'entry' if i == 0 else 'item'} {q + 1}" for i, q in enumerate(idx)]
+            entries = (", ".join(words) + ": ") if words else ""
+            raise self.error(tuple(keys[:-1]), keys[-1] if keys else "",
+                             entries + exc.message) from None
 
     def choice(self, section, table, key, choices, default):
         v = table.get(key, default)
         if v not in choices:
-            raise self.error(section, key, f"must be one of {', '.join(choices)}; got {v!r}"
+            raise self.error(section, key, f"must be one of {', '.join(choices)}; got {shown(v)}"
                                            f"{did_you_mean(str(v), choices)}")
         return v

@@ -78,24 +78,56 @@ def _restore_stop_handlers(previous: dict) -> None:
         signal.signal(sig, handler)
 
 
+def _os_error_line(exc: OSError) -> str:
+    """An OS error on any path (name too long, permission denied, disk full ...) as one line."""
+    from ..errors import BudgetError as _Located
+    what = exc.strerror or type(exc).__name__
+    return _Located(f"cannot use this path: {what}", file=exc.filename).one_line()
+
+
+def _show_numeric_warnings(caught) -> None:
+    """Warnings raised by numerical libraries during a command that succeeded, as the project's
+    one-line warnings (never the libraries' raw two-line text)."""
+    from ..numbers import escape
+    seen = set()
+    for w in caught:
+        text = escape(" ".join(str(w.message).split()))
+        if text in seen:
+            continue
+        seen.add(text)
+        kind = "numerical" if issubclass(w.category, RuntimeWarning) else w.category.__name__
+        print(f"budget: warning: {kind}: {text} (a library reported it while computing; "
+              "check the inputs' magnitudes)", file=sys.stderr)
+
+
 def main(argv: list[str] | None = None) -> int:
+    import warnings
     previous = _install_stop_handlers()
     try:
-        parser = build_parser()
-        args = parser.parse_args(argv)
-        if not getattr(args, "func", None):
-            raise UsageError("budget: a command is required (see 'budget --help')")
-        return args.func(args)
+        with warnings.catch_warnings(record=True) as caught:
+            warnings.simplefilter("default")
+            warnings.simplefilter("ignore", DeprecationWarning)
+            warnings.simplefilter("ignore", PendingDeprecationWarning)
+            parser = build_parser()
+            args = parser.parse_args(argv)
+            if not getattr(args, "func", None):
+                raise UsageError("budget: a command is required (see 'budget --help')")
+            code = args.func(args)
+        _show_numeric_warnings(caught)
+        return code
     except BudgetError as exc:
         print(f"budget: error: {exc.one_line()}", file=sys.stderr)
+        return EXIT_BAD_INPUT
+    except BrokenPipeError:  # pragma: no cover - e.g. piped into head
+        return EXIT_OK
+    except OSError as exc:
+        print(f"budget: error: {_os_error_line(exc)}", file=sys.stderr)
         return EXIT_BAD_INPUT
     except KeyboardInterrupt as exc:
         what = "terminated" if isinstance(exc, _Terminated) else "interrupted"
         print(f"budget: {what}; no output written", file=sys.stderr)
         # 128 + signal number, the shell's convention (130 for SIGINT, 143 for SIGTERM)
         return 128 + exc.signum if isinstance(exc, _Terminated) else EXIT_INTERRUPTED
-    except BrokenPipeError:  # pragma: no cover - e.g. piped into head
-        return EXIT_OK
     finally:
         _restore_stop_handlers(previous)
 

@@ -7,12 +7,12 @@ Exit codes: 0 ok, 1 a check failed, 2 bad input or usage, 130 interrupted (128 +
 from __future__ import annotations
 
 import argparse
-import math
 import sys
 import time
 from pathlib import Path
 
 from ..errors import UsageError
+from ..numbers import NumberError, checked, checked_int, shown
 
 EXIT_OK, EXIT_CHECK_FAILED, EXIT_BAD_INPUT, EXIT_INTERRUPTED = 0, 1, 2, 130
 
@@ -47,34 +47,46 @@ class Progress:
 
 def add_group(sub, name: str, *, help: str, description: str):
     """Register a command whose work is done by ACTION subcommands (``budget pump fit``);
-    without an ACTION it prints its help and exits 2. Returns the ACTION subparsers."""
+    without an ACTION it exits 2 with one line naming the actions. Returns the ACTION
+    subparsers."""
     p = sub.add_parser(name, help=help, description=description)
-    p.set_defaults(func=cmd_group_help, group_parser=p)
-    return p.add_subparsers(dest=f"{name}_command", metavar="ACTION", parser_class=Parser)
+    actions = p.add_subparsers(dest=f"{name}_command", metavar="ACTION", parser_class=Parser)
+    p.set_defaults(func=cmd_group_missing, group_name=name, group_actions=actions)
+    return actions
 
 
-def cmd_group_help(args) -> int:
-    args.group_parser.print_help()
-    return EXIT_BAD_INPUT
+def cmd_group_missing(args) -> int:
+    names = ", ".join(sorted(args.group_actions.choices))
+    raise UsageError(f"budget {args.group_name}: an ACTION is missing: give one of {names} "
+                     f"(see 'budget {args.group_name} --help')", field="ACTION")
+
+
+def _int_text(text: str, must: str, lo: int, hi: int) -> int:
+    """An integer argument inside [lo, hi] (underscores allowed, at most 40 digits)."""
+    t = text.replace("_", "").strip()
+    digits = t.lstrip("+-")
+    if not digits.isascii() or not digits.isdigit() or len(digits) > 40:
+        raise argparse.ArgumentTypeError(f"must be {must}; got {shown(text)}")
+    try:
+        return checked_int(int(t), lo=lo, hi=hi, must=must)
+    except NumberError:
+        raise argparse.ArgumentTypeError(f"must be {must}; got {shown(text)}") from None
 
 
 def trials_arg(text: str):
     if text == "adaptive":
         return None
-    try:
-        return int(text.replace("_", ""))
-    except ValueError:
-        raise argparse.ArgumentTypeError(f"must be an integer or 'adaptive'; got {text!r}") from None
+    return _int_text(text, "an integer or 'adaptive'", -(2 ** 63), 2 ** 63 - 1)
 
 
 def seed_arg(text: str) -> int:
-    try:
-        v = int(text)
-    except ValueError:
-        raise argparse.ArgumentTypeError(f"must be a non-negative integer; got {text!r}") from None
-    if v < 0:
-        raise argparse.ArgumentTypeError(f"must be a non-negative integer; got {text!r}")
-    return v
+    # a seed of up to 64 bits: the record keeps it and numpy's generators take it exactly
+    return _int_text(text, "a non-negative integer below 2**64", 0, 2 ** 64 - 1)
+
+
+def int_arg(text: str) -> int:
+    """A 64-bit integer argument (counts: --plateau, --samples ...)."""
+    return _int_text(text, "an integer", -(2 ** 63), 2 ** 63 - 1)
 
 
 def evaluate_spec(args):
@@ -101,11 +113,11 @@ def print_warnings(b) -> None:
 
 
 def number(text: str) -> float | None:
+    """A number argument through the checked conversion (finite float64), else None."""
     try:
-        v = float(text)
-    except ValueError:
+        return checked(float(text))
+    except (ValueError, OverflowError):  # NumberError is a ValueError
         return None
-    return v if math.isfinite(v) else None
 
 
 def positive_float(text: str) -> float:

@@ -5,7 +5,7 @@ from __future__ import annotations
 from pathlib import Path
 
 from ..errors import UsageError
-from .common import EXIT_OK, add_group, finite_float, positive_float, seed_arg
+from .common import EXIT_OK, add_group, finite_float, int_arg, positive_float, seed_arg
 
 
 def add_pump(sub) -> None:
@@ -25,14 +25,14 @@ def add_pump(sub) -> None:
     f.add_argument("data", metavar="DATA", help="data CSV, or a fit-result file (.toml/.json)")
     f.add_argument("--model", choices=("decay-cascade", "sequential-escape"),
                    help="model to fit (required for a data CSV)")
-    f.add_argument("--plateau", type=int, metavar="N", help="wanted electrons per cycle "
+    f.add_argument("--plateau", type=int_arg, metavar="N", help="wanted electrons per cycle "
                    "(default 1, or the fit file's)")
     f.add_argument("--operating-point", type=finite_float, metavar="V",
                    help="gate voltage of operation in V (default: the best one the fit predicts)")
     f.add_argument("--hold-time", type=positive_float, metavar="S",
                    help="hold time of operation in s (sequential escape)")
-    f.add_argument("--loaded", type=int, metavar="N", help="electrons loaded (sequential escape)")
-    f.add_argument("--steps", type=int, metavar="K", help="steps of the decay-cascade model")
+    f.add_argument("--loaded", type=int_arg, metavar="N", help="electrons loaded (sequential escape)")
+    f.add_argument("--steps", type=int_arg, metavar="K", help="steps of the decay-cascade model")
     slope = f.add_mutually_exclusive_group()
     slope.add_argument("--shared-slope", dest="shared_slope", action="store_true", default=None,
                        help="one gate slope for all steps/electrons")
@@ -42,7 +42,7 @@ def add_pump(sub) -> None:
                    help="V_ref of the escape times (default: the operating point)")
     f.add_argument("--allow-extrapolation", action="store_true",
                    help="accept an operating point outside the data")
-    f.add_argument("--samples", type=int, metavar="N", default=20000,
+    f.add_argument("--samples", type=int_arg, metavar="N", default=20000,
                    help="parameter samples for the uncertainty of δ (default 20000)")
     f.add_argument("--seed", type=seed_arg, metavar="S", default=20100430,
                    help="seed of those samples (default 20100430)")

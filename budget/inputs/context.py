@@ -3,7 +3,6 @@
 from __future__ import annotations
 
 import hashlib
-import math
 import os
 from collections.abc import Callable
 from dataclasses import dataclass, field
@@ -11,6 +10,7 @@ from pathlib import Path
 from typing import Any
 
 from ..errors import DataError, SpecError
+from ..numbers import NumberError, checked, checked_int, is_number, shown
 from ..quantity import FileRef
 
 __all__ = ["InputContext", "sha256_file"]
@@ -78,16 +78,22 @@ class InputContext:
             return default
         v = self.table[key]
         kinds = kind if isinstance(kind, tuple) else (kind,)
-        if float in kinds and isinstance(v, int) and not isinstance(v, bool):
-            v = float(v)
+        if float in kinds and is_number(v):
+            try:  # finite and representable (a 400-digit TOML integer is not)
+                v = checked(v)
+            except NumberError as exc:
+                raise self.spec_error(key, str(exc)) from None
+        elif int in kinds and is_number(v) and isinstance(v, int):
+            try:  # a count or a seed must fit the 64-bit integers numpy works with
+                v = checked_int(v, lo=-(2 ** 63), hi=2 ** 63 - 1, must="a 64-bit integer")
+            except NumberError as exc:
+                raise self.spec_error(key, str(exc)) from None
         if isinstance(v, bool) and bool not in kinds:
-            raise self.spec_error(key, f"must be {_kind_name(kinds)}; got {v!r}")
+            raise self.spec_error(key, f"must be {_kind_name(kinds)}; got {shown(v)}")
         if not isinstance(v, kinds):
-            raise self.spec_error(key, f"must be {_kind_name(kinds)}; got {v!r}")
-        if isinstance(v, float) and not math.isfinite(v):
-            raise self.spec_error(key, f"must be a finite number; got {v!r}")
+            raise self.spec_error(key, f"must be {_kind_name(kinds)}; got {shown(v)}")
         if check is not None and not check(v):
-            raise self.spec_error(key, f"must be {must or 'valid'}; got {v!r}")
+            raise self.spec_error(key, f"must be {must or 'valid'}; got {shown(v)}")
         return v
 
     def number(self, key: str, default: Any = _MISSING, *, positive: bool = False,
@@ -103,7 +109,7 @@ class InputContext:
         from ..errors import did_you_mean
         v = self.option(key, str, default)
         if v not in choices:
-            raise self.spec_error(key, f"must be one of {', '.join(choices)}; got {v!r}"
+            raise self.spec_error(key, f"must be one of {', '.join(choices)}; got {shown(v)}"
                                        f"{did_you_mean(v, choices)}")
         return v
 

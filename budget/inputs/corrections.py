@@ -16,6 +16,7 @@ import numpy as np
 
 from ..distributions import Distribution
 from ..errors import DataError
+from ..numbers import overflow_checked
 from ..quantity import FileRef, ModuleResult, Provenance, Quantity
 from .context import InputContext
 from .history import (
@@ -148,15 +149,23 @@ def temperature_term(ctx: InputContext, *, name: str, what: str,
     t_ref, ref_reason, d_i = reference_level(ctx, "reference_temperature_C",
                                              history_temperature, what="temperature",
                                              column_name="temperature_C")
-    dt = t_meas - t_ref
-    value = alpha * dt + beta * dt * dt
-    c_t = alpha + 2 * beta * dt
-    u_temp = hw_t / math.sqrt(3) if hw_t > 0 else u_t
-    u = math.sqrt((c_t * u_temp) ** 2 + (dt * u_alpha) ** 2 + (dt * dt * u_beta) ** 2)
+
+    def terms():
+        dt = t_meas - t_ref
+        c_t = alpha + 2 * beta * dt
+        u_temp = hw_t / math.sqrt(3) if hw_t > 0 else u_t
+        u = math.sqrt((c_t * u_temp) ** 2 + (dt * u_alpha) ** 2 + (dt * dt * u_beta) ** 2)
+        factors = None if d_i is None else 1.0 + alpha * d_i + beta * d_i * d_i
+        return dt, alpha * dt + beta * dt * dt, c_t, u, factors, abs(c_t) * hw_t
+
+    # huge coefficients or temperatures (1e308) overflow: a located error, not inf or a crash
+    dt, value, c_t, u, factors, half_t = overflow_checked(
+        terms, "the temperature correction α·ΔT + β·ΔT² (or its uncertainty)",
+        lambda msg: ctx.spec_error("temperature_C", msg))
     notes = []
     only_temperature = (dt * u_alpha == 0 and dt * dt * u_beta == 0)
     if hw_t > 0 and only_temperature and c_t != 0:
-        half = abs(c_t) * hw_t
+        half = half_t
         reason = (f"the temperature is bounded by ±{hw_t:g} K and δ_T is (to first order) "
                   "linear in it, so the bound maps to a bound on δ_T")
         if beta != 0:
@@ -165,9 +174,7 @@ def temperature_term(ctx: InputContext, *, name: str, what: str,
         half = None
         reason = ("δ_T combines several contributions (temperature, coefficients); a normal "
                   "distribution is assigned to their combination")
-    factors = None
     if d_i is not None:
-        factors = 1.0 + alpha * d_i + beta * d_i * d_i
         notes.append("history values referred to T_ref with the nominal α, β before the fit; "
                      "the coefficients' uncertainty on these small corrections is neglected")
     q = relative_term(

@@ -34,6 +34,7 @@ import numpy as np
 from ..coverage import DEFAULT_CERTIFICATE_PROBABILITY, describe_inference, dof_from_coverage_factor
 from ..distributions import KINDS, Distribution
 from ..errors import BudgetError, SpecError, did_you_mean
+from ..numbers import NumberError, checked, overflow_checked
 from ..quantity import Provenance, Quantity
 from .context import InputContext
 
@@ -67,8 +68,10 @@ def observations_of(ctx: InputContext) -> np.ndarray | None:
     if not isinstance(obs, list):
         raise ctx.spec_error("observations", "must be a list of numbers")
     for i, v in enumerate(obs):
-        if isinstance(v, bool) or not isinstance(v, (int, float)) or not math.isfinite(v):
-            raise ctx.spec_error("observations", f"entry {i + 1} is not a finite number: {v!r}")
+        try:
+            checked(v)
+        except NumberError as exc:
+            raise ctx.spec_error("observations", f"entry {i + 1} {exc}") from None
     if len(obs) < 2:
         raise ctx.spec_error("observations", f"needs at least 2 readings; got {len(obs)}")
     arr = np.asarray(obs, dtype=float)
@@ -103,8 +106,10 @@ def evaluate_direct(ctx: InputContext) -> Quantity:
             raise ctx.spec_error(clash[0], "give either observations or a value, not both")
         kind = ctx.choice("distribution", ("normal", "student-t"), "normal")
         n = obs.size
-        mean = float(obs.mean())
-        u = float(obs.std(ddof=1) / math.sqrt(n))
+        mean, u = overflow_checked(lambda: (float(obs.mean()),
+                                            float(obs.std(ddof=1) / math.sqrt(n))),
+                                   "the mean or standard deviation of the observations",
+                                   lambda msg: ctx.spec_error("observations", msg))
         dof = float(n - 1)
         if "dof" in t:
             raise ctx.spec_error("dof", "is n − 1 for observations; do not set it")

@@ -32,6 +32,7 @@ from scipy import special
 
 from ..errors import ComputationError
 from ..model import Model
+from ..numbers import overflow_checked
 from ..quantity import Quantity
 from .lpu import correlation_groups
 from .validate import numerical_tolerance
@@ -249,14 +250,14 @@ def monte_carlo(model: Model, quantities: Sequence[Quantity], corr: np.ndarray,
                                    "value (the model is undefined somewhere inside the input "
                                    "distributions, e.g. a division by a quantity that can be 0)",
                                    field=f"model.{name}")
-        mean = float(y.mean())
-        sd = float(y.std(ddof=1))
+        mean, sd = overflow_checked(
+            lambda y=y: (float(y.mean()), float(y.std(ddof=1))),
+            "the Monte Carlo mean or standard deviation",
+            lambda msg, name=name: ComputationError(msg + " (values near the largest float)",
+                                                    field=f"model.{name}"))
         y.sort()
         sym, short = coverage_intervals(y, p)
-        lo, hi = np.quantile(y, [0.0005, 0.9995]) if y.size > 2000 else (y[0], y[-1])
-        if hi <= lo:
-            lo, hi = lo - 0.5, hi + 0.5
-        counts, edges = np.histogram(y, bins=80, range=(lo, hi))
+        counts, edges = _histogram(y)
         inside = {}
         if intervals and name in intervals:
             a, b = intervals[name]
@@ -268,6 +269,22 @@ def monte_carlo(model: Model, quantities: Sequence[Quantity], corr: np.ndarray,
             histogram_edges=tuple(float(e) for e in edges), adaptive=settings.trials is None,
             stabilised=stabilised, batches=batches, interval_probabilities=inside)
     return results
+
+
+def _histogram(y: np.ndarray, bins: int = 80) -> tuple[np.ndarray, np.ndarray]:
+    """Counts and edges over the central 99.9 % of the sorted samples ``y``.
+
+    Values so large (1e308) or so narrow against their magnitude (1e308 ± 1) that no
+    finite-width bins exist give an empty histogram: the report then draws none, rather than
+    the run failing over a figure."""
+    lo, hi = np.quantile(y, [0.0005, 0.9995]) if y.size > 2000 else (y[0], y[-1])
+    if hi <= lo:
+        lo, hi = lo - 0.5, hi + 0.5
+    try:
+        with np.errstate(all="raise"):
+            return np.histogram(y, bins=bins, range=(lo, hi))
+    except (ValueError, FloatingPointError):
+        return np.zeros(0, dtype=int), np.zeros(0)
 
 
 def adaptive_batch_size(coverage_probability: float) -> int:
