@@ -16,15 +16,15 @@ expression and raises NumberError instead of returning inf or raising OverflowEr
 from __future__ import annotations
 
 import math
+import numbers
+import sys
 from collections.abc import Callable
 from typing import Any
-
-import numpy as np
 
 __all__ = ["NumberError", "checked", "checked_int", "is_number", "shown", "overflow_checked",
            "escape", "FLOAT_MAX"]
 
-FLOAT_MAX = float(np.finfo(np.float64).max)   # 1.797...e308, the largest float64
+FLOAT_MAX = sys.float_info.max                 # 1.797...e308, the largest float64
 _SHOWN_MAX = 60                                # characters of a bad value shown in a message
 
 
@@ -57,10 +57,14 @@ def shown(v: Any, limit: int = _SHOWN_MAX) -> str:
     return text if len(text) <= limit else text[: limit - 1] + "…"
 
 
+def _is_bool(v: Any) -> bool:
+    # numpy's bool scalar is no numbers.Real, but test by name so that numpy is not imported
+    return isinstance(v, bool) or type(v).__name__ in ("bool_", "bool")
+
+
 def is_number(v: Any) -> bool:
     """True for an int or float that is not a bool (numpy scalars included)."""
-    return (isinstance(v, (int, float, np.integer, np.floating))
-            and not isinstance(v, (bool, np.bool_)))
+    return isinstance(v, numbers.Real) and not _is_bool(v)
 
 
 def checked(v: Any, *, lo: float | None = None, hi: float | None = None,
@@ -107,7 +111,7 @@ def checked(v: Any, *, lo: float | None = None, hi: float | None = None,
 def checked_int(v: Any, *, lo: int | None = None, hi: int | None = None, must: str = "") -> int:
     """``v`` as an integer inside [lo, hi] (a float with an integral value is not accepted:
     a count or a seed written as 1e3 is most likely a mistake)."""
-    if isinstance(v, (bool, np.bool_)) or not isinstance(v, (int, np.integer)):
+    if _is_bool(v) or not isinstance(v, numbers.Integral):
         raise NumberError(f"must be an integer; got {shown(v)}")
     n = int(v)
     if (lo is not None and n < lo) or (hi is not None and n > hi):
@@ -133,6 +137,7 @@ def overflow_checked(compute: Callable[[], Any], what: str,
     ``fail(message)`` (a located BudgetError made by the caller), or NumberError when ``fail``
     is None. The message says that WHAT overflows a float.
     """
+    import numpy as np  # lazily: the CLI's argument checks must not import numpy
     message = None
     try:
         with np.errstate(over="raise", invalid="raise"):
@@ -155,6 +160,7 @@ def _all_finite(out: Any) -> bool:
         return True
     if isinstance(out, (tuple, list)):
         return all(_all_finite(x) for x in out)
+    import numpy as np
     try:
         return bool(np.all(np.isfinite(np.asarray(out, dtype=float))))
     except (TypeError, ValueError, OverflowError):
