@@ -59,7 +59,10 @@ def _start(tmp_path, tag):
     proc = subprocess.Popen(
         [sys.executable, "-m", "budget", "run", str(spec), "--json", str(out),
          "--trials", TRIALS, "--archive", str(tmp_path / f"arch_{tag}")],
-        stdin=subprocess.DEVNULL, stdout=subprocess.PIPE, stderr=slave, cwd=tmp_path)
+        stdin=subprocess.DEVNULL, stdout=subprocess.PIPE, stderr=slave, cwd=tmp_path,
+        # a shell starts background jobs with SIGINT ignored, and Python then installs no
+        # KeyboardInterrupt handler: give the child the default disposition a terminal user has
+        preexec_fn=lambda: signal.signal(signal.SIGINT, signal.default_int_handler))
     os.close(slave)
     return proc, master, out
 
