@@ -228,6 +228,7 @@ def evaluate(spec: Spec, *, trials: int | None | str = "spec", seed: int | None 
                             "the second-order terms are included; compare with Monte Carlo"))
             warnings.append(warn("model.zero_sensitivity", notes[-1],
                                  severity="warning" if spec.propagation_order == 1 else "note"))
+    notes.extend(_propagation_notes(spec, qs, resolved))
     sd = np.sqrt(np.clip(np.diag(cov), 0, None))
     with np.errstate(divide="ignore", invalid="ignore"):
         cm = np.where(np.outer(sd, sd) > 0, cov / np.outer(sd, sd), 0.0)
@@ -286,6 +287,9 @@ def evaluate(spec: Spec, *, trials: int | None | str = "spec", seed: int | None 
                 notes.append(f"{m.name}: the adaptive Monte Carlo procedure stopped at "
                              f"max_trials = {spec.max_trials:,} before stabilising")
                 warnings.append(warn("monte_carlo.not_stabilised", notes[-1]))
+            elif r.adaptive and spec.interval == "shortest":
+                notes.append(f"{m.name}: the adaptive procedure stabilised the ends of the "
+                             "shortest interval, the one reported (JCGM 101 §7.9.4)")
             if not v.validated:
                 warnings.append(warn(
                     "monte_carlo.not_validated",
@@ -329,6 +333,27 @@ def evaluate(spec: Spec, *, trials: int | None | str = "spec", seed: int | None 
                   correlation_names=model.outputs,
                   correlation_matrix=tuple(tuple(float(x) for x in row) for row in cm),
                   monte_carlo=mcs, inputs=tuple(qs), run=run, warnings=unique(warnings))
+
+
+def _propagation_notes(spec: Spec, qs: list[Quantity], resolved: ResolvedInputs) -> list[str]:
+    """Say which of the less obvious propagation rules of budget.propagate.lpu were used."""
+    out = []
+    by_name = {q.name: q for q in qs}
+    finite = sorted({n for a, b, _ in resolved.pairs for n in (a, b)
+                     if math.isfinite(by_name[n].dof)})
+    if finite:
+        grouped = [g for g in resolved.dof_groups if len(g) > 1]
+        out.append("ν_eff with correlated inputs of finite ν (" + ", ".join(finite) + "): "
+                   "Welch–Satterthwaite generalised, each estimation group weighted by its part "
+                   "of u_c², u_c⁴/ν_eff = Σ_g w_g²/ν_g; an input an output does not use takes no "
+                   "part" + ("; estimated together from one sample: " + "; ".join(
+                       ", ".join(g) for g in grouped) if grouped else ""))
+    if spec.propagation_order == 2:
+        odd = sorted(q.name for q in qs if not q.is_constant and q.distribution.kind != "normal")
+        if odd:
+            out.append("second-order terms use each input's own skewness and kurtosis (the "
+                       "JCGM 100 §5.1.2 note assumes normal inputs): " + ", ".join(odd))
+    return out
 
 
 def _at_spec(exc: BudgetError, spec: Spec) -> BudgetError:

@@ -82,6 +82,8 @@ def test_weak_correlation_keeps_the_weight_of_the_small_term():
                                                    rel=1e-4)
     # the tool's Monte Carlo (A drawn from t_4, JCGM 101 §6.4.9) validates it (JCGM 101 §8)
     assert b.mc("Y").validated
+    # the rule is named in the record's notes, for the auditor
+    assert any(n.startswith("ν_eff with correlated inputs of finite ν (A)") for n in b.run["notes"])
 
 
 def test_reduces_to_g2b_without_correlation():

@@ -49,6 +49,7 @@ def test_square_of_rectangular_issue_case():
     m = b.measurand("Y")
     assert m.standard_uncertainty == near(math.sqrt(1 / 5 - 1 / 9), rel=1e-12)
     assert round(m.standard_uncertainty, 3) == 0.298
+    assert any("skewness and kurtosis" in n and n.endswith(": X") for n in b.run["notes"])
     # synthetic truth: the Monte Carlo standard deviation of X² agrees (10⁶ trials: ±0.2 %)
     assert b.mc("Y").standard_uncertainty == near(math.sqrt(1 / 5 - 1 / 9), rel=3e-3)
 
