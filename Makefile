@@ -5,7 +5,7 @@ VENV := .venv
 BIN := $(VENV)/bin
 STAMP := $(VENV)/.installed
 
-.PHONY: demo test bench clean lint wheel-check
+.PHONY: demo test bench clean lint wheel-check fuzz
 
 $(STAMP): pyproject.toml
 	$(PY) -m venv $(VENV)
@@ -18,6 +18,10 @@ demo: $(STAMP)
 
 test: $(STAMP)
 	$(BIN)/python -m pytest
+
+# the long fuzz profile (by hand): 5 000 cases for each of the four generated properties
+fuzz: $(STAMP)
+	BUDGET_FUZZ_EXAMPLES=5000 $(BIN)/python -m pytest -p no:cacheprovider tests/test_fuzz.py --hypothesis-show-statistics
 
 # a wheel built from this checkout, installed in a fresh venv, renders a report (CI runs it)
 wheel-check: $(STAMP)

@@ -185,6 +185,10 @@ def _write(path: Path, data: bytes) -> None:
 def archive(spec, budget, out_dir: str | Path, *, force: bool = False) -> ArchiveInfo:
     """Copy the spec, every input file and the record into a content-addressed folder.
 
+    The folder is built beside ``out_dir`` under a temporary name and renamed into place
+    (:func:`build_archive` builds without the rename, for a command that commits several
+    outputs together).
+
     Parameters
     ----------
     spec : budget.spec.Spec
@@ -204,6 +208,19 @@ def archive(spec, budget, out_dir: str | Path, *, force: bool = False) -> Archiv
         When the spec or a data file changed since the budget read it, or cannot be read.
     """
     out = check_archive_target(out_dir, force=force)
+    tmp = Path(tempfile.mkdtemp(prefix=temp_prefix(out), suffix=".part", dir=out.parent))
+    try:
+        info = build_archive(spec, budget, tmp, shown=str(out))
+        _swap_into_place(tmp, out)
+    except BaseException:
+        shutil.rmtree(tmp, ignore_errors=True)
+        raise
+    return info
+
+
+def build_archive(spec, budget, tmp: Path, *, shown: str) -> ArchiveInfo:
+    """Fill the new, empty folder ``tmp`` with the archive of ``spec`` and ``budget`` (see
+    :func:`archive`); ``shown`` is the folder's final name, reported in the ArchiveInfo."""
     folder = Path(spec.folder)
     spec_path = Path(spec.path)
     try:
@@ -221,37 +238,32 @@ def archive(spec, budget, out_dir: str | Path, *, force: bool = False) -> Archiv
         src = src if src.is_absolute() else folder / src
         entries.append((_relative(f["path"], folder), src, f["sha256"]))
 
-    tmp = Path(tempfile.mkdtemp(prefix=temp_prefix(out), suffix=".part", dir=out.parent))
-    try:
-        objects = tmp / "objects"
-        objects.mkdir()
-        spec_digest, spec_size = _copy_object(spec_path, objects, spec.sha256, spec.path)
-        files = []
-        for rel, src, expected in entries:
-            try:
-                digest, size = _copy_object(src, objects, expected, str(src))
-            except OSError:
-                raise DataError("cannot read this input file to archive it",
-                                file=str(src)) from None
-            files.append({"path": rel, "sha256": digest, "size": size})
-        _write(tmp / "record.json", record)
-        run = budget.run
-        manifest = {
-            "schema": ARCHIVE_SCHEMA,
-            "software": f"qcs-budget {__version__}",
-            "spec": {"path": spec_path.name, "sha256": spec_digest, "size": spec_size},
-            "files": files,
-            "record": {"path": "record.json", "sha256": _sha256(record)},
-            "run": {"seed": run.get("seed"), "trials_setting": run.get("trials_setting"),
-                    "monte_carlo_enabled": run.get("monte_carlo_enabled")},
-        }
-        _write(tmp / "manifest.json",
-               (json.dumps(manifest, indent=2, ensure_ascii=False) + "\n").encode("utf-8"))
-        _swap_into_place(tmp, out)
-    except BaseException:
-        shutil.rmtree(tmp, ignore_errors=True)
-        raise
-    return ArchiveInfo(path=str(out), spec_sha256=spec_digest,
+    # the caller removes tmp on any failure
+    objects = tmp / "objects"
+    objects.mkdir()
+    spec_digest, spec_size = _copy_object(spec_path, objects, spec.sha256, spec.path)
+    files = []
+    for rel, src, expected in entries:
+        try:
+            digest, size = _copy_object(src, objects, expected, str(src))
+        except OSError:
+            raise DataError("cannot read this input file to archive it",
+                            file=str(src)) from None
+        files.append({"path": rel, "sha256": digest, "size": size})
+    _write(tmp / "record.json", record)
+    run = budget.run
+    manifest = {
+        "schema": ARCHIVE_SCHEMA,
+        "software": f"qcs-budget {__version__}",
+        "spec": {"path": spec_path.name, "sha256": spec_digest, "size": spec_size},
+        "files": files,
+        "record": {"path": "record.json", "sha256": _sha256(record)},
+        "run": {"seed": run.get("seed"), "trials_setting": run.get("trials_setting"),
+                "monte_carlo_enabled": run.get("monte_carlo_enabled")},
+    }
+    _write(tmp / "manifest.json",
+           (json.dumps(manifest, indent=2, ensure_ascii=False) + "\n").encode("utf-8"))
+    return ArchiveInfo(path=shown, spec_sha256=spec_digest,
                        files=tuple((f["path"], f["sha256"]) for f in files))
 
 

@@ -98,7 +98,7 @@ def create_identity(name: str, role: str, out_dir: str | Path, passphrase: str |
     from cryptography.hazmat.primitives.serialization import pkcs12
     from cryptography.x509.oid import NameOID
 
-    from .outputs import write_atomic
+    from .staging import OutputSet
 
     name = _clean_text(name, "--name")
     role = _clean_text(role or "", "--role")
@@ -147,12 +147,27 @@ def create_identity(name: str, role: str, out_dir: str | Path, passphrase: str |
            .hmac_hash(hashes.SHA256()).build(pw))
     p12 = pkcs12.serialize_key_and_certificates(name.encode("utf-8"), key, cert, None, enc)
     pem = cert.public_bytes(serialization.Encoding.PEM)
-    out.mkdir(mode=0o700, exist_ok=True)
-    write_atomic(p12_path, p12)            # mkstemp: mode 0600, kept by the rename
-    write_atomic(pem_path, pem)
+    with OutputSet() as staged:            # both files or neither (and no empty folder)
+        if out.is_dir():
+            staged.file(p12_path, p12)     # mkstemp: mode 0600, kept by the rename
+            staged.file(pem_path, pem)
+        else:
+            staged.folder(out, lambda tmp: _write_identity(tmp, p12, pem))
+        staged.commit()
     os.chmod(pem_path, 0o644)              # the certificate is public
     return Identity(name=name, role=role, p12_path=str(p12_path), pem_path=str(pem_path),
                     fingerprint=cert.fingerprint(hashes.SHA256()).hex())
+
+
+def _write_identity(folder: Path, p12: bytes, pem: bytes) -> None:
+    """The two identity files in a new folder (mode 0700; the key file 0600)."""
+    os.chmod(folder, 0o700)
+    for name, data, mode in (("identity.p12", p12, 0o600), ("identity.pem", pem, 0o644)):
+        fd = os.open(folder / name, os.O_WRONLY | os.O_CREAT | os.O_EXCL, mode)
+        with os.fdopen(fd, "wb") as fh:
+            fh.write(data)
+            fh.flush()
+            os.fsync(fh.fileno())
 
 
 def _load_p12(p12_path: str | Path, passphrase: str | bytes):

@@ -102,6 +102,9 @@ def _show_numeric_warnings(caught) -> None:
 
 def main(argv: list[str] | None = None) -> int:
     import warnings
+
+    from ..staging import reset_committed
+    reset_committed()
     previous = _install_stop_handlers()
     try:
         with warnings.catch_warnings(record=True) as caught:
@@ -124,8 +127,14 @@ def main(argv: list[str] | None = None) -> int:
         print(f"budget: error: {_os_error_line(exc)}", file=sys.stderr)
         return EXIT_BAD_INPUT
     except KeyboardInterrupt as exc:
+        from ..staging import committed
         what = "terminated" if isinstance(exc, _Terminated) else "interrupted"
-        print(f"budget: {what}; no output written", file=sys.stderr)
+        done = committed()
+        # the outputs are committed together (budget.staging): a stop comes either before
+        # the commit (nothing written) or after it (every output complete)
+        print(f"budget: {what}; " + (f"after the outputs were complete: {', '.join(done)} "
+                                     "written" if done else "no output written"),
+              file=sys.stderr)
         # 128 + signal number, the shell's convention (130 for SIGINT, 143 for SIGTERM)
         return 128 + exc.signum if isinstance(exc, _Terminated) else EXIT_INTERRUPTED
     finally:

@@ -161,11 +161,27 @@ def check_archive_option(args) -> None:
         check_archive_target(args.archive, force=args.force_archive)
 
 
-def write_archive_option(args, b) -> None:
+def stage_archive_option(args, b, out):
+    """Stage the ``--archive DIR`` folder in the OutputSet ``out`` (written at its commit);
+    returns the ArchiveInfo, or None without --archive."""
     if not getattr(args, "archive", None):
-        return
-    from ..archive import archive
+        return None
+    from ..archive import build_archive, check_archive_target
     from ..spec import load_spec
-    info = archive(load_spec(args.spec), b, args.archive, force=args.force_archive)
-    print(f"archive written to {info.path} (spec and {len(info.files)} input file"
-          f"{'' if len(info.files) == 1 else 's'})")
+    check_archive_target(args.archive, force=args.force_archive)
+    spec = load_spec(args.spec)
+    return out.folder(args.archive, lambda tmp: build_archive(spec, b, tmp, shown=args.archive))
+
+
+def archive_message(info) -> str:
+    return (f"archive written to {info.path} (spec and {len(info.files)} input file"
+            f"{'' if len(info.files) == 1 else 's'})")
+
+
+def write_outputs(*items: tuple[str, bytes | str]) -> tuple[str, ...]:
+    """Write ``(path, data)`` outputs all or none (see :mod:`budget.staging`)."""
+    from ..staging import OutputSet
+    with OutputSet() as out:
+        for path, data in items:
+            out.file(path, data)
+        return out.commit()

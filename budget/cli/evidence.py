@@ -6,7 +6,7 @@ import sys
 from pathlib import Path
 
 from ..errors import UsageError
-from .common import EXIT_CHECK_FAILED, EXIT_OK, add_group, print_warnings, read_input
+from .common import EXIT_CHECK_FAILED, EXIT_OK, add_group, print_warnings, read_input, write_outputs
 
 _PASSPHRASE_ENV = "BUDGET_PASSPHRASE"
 
@@ -99,7 +99,7 @@ def add_sign(sub) -> None:
 def _cmd_sign(args) -> int:
     from ..archive import input_manifest
     from ..errors import DataError
-    from ..outputs import check_writable, write_atomic
+    from ..outputs import check_writable
     from ..record import record_from_text
     from ..signing import ATTACHMENTS, read_attachments, sign_pdf
     _quiet_library_logs()
@@ -149,7 +149,7 @@ def _cmd_sign(args) -> int:
         raise exc.located(file=args.report) from None
     finally:
         del pw
-    write_atomic(args.output, signed)
+    write_outputs((args.output, signed))
     print(f"signed {args.report} -> {args.output}{note}")
     print_warnings(budget)
     return EXIT_OK

@@ -7,7 +7,7 @@ from pathlib import Path
 
 from .. import __version__
 from ..errors import UsageError
-from .common import EXIT_OK, number, print_warnings
+from .common import EXIT_OK, number, print_warnings, write_outputs
 
 
 def add_explain(sub) -> None:
@@ -30,7 +30,7 @@ def add_explain(sub) -> None:
 def _cmd_explain(args) -> int:
     from ..errors import ComputationError
     from ..explain import explain_term, overview
-    from ..outputs import check_writable, write_atomic
+    from ..outputs import check_writable
     from ..record import load_record
     from ..text import explain_overview_text, explain_term_text
     if args.json:
@@ -60,7 +60,7 @@ def _cmd_explain(args) -> int:
         except ValueError:  # a module put inf/NaN in its diagnostics (its contract says None)
             raise ComputationError("the answer holds a non-finite number and cannot be "
                                    "written as JSON", file=args.json, field="--json") from None
-        write_atomic(args.json, text + "\n")
+        write_outputs((args.json, text + "\n"))
         print(f"\nanswer written to {args.json}")
     print_warnings(b)  # last: an error while writing stays the only line on stderr
     return EXIT_OK
@@ -92,7 +92,7 @@ def add_compare(sub) -> None:
 
 def _cmd_compare(args) -> int:
     from ..compare import ReferenceValue, compare_runs
-    from ..outputs import check_writable, write_atomic
+    from ..outputs import check_writable
     from ..record import load_record
     from ..text import compare_text
     records = list(args.records)
@@ -122,14 +122,18 @@ def _cmd_compare(args) -> int:
                      pairwise=args.pairwise, files=records + ([ref_file] if ref_file else []),
                      en_basis=args.en_basis)
     print(compare_text(c, records))
+    outputs = []
     if args.pdf:
         from ..report.compare_render import compare_pdf
-        write_atomic(args.pdf, compare_pdf(c, files=[Path(f).name for f in records],
-                                           software=f"qcs-budget {__version__}"))
-        print(f"\nPDF written to {args.pdf}")
+        outputs.append((args.pdf, compare_pdf(c, files=[Path(f).name for f in records],
+                                              software=f"qcs-budget {__version__}")))
     if args.json:
         d = {"records": records, "reference_record": ref_file, **c.to_dict()}
-        write_atomic(args.json, json.dumps(d, indent=2, ensure_ascii=False, allow_nan=False)
-                     + "\n")
+        outputs.append((args.json, json.dumps(d, indent=2, ensure_ascii=False,
+                                              allow_nan=False) + "\n"))
+    write_outputs(*outputs)  # the PDF and the JSON: both or neither
+    if args.pdf:
+        print(f"\nPDF written to {args.pdf}")
+    if args.json:
         print(f"\ncomparison written to {args.json}")
     return EXIT_OK

@@ -5,7 +5,15 @@ from __future__ import annotations
 from pathlib import Path
 
 from ..errors import UsageError
-from .common import EXIT_OK, add_group, finite_float, int_arg, positive_float, seed_arg
+from .common import (
+    EXIT_OK,
+    add_group,
+    finite_float,
+    int_arg,
+    positive_float,
+    seed_arg,
+    write_outputs,
+)
 
 
 def add_pump(sub) -> None:
@@ -59,7 +67,7 @@ def _cmd_pump_fit(args) -> int:
     from ..inputs.pump.analysis import add_thermal_check, analyse_data, analyse_fit_file
     from ..inputs.pump.figdata import figure_data
     from ..inputs.pump.fitfile import fit_file_text
-    from ..outputs import check_writable, write_atomic
+    from ..outputs import check_writable
     from ..text.pump_text import fit_report
 
     def option_error(key, message):
@@ -106,12 +114,13 @@ def _cmd_pump_fit(args) -> int:
         figures = [(Path(args.figures) / f"{fig['id']}.svg", module_figure(fig, fig["id"]))
                    for fig in figure_data(a)]
     print(fit_report(a), end="")
+    outputs = list(figures)
     if args.write_fit:
         fmt = "json" if args.write_fit.lower().endswith(".json") else "toml"
-        write_atomic(args.write_fit, fit_file_text(a.record, fmt))
+        outputs.append((args.write_fit, fit_file_text(a.record, fmt)))
+    write_outputs(*outputs)  # the fit file and the figures: all or none
+    if args.write_fit:
         print(f"\nfit result written to {args.write_fit}")
-    for path, svg in figures:
-        write_atomic(path, svg)
     if figures:
         print(f"figures written to {args.figures}: " + ", ".join(p.name for p, _ in figures))
     return EXIT_OK

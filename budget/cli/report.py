@@ -9,13 +9,14 @@ from ..errors import UsageError
 from .common import (
     EXIT_OK,
     add_archive_options,
+    archive_message,
     check_archive_option,
     evaluate_spec,
     print_warnings,
     read_input,
     seed_arg,
+    stage_archive_option,
     trials_arg,
-    write_archive_option,
 )
 
 
@@ -75,9 +76,10 @@ def _check_report_args(args) -> list[str]:
 
 
 def _cmd_report(args) -> int:
-    from ..outputs import check_writable, write_atomic
+    from ..outputs import check_writable
     from ..report import document_info, looks_signed, render_html, render_pdf_layout
     from ..report.statement import stated_result
+    from ..staging import OutputSet
     outs = _check_report_args(args)
     for o in outs:
         check_writable(o)
@@ -95,19 +97,24 @@ def _cmd_report(args) -> int:
     html = render_html(b, certificate=args.certificate)
     rendered = (render_pdf_layout(html, info=document_info(b, certificate=args.certificate))
                 if args.output else None)
-    if args.html:
-        write_atomic(args.html, html)
+    with OutputSet() as out:  # HTML, PDF and archive: all or none
+        if args.html:
+            out.file(args.html, html)
+        if rendered is not None:
+            out.file(args.output, rendered.pdf)
+        info = stage_archive_option(args, b, out)
+        out.commit()
     kind = "certificate draft" if args.certificate else "report"
     for m in b.measurands:
         print(stated_result(b, m).line)   # the validated result (JCGM 101 §8)
     if args.html:
         print(f"{kind} (HTML) written to {args.html}")
     if rendered is not None:
-        write_atomic(args.output, rendered.pdf)
         where = (f"; signature field on page {rendered.signature.page}"
                  if rendered.signature else "")
         print(f"{kind} written to {args.output} ({rendered.pages} page"
               f"{'' if rendered.pages == 1 else 's'}{where})")
-    write_archive_option(args, b)
+    if info is not None:
+        print(archive_message(info))
     print_warnings(b)  # last: an error while writing stays the only line on stderr
     return EXIT_OK

@@ -9,12 +9,14 @@ from .common import (
     EXIT_CHECK_FAILED,
     EXIT_OK,
     add_archive_options,
+    archive_message,
     check_archive_option,
     evaluate_spec,
     print_warnings,
     seed_arg,
+    stage_archive_option,
     trials_arg,
-    write_archive_option,
+    write_outputs,
 )
 from .logbook import add_book_options, add_run_record, check_run_logbook
 
@@ -39,11 +41,12 @@ def add_run(sub) -> None:
 
 
 def _cmd_run(args) -> int:
-    from ..outputs import check_writable, write_atomic
+    from ..outputs import check_writable
     if args.json:
         check_writable(args.json)
     check_archive_option(args)
     book = check_run_logbook(args)
+    from ..staging import OutputSet
     from ..text import budget_text
     b = evaluate_spec(args)
     if book is not None:
@@ -52,10 +55,15 @@ def _cmd_run(args) -> int:
     print(budget_text(b))
     if book is not None:
         print(f"\nrecord added to the logbook {book} as #{rid}")
+    with OutputSet() as out:  # the record and the archive: both or neither
+        if args.json:
+            out.file(args.json, b.to_json())
+        info = stage_archive_option(args, b, out)
+        out.commit()
     if args.json:
-        write_atomic(args.json, b.to_json())
         print(f"\nrecord written to {args.json}")
-    write_archive_option(args, b)
+    if info is not None:
+        print(archive_message(info))
     print_warnings(b)  # last: an error while writing stays the only line on stderr
     return EXIT_OK
 
@@ -74,7 +82,7 @@ def add_validate(sub) -> None:
 
 
 def _cmd_validate(args) -> int:
-    from ..outputs import check_writable, write_atomic
+    from ..outputs import check_writable
     from ..references import run_all
     from ..text import validate_text
     if args.json:
@@ -82,6 +90,6 @@ def _cmd_validate(args) -> int:
     checks = run_all()
     print(validate_text(checks))
     if args.json:
-        write_atomic(args.json, json.dumps([c.to_dict() for c in checks], indent=2,
-                                           ensure_ascii=False) + "\n")
+        write_outputs((args.json, json.dumps([c.to_dict() for c in checks], indent=2,
+                                             ensure_ascii=False) + "\n"))
     return EXIT_OK if all(c.passed for c in checks) else EXIT_CHECK_FAILED

@@ -161,7 +161,9 @@ def analyse(d: np.ndarray, model: WhiteModel, level: float = 0.05) -> TypeA:
         raise ComputationError(f"at least 2 cycle differences are needed; got {n}")
     mean = float(d.mean())
     s = float(d.std(ddof=1))
-    if not s > 0:
+    # a scatter at the level of float rounding (differences equal to ~16 digits) is no scatter:
+    # its s, and the Allan ratio of its zero lag-1 variance, would be noise of the arithmetic
+    if not s > 16 * np.finfo(float).eps * float(np.max(np.abs(d))):
         raise ComputationError("all cycle differences are equal; their scatter is zero, so no "
                                "Type A uncertainty can be evaluated")
     u_white = s * math.sqrt(model.factor)
