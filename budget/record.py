@@ -31,7 +31,7 @@ from .result import SCHEMA, Budget
 from .schema import SchemaViolation, load_schema, path_text, validate
 
 __all__ = ["load_record", "record_from_text", "record_from_dict", "record_data",
-           "finite_number"]
+           "budget_from_data", "read_record_bytes", "finite_number"]
 
 def finite_number(v: Any) -> bool:
     """A finite JSON number (bool is not one; an integer too large for a float is not finite)."""
@@ -92,7 +92,9 @@ def record_data(text: str | bytes, *, file: str | None = "<record>") -> dict[str
     return data
 
 
-def _budget(data: dict[str, Any], file: str | None) -> Budget:
+def budget_from_data(data: dict[str, Any], file: str | None) -> Budget:
+    """The Budget of record data that :func:`record_data` has checked; anything
+    ``Budget.from_dict`` still refuses becomes a DataError naming ``file``."""
     try:
         return Budget.from_dict(data)
     except BudgetError as exc:
@@ -106,12 +108,12 @@ def _budget(data: dict[str, Any], file: str | None) -> Budget:
 def record_from_dict(data: Any, *, file: str | None = None) -> Budget:
     """Check parsed record data and turn it into a Budget; DataError names the field."""
     _check_record(data, file)
-    return _budget(data, file)
+    return budget_from_data(data, file)
 
 
 def record_from_text(text: str | bytes, *, file: str | None = "<record>") -> Budget:
     """Parse record text (or its UTF-8 bytes) into a Budget (see :func:`record_data`)."""
-    return _budget(record_data(text, file=file), file)
+    return budget_from_data(record_data(text, file=file), file)
 
 
 def load_record(path: str | Path) -> Budget:
@@ -122,11 +124,18 @@ def load_record(path: str | Path) -> Budget:
     DataError
         File missing or unreadable, or any problem :func:`record_data` finds.
     """
+    return record_from_text(read_record_bytes(path), file=str(path))
+
+
+def read_record_bytes(path: str | Path) -> bytes:
+    """The bytes of a record file; DataError (naming the file) if it is a folder, missing or
+    unreadable."""
     p, name = Path(path), str(path)
+    if p.is_dir():
+        raise DataError("is a folder, not a record file", file=name)
     if not p.is_file():
         raise DataError("record file not found", file=name)
     try:
-        raw = p.read_bytes()
+        return p.read_bytes()
     except OSError as exc:
         raise DataError(f"cannot be read: {exc.strerror}", file=name) from None
-    return record_from_text(raw, file=name)

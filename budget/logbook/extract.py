@@ -38,8 +38,8 @@ from pathlib import Path
 from typing import Any
 
 from ..compare import term_key
-from ..errors import BudgetError, DataError
-from ..record import record_data
+from ..errors import DataError
+from ..record import budget_from_data, record_data
 from ..result import Budget
 
 __all__ = ["PreparedRecord", "MeasurandRow", "CalibrationRow", "TermRow", "prepare",
@@ -240,17 +240,6 @@ def _operating_point(data: dict[str, Any], report: dict[str, Any]) -> str:
     return str(report.get("item_condition", ""))
 
 
-def _budget(data: dict[str, Any], file: str) -> Budget:
-    """The Budget of checked record data (what budget.record does after its checks)."""
-    try:
-        return Budget.from_dict(data)
-    except BudgetError as exc:
-        raise DataError(exc.message, file=file, field=exc.field) from None
-    except (KeyError, TypeError, ValueError, IndexError, AttributeError) as exc:
-        raise DataError(f"cannot be read: {type(exc).__name__}: {exc}", file=file,
-                        field="record") from None
-
-
 def prepare(raw: bytes, file: str, *, check_stated: bool = True) -> PreparedRecord:
     """Check a record file's bytes and extract what the book stores.
 
@@ -277,7 +266,7 @@ def prepare(raw: bytes, file: str, *, check_stated: bool = True) -> PreparedReco
                             field="sha256")
     data = record_data(raw, file=file)          # checks the record's shape
     _check_internal_digests(data, file)
-    b = _budget(data, file)
+    b = budget_from_data(data, file)
     run = data["run"]
     report = run.get("report") if isinstance(run.get("report"), dict) else {}
     chain = str(run.get("chain") or report.get("method") or "")

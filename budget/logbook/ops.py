@@ -15,7 +15,8 @@ from collections.abc import Sequence
 from datetime import UTC, datetime
 from pathlib import Path
 
-from ..errors import DataError, UsageError
+from ..errors import UsageError
+from ..record import read_record_bytes
 from .extract import PreparedRecord, prepare
 from .store import DEFAULT_WAIT_S, Logbook
 
@@ -24,16 +25,7 @@ __all__ = ["read_record_file", "add_files", "add_prepared", "export_book", "expo
 
 def read_record_file(path: str | Path) -> PreparedRecord:
     """Read and check one record file (see :func:`budget.logbook.extract.prepare`)."""
-    p, name = Path(path), str(path)
-    if p.is_dir():
-        raise DataError("is a folder, not a record file", file=name)
-    if not p.is_file():
-        raise DataError("record file not found", file=name)
-    try:
-        raw = p.read_bytes()
-    except OSError as exc:
-        raise DataError(f"cannot be read: {exc.strerror}", file=name) from None
-    return prepare(raw, name)
+    return prepare(read_record_bytes(path), str(path))
 
 
 def _now() -> str:
