@@ -6,7 +6,9 @@ signature over them), trusted (the signer's certificate is, or chains to, a give
 certificate) and that no later revision changed content — only form filling (e.g. a further
 signature) and validation data (ISO 32000-2 §12.8.2.2 "LTV" updates) may follow a signature.
 The embedded evidence (record, spec, input manifest) is read from the *signed* revision, not
-from whatever may have been appended later. Validation uses pyHanko's validation API with the
+from whatever may have been appended later. A later change of the document's metadata (its
+title, say) counts as content and fails; whatever was appended and accepted is listed
+(:mod:`budget.pdf_revisions`). Validation uses pyHanko's validation API with the
 given certificates as the only trust roots and no network access.
 """
 
@@ -20,6 +22,7 @@ from typing import Any
 
 from .errors import DataError
 from .pdf_evidence import ATTACHMENTS, attachments_of, open_pdf
+from .pdf_revisions import after_signing
 
 __all__ = ["verify_pdf", "VerifyResult", "SignatureCheck"]
 
@@ -69,6 +72,10 @@ class VerifyResult:
         The embedded evidence from the latest signature's signed revision (None if absent).
     problems : tuple of str
         Everything that failed, as sentences; empty when the document verifies.
+    accepted : tuple of str
+        What follows the latest signature and was accepted (revisions that only fill forms or
+        add validation data, bytes after the final ``%%EOF``), as sentences
+        (:mod:`budget.pdf_revisions`); empty when the file ends with the signed revision.
     """
 
     intact: bool
@@ -82,6 +89,7 @@ class VerifyResult:
     spec: bytes | None
     manifest: dict[str, Any] | None
     problems: tuple[str, ...] = field(default=())
+    accepted: tuple[str, ...] = field(default=())
 
     @property
     def ok(self) -> bool:
@@ -93,7 +101,8 @@ class VerifyResult:
                 "role": self.role, "signing_time": self.signing_time,
                 "signatures": [s.to_dict() for s in self.signatures],
                 "has_record": self.record is not None, "has_spec": self.spec is not None,
-                "manifest": self.manifest, "problems": list(self.problems)}
+                "manifest": self.manifest, "problems": list(self.problems),
+                "accepted": list(self.accepted)}
 
 
 def _load_trust(trust_pem) -> list:
@@ -236,6 +245,13 @@ def verify_pdf(pdf_bytes: bytes, trust_pem, *, file: str | None = None) -> Verif
             problems.append(f"the signed revision carries no {fname}")
         elif latest.get(fname) != signed[fname]:
             problems.append(f"{fname} was replaced after signing")
+    try:  # metadata changed after signing counts as content; report what was accepted
+        more, accepted = after_signing(reader, pdf_bytes, last.signed_revision,
+                                       str(last.field_name))
+    except Exception as exc:  # noqa: BLE001 - a damaged cross-reference history
+        more, accepted = [f"the revisions after signing cannot be read: "
+                          f"{type(exc).__name__}: {exc}"], []
+    problems += more
     record = signed.get(ATTACHMENTS["record"])
     spec = signed.get(ATTACHMENTS["spec"])
     manifest = None
@@ -261,7 +277,7 @@ def verify_pdf(pdf_bytes: bytes, trust_pem, *, file: str | None = None) -> Verif
                         covers_document=all(x.covers_document for x in checks),
                         signer=c.signer, role=c.role, signing_time=c.signing_time,
                         signatures=checks, record=record_text, spec=spec, manifest=manifest,
-                        problems=tuple(dict.fromkeys(problems)))
+                        problems=tuple(dict.fromkeys(problems)), accepted=tuple(accepted))
 
 
 def _replace(r: VerifyResult, **kw) -> VerifyResult:

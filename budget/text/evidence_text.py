@@ -65,6 +65,8 @@ def signatures_text(res: VerifyResult) -> str:
                    f"{s.signing_time or 'at an unknown time'} (signer's clock)")
         out.append(f"  intact: {_YES[s.intact]}   trusted: {_YES[s.trusted]}   "
                    f"changes after signing: {s.modification}")
+    for a in res.accepted:
+        out.append(f"accepted after signing: {a}")
     if res.manifest is not None:
         m = res.manifest
         out.append(f"evidence: record, spec {m.get('spec', {}).get('file', '?')} "
