@@ -14,6 +14,12 @@ A symbolic link is written through: its target is staged and replaced, the link 
 that cannot be renamed onto (``-`` for standard output, a FIFO, a character device) is not
 staged: its bytes are kept in memory and written by :func:`budget.outputs.write_atomic` as the
 last step of the commit.
+
+A change outside the file system that must go with the files (``run --logbook``: the record's
+row in the SQLite logbook) joins the set with :meth:`OutputSet.transaction`: its work is done
+and left uncommitted while staging; its commit runs after the renames (inside the held
+signals) and a failure there puts the renamed files back; any failure before it runs its
+rollback.
 """
 
 from __future__ import annotations
@@ -112,6 +118,7 @@ class OutputSet:
 
     def __init__(self) -> None:
         self._items: list[_Item] = []
+        self._hooks: list[_Hook] = []
         self._committed = False
 
     def __enter__(self) -> OutputSet:
@@ -150,13 +157,30 @@ class OutputSet:
         item.tmp = Path(tempfile.mkdtemp(prefix=temp_prefix(p), suffix=".part", dir=p.parent))
         return build(item.tmp)
 
+    def transaction(self, shown: str, commit, rollback) -> None:
+        """Join a prepared, not yet committed change (a database transaction) to the set.
+
+        ``commit()`` runs after every file is renamed into place; when it raises, the files
+        are put back and the error propagates. ``rollback()`` runs when the set is discarded
+        before that (a failure, a signal); it must not raise. Only one transaction can be made
+        all-or-nothing with the files (a second one could not be taken back once the first
+        has committed), so a second is refused. ``shown`` names the change in messages.
+        """
+        if self._hooks:
+            raise RuntimeError("an OutputSet takes at most one transaction")
+        self._hooks.append(_Hook(shown, commit, rollback))
+
     # ------------------------------------------------------------------ commit
     def commit(self) -> tuple[str, ...]:
-        """Rename every staged output onto its target; all or none. Returns the targets."""
+        """Rename every staged output onto its target, then commit the transaction (if
+        any); all or none. Returns the targets (and the transaction's name)."""
         with _signals_held():
             try:
                 for item in self._items:
                     self._commit_one(item)
+                for hook in self._hooks:  # after the renames: a failure here undoes them
+                    hook.done = True      # a COMMIT that raised has rolled back itself
+                    hook.commit()
                 for item in self._items:  # in place, last: these cannot be taken back
                     if item.data is not None:
                         write_atomic(item.shown, item.data)
@@ -169,11 +193,12 @@ class OutputSet:
                         item.backup = None
                 raise
             self._committed = True
-            _COMMITTED.extend(i.shown for i in self._items)
+            names = tuple(i.shown for i in self._items) + tuple(h.shown for h in self._hooks)
+            _COMMITTED.extend(names)
         for item in self._items:  # the old versions are no longer needed
             if item.backup is not None:
                 _remove(item.backup)
-        return tuple(i.shown for i in self._items)
+        return names
 
     def _commit_one(self, item: _Item) -> None:
         p = item.target
@@ -209,11 +234,24 @@ class OutputSet:
         self.discard()
 
     def discard(self) -> None:
-        """Remove every staged temporary (nothing under a final name is touched)."""
+        """Remove every staged temporary and roll the transaction back (nothing under a final
+        name is touched)."""
         for item in self._items:
             if item.tmp is not None:
                 _remove(item.tmp)
                 item.tmp = None
+        for hook in self._hooks:
+            if not hook.done:
+                hook.done = True
+                hook.rollback()
+
+
+@dataclass
+class _Hook:
+    shown: str
+    commit: object
+    rollback: object
+    done: bool = False
 
 
 def _remove(p: Path) -> None:

@@ -194,3 +194,82 @@ def test_report_with_pdf_stopped_at_first_middle_and_last_step(tmp_path, monkeyp
         code, err, _ = _run(case, monkeypatch, capsys, argv, k)
         assert code == 130, (k, err)
         assert _tree(case) == ["spec.toml"], (k, _tree(case))
+
+
+def _book_ids(book):
+    import sqlite3
+    con = sqlite3.connect(str(book))
+    try:
+        return [r[0] for r in con.execute("SELECT id FROM records ORDER BY id")]
+    finally:
+        con.close()
+
+
+@pytest.mark.parametrize("existing", [False, True], ids=["new-book", "existing-book"])
+def test_run_logbook_stopped_at_every_step_changes_neither_files_nor_book(
+        tmp_path, monkeypatch, capsys, existing):
+    # run --logbook: the record, the archive and the book's new row are one output set
+    argv = ["run", "spec.toml", "--json", "r.json", "--archive", "arch", "--logbook",
+            "--book", "b.sqlite"]
+    warm = tmp_path / "warm"
+    warm.mkdir()
+    (warm / "spec.toml").write_text(SPEC, encoding="utf-8")
+    assert _run(warm, monkeypatch, capsys, argv, None)[0] == 0
+    case = tmp_path / "case"
+    case.mkdir()
+    (case / "spec.toml").write_text(SPEC, encoding="utf-8")
+    if existing:   # a book holding another record (another seed: another digest)
+        (case / "other.toml").write_text(SPEC.replace("seed = 5", "seed = 6"), "utf-8")
+        monkeypatch.chdir(case)
+        assert main(["run", "other.toml", "--logbook", "--book", "b.sqlite"]) == 0
+        capsys.readouterr()
+        assert _book_ids(case / "b.sqlite") == [1]
+    before = _tree(case)
+    for k in range(1, 400):
+        code, err, calls = _run(case, monkeypatch, capsys, argv, k)
+        if code == 0 and calls < k:
+            break
+        assert code == 130, (k, err)
+        assert err.strip().splitlines() == ["budget: interrupted; no output written"], (k, err)
+        assert _tree(case) == before, (k, _tree(case))
+        if existing:
+            assert _book_ids(case / "b.sqlite") == [1], k
+    else:
+        pytest.fail("the command never completed")
+    assert k > 6
+    assert "r.json" in _tree(case) and _book_ids(case / "b.sqlite") == ([1, 2] if existing
+                                                                         else [1])
+
+
+def test_run_logbook_refused_commit_puts_the_files_back(tmp_path, monkeypatch, capsys):
+    # the book's COMMIT fails after the files were renamed (a full disk, say): the files
+    # are taken back and the book keeps what it had
+    from budget.logbook.store import Logbook
+    (tmp_path / "spec.toml").write_text(SPEC, encoding="utf-8")
+    monkeypatch.chdir(tmp_path)
+
+    def refuse(self):
+        self.rollback_pending()
+        raise OSError(28, "No space left on device", str(self.path))
+
+    monkeypatch.setattr(Logbook, "commit_pending", refuse)
+    code = main(["run", "spec.toml", "--json", "r.json", "--archive", "arch", "--logbook",
+                 "--book", "b.sqlite"])
+    err = capsys.readouterr().err
+    assert code == 2 and len(err.strip().splitlines()) == 1, err
+    assert _tree(tmp_path) == ["spec.toml"], _tree(tmp_path)
+
+
+def test_run_logbook_refused_record_writes_no_file(tmp_path, monkeypatch, capsys):
+    # the same record twice: the second run is refused by the book, and its --json and
+    # --archive are not written either
+    (tmp_path / "spec.toml").write_text(SPEC, encoding="utf-8")
+    monkeypatch.chdir(tmp_path)
+    assert main(["run", "spec.toml", "--logbook", "--book", "b.sqlite"]) == 0
+    capsys.readouterr()
+    before = _tree(tmp_path)
+    code = main(["run", "spec.toml", "--json", "r.json", "--archive", "arch", "--logbook",
+                 "--book", "b.sqlite"])
+    err = capsys.readouterr().err
+    assert code == 2 and "already in the book" in err and len(err.strip().splitlines()) == 1
+    assert _tree(tmp_path) == before and _book_ids(tmp_path / "b.sqlite") == [1]

@@ -190,10 +190,14 @@ def check_run_logbook(args):
     return path
 
 
-def add_run_record(args, budget, path) -> int:
-    """Add the record ``budget run`` just computed; returns its number in the book."""
-    from ..logbook import add_prepared, prepare
+def stage_run_record(args, budget, path, out) -> int:
+    """Add the record ``budget run`` just computed to the book as part of the output set
+    ``out`` (budget.staging.OutputSet): its row is committed with the files, after their
+    renames, or not at all. Returns its number in the book (valid once ``out`` commits)."""
+    from ..logbook import prepare, stage_add
     raw = budget.to_json().encode("utf-8")
     name = args.json or Path(args.spec).with_suffix(".json").name
     rec = prepare(raw, name, check_stated=False)
-    return add_prepared(path, [rec], wait_s=_wait(args), create_folder=True)[0]
+    ids, commit, rollback = stage_add(path, [rec], wait_s=_wait(args), create_folder=True)
+    out.transaction(f"the logbook {path} (record #{ids[0]})", commit, rollback)
+    return ids[0]

@@ -18,7 +18,7 @@ from .common import (
     trials_arg,
     write_outputs,
 )
-from .logbook import add_book_options, add_run_record, check_run_logbook
+from .logbook import add_book_options, check_run_logbook, stage_run_record
 
 
 def add_run(sub) -> None:
@@ -49,17 +49,17 @@ def _cmd_run(args) -> int:
     from ..staging import OutputSet
     from ..text import budget_text
     b = evaluate_spec(args)
-    if book is not None:
-        # into the book first: a refusal there (the same record again) leaves no file behind
-        rid = add_run_record(args, b, book)
     print(budget_text(b))
-    if book is not None:
-        print(f"\nrecord added to the logbook {book} as #{rid}")
-    with OutputSet() as out:  # the record and the archive: both or neither
+    # the record, the archive and the logbook's row: all or none
+    with OutputSet() as out:
         if args.json:
             out.file(args.json, b.to_json())
         info = stage_archive_option(args, b, out)
+        # last: the book stays locked for writing from here to the commit (milliseconds)
+        rid = None if book is None else stage_run_record(args, b, book, out)
         out.commit()
+    if rid is not None:
+        print(f"\nrecord added to the logbook {book} as #{rid}")
     if args.json:
         print(f"\nrecord written to {args.json}")
     if info is not None:

@@ -10,10 +10,10 @@ and the control rules that catch a chain whose reference moved.
 """
 
 from .extract import PreparedRecord, prepare
-from .ops import add_files, add_prepared, export_book, read_record_file
+from .ops import add_files, add_prepared, export_book, read_record_file, stage_add
 from .store import DEFAULT_WAIT_S, ENV_BOOK, Logbook, default_book_path, resolve_book
 from .trend import Trend, compute_trend
 
-__all__ = ["Logbook", "PreparedRecord", "prepare", "add_files", "add_prepared", "export_book",
+__all__ = ["Logbook", "PreparedRecord", "prepare", "add_files", "add_prepared", "stage_add", "export_book",
            "read_record_file", "compute_trend", "Trend", "resolve_book", "default_book_path",
            "DEFAULT_WAIT_S", "ENV_BOOK"]

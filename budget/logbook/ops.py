@@ -7,6 +7,7 @@ it into place, so an interrupted export leaves no half folder.
 
 from __future__ import annotations
 
+import contextlib
 import hashlib
 import os
 import shutil
@@ -20,7 +21,8 @@ from ..record import read_record_bytes
 from .extract import PreparedRecord, prepare
 from .store import DEFAULT_WAIT_S, Logbook
 
-__all__ = ["read_record_file", "add_files", "add_prepared", "export_book", "export_name"]
+__all__ = ["read_record_file", "add_files", "add_prepared", "stage_add", "export_book",
+           "export_name"]
 
 
 def read_record_file(path: str | Path) -> PreparedRecord:
@@ -51,6 +53,61 @@ def add_prepared(book: str | Path, records: Sequence[PreparedRecord], *,
             for leftover in (p, p.with_name(p.name + "-journal")):
                 leftover.unlink(missing_ok=True)
         raise
+
+
+def stage_add(book: str | Path, records: Sequence[PreparedRecord], *,
+              wait_s: float = DEFAULT_WAIT_S, create_folder: bool = False):
+    """Add checked records to the book without committing: the rows are inserted in an open
+    transaction, to be committed together with files (budget.staging.OutputSet.transaction).
+
+    Returns
+    -------
+    ids : list of int
+        The records' numbers in the book (once committed).
+    commit, rollback : callable
+        ``commit()`` makes the rows permanent (on failure it leaves the book as it was and
+        raises DataError); ``rollback()`` undoes them. Either closes the book. A book (and
+        folders) this call created are removed again by ``rollback()`` or a failed
+        ``commit()``, so a refused or interrupted first add leaves nothing behind.
+    """
+    p = Path(book)
+    existed = p.exists()
+    made: list[Path] = []              # folders made here, innermost first
+    if create_folder and not existed:
+        made = [d for d in (p.parent, *p.parent.parents) if not d.exists()]
+        p.parent.mkdir(parents=True, exist_ok=True)
+    lb = None
+
+    def forget() -> None:
+        if lb is not None:
+            lb.close()
+        if not existed:
+            for leftover in (p, p.with_name(p.name + "-journal")):
+                leftover.unlink(missing_ok=True)
+            for folder in made:
+                with contextlib.suppress(OSError):   # only if still empty
+                    folder.rmdir()
+
+    try:
+        lb = Logbook.open(p, write=True, create=True, wait_s=wait_s)
+        ids = lb.add_pending(records, added_utc=_now())
+    except BaseException:
+        forget()
+        raise
+
+    def commit() -> None:
+        try:
+            lb.commit_pending()
+        except BaseException:
+            forget()
+            raise
+        lb.close()
+
+    def rollback() -> None:
+        lb.rollback_pending()
+        forget()
+
+    return ids, commit, rollback
 
 
 def add_files(book: str | Path, files: Sequence[str | Path], *,

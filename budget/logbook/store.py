@@ -277,25 +277,38 @@ class Logbook:
         """
         if not self.writable:
             raise UsageError("the book was opened for reading", field="book")
+        return self._transaction(lambda con: _add_rows(con, records, added_utc))
 
-        def work(con: sqlite3.Connection) -> list[int]:
-            seen: dict[str, str] = {}
-            for r in records:
-                for col, digest in (("sha256", r.sha256), ("canonical_sha256",
-                                                             r.canonical_sha256)):
-                    row = con.execute(f"SELECT id FROM records WHERE {col} = ?",
-                                      (digest,)).fetchone()
-                    if row:
-                        raise DataError(f"already in the book as #{row[0]} (same "
-                                        f"{'digest' if col == 'sha256' else 'content'}); "
-                                        "nothing was added", file=r.file, field="sha256")
-                    if digest in seen:
-                        raise DataError(f"the same record as {seen[digest]}; nothing was "
-                                        "added", file=r.file, field="sha256")
-                    seen[digest] = r.file
-            return [_insert(con, r, added_utc) for r in records]
+    def add_pending(self, records: Sequence[PreparedRecord], *, added_utc: str) -> list[int]:
+        """Like :meth:`add`, but the transaction stays open (the book stays locked for
+        writing): finish it with :meth:`commit_pending` or :meth:`rollback_pending`. For a
+        change that must go together with files (``run --logbook``, budget.staging)."""
+        if not self.writable:
+            raise UsageError("the book was opened for reading", field="book")
+        try:
+            self._con.execute("BEGIN IMMEDIATE")
+        except sqlite3.Error as exc:
+            raise self._error(exc) from None
+        try:
+            return _add_rows(self._con, records, added_utc)
+        except sqlite3.Error as exc:
+            self._rollback()
+            raise self._error(exc) from None
+        except BaseException:
+            self._rollback()
+            raise
 
-        return self._transaction(work)
+    def commit_pending(self) -> None:
+        """COMMIT the transaction :meth:`add_pending` left open (rolled back if that fails)."""
+        try:
+            self._con.execute("COMMIT")
+        except sqlite3.Error as exc:
+            self._rollback()
+            raise self._error(exc) from None
+
+    def rollback_pending(self) -> None:
+        """Undo the transaction :meth:`add_pending` left open (never raises)."""
+        self._rollback()
 
     def _refill(self, con: sqlite3.Connection) -> None:
         """Recompute the columns and tables of schema 2 from the stored records."""
@@ -402,6 +415,24 @@ class Logbook:
         cals = tuple(self._query("SELECT record_id, input, kind, module, identifier, path, "
                                  "calibration_date FROM calibrations"))
         return Series(measurand, dated, len(rows) - len(dated), terms, cals)
+
+
+def _add_rows(con: sqlite3.Connection, records: Sequence[PreparedRecord],
+              added_utc: str) -> list[int]:
+    """Insert records in the open transaction; a duplicate (by digest) is refused."""
+    seen: dict[str, str] = {}
+    for r in records:
+        for col, digest in (("sha256", r.sha256), ("canonical_sha256", r.canonical_sha256)):
+            row = con.execute(f"SELECT id FROM records WHERE {col} = ?", (digest,)).fetchone()
+            if row:
+                raise DataError(f"already in the book as #{row[0]} (same "
+                                f"{'digest' if col == 'sha256' else 'content'}); "
+                                "nothing was added", file=r.file, field="sha256")
+            if digest in seen:
+                raise DataError(f"the same record as {seen[digest]}; nothing was "
+                                "added", file=r.file, field="sha256")
+            seen[digest] = r.file
+    return [_insert(con, r, added_utc) for r in records]
 
 
 def _insert(con: sqlite3.Connection, r: PreparedRecord, added_utc: str) -> int:
