@@ -243,12 +243,20 @@ def evaluate(spec: Spec, *, trials: int | None | str = "spec", seed: int | None 
     if seed is None:
         seed = int(np.random.SeedSequence().entropy % (2 ** 63))
     mcs: tuple[MonteCarlo, ...] = ()
+    if enabled and spec.sampling == "sobol" and isinstance(n_trials, int) and \
+            n_trials & (n_trials - 1):
+        raise SpecError("must be a power of two with sampling = \"sobol\" (the balance of Sobol "
+                        f"points holds for 2^k of them), e.g. {1 << (n_trials - 1).bit_length():,}"
+                        f"; got {n_trials:,}", file=spec.path if trials == "spec" else None,
+                        line=spec.line_of(("monte_carlo",), "trials") if trials == "spec" else None,
+                        field="monte_carlo.trials" if trials == "spec" else "--trials")
     if enabled and n_trials is None and spec.max_trials < adaptive_batch_size(
-            spec.coverage_probability):
+            spec.coverage_probability, spec.sampling):
         # the adaptive procedure runs whole batches: a cap below one batch would be overrun by
         # the first batch while the notes claimed the run stopped at the cap
         raise SpecError(f"must be at least one adaptive batch, M = max(⌈100/(1 − p)⌉, 10⁴) = "
-                        f"{adaptive_batch_size(spec.coverage_probability):,} trials (JCGM 101 "
+                        f"{adaptive_batch_size(spec.coverage_probability, spec.sampling):,} "
+                        "trials (JCGM 101 "
                         f"§7.9.4); got {spec.max_trials:,}", file=spec.path,
                         line=spec.line_of(("monte_carlo",), "max_trials"),
                         field="monte_carlo.max_trials")
@@ -258,7 +266,7 @@ def evaluate(spec: Spec, *, trials: int | None | str = "spec", seed: int | None 
                                significant_digits=spec.significant_digits,
                                max_trials=spec.max_trials,
                                t_for_finite_dof=spec.t_for_finite_dof,
-                               interval=spec.interval)
+                               interval=spec.interval, sampling=spec.sampling)
         try:
             mres = monte_carlo(model, qs, resolved.corr, settings, progress=progress,
                                intervals={m.name: (m.value - m.expanded_uncertainty,
@@ -319,6 +327,7 @@ def evaluate(spec: Spec, *, trials: int | None | str = "spec", seed: int | None 
         "coverage_factor_fixed": spec.coverage_factor,
         "significant_digits": spec.significant_digits,
         "t_for_finite_dof": spec.t_for_finite_dof,
+        "sampling": spec.sampling,
         "chain": spec.chain,
         "model": dict(spec.outputs),
         "constants": dict(model.constants),

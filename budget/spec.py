@@ -11,7 +11,8 @@ Stable sections and keys (see README "The budget spec"):
 ``[constants]``    ``name = number``
 ``[monte_carlo]``  trials (integer or "adaptive"), seed, interval ("symmetric" or "shortest"),
                    significant_digits (ndig, default 2), max_trials, enabled,
-                   t_for_finite_dof (default true: normal inputs with finite ν drawn from t_ν)
+                   t_for_finite_dof (default true: normal inputs with finite ν drawn from t_ν),
+                   sampling ("random", the default, or "sobol": randomized quasi-Monte Carlo)
 ``[inputs.NAME]``  a typed-in quantity, ``observations``, or ``module`` + ``file``
 ``[correlations]`` pairs = [["a", "b", r], ...], from_observations = [["V", "I", "phi"], ...]
 """
@@ -41,7 +42,7 @@ REPORT_KEYS = ("laboratory", "laboratory_address", "accreditation", "report_numb
                "issue_date", "receipt_date", "method", "procedure", "traceability", "conditions",
                "location", "remarks", "measurand", "item_condition", "adjustment")
 MC_KEYS = ("trials", "seed", "interval", "significant_digits", "max_trials", "enabled",
-           "t_for_finite_dof")
+           "t_for_finite_dof", "sampling")
 CORRELATION_KEYS = ("pairs", "from_observations")
 MAX_TRIALS = 100_000_000   # beyond this a run takes hours and gigabytes: certainly a mistake
 MIN_TRIALS = 1_000         # fewer cannot give a 95 % interval worth reporting (JCGM 101 §7.2)
@@ -91,6 +92,7 @@ class Spec:
     report: dict[str, str]
     t_for_finite_dof: bool = True
     chain: str | None = None
+    sampling: str = "random"      # "random" (pseudo-random, JCGM 101) or "sobol" (RQMC)
     lines: dict[tuple[str, ...], dict[str, int]] = field(default_factory=dict, repr=False)
 
     def line_of(self, section: tuple[str, ...], key: str = "") -> int | None:
@@ -273,6 +275,13 @@ def parse_spec(text: str, *, file: str = "<string>", folder: Path | None = None,
     if not isinstance(t_dof, bool):
         raise chk.error(("monte_carlo",), "t_for_finite_dof", f"must be true or false; got {shown(t_dof)}")
 
+    sampling = chk.choice(("monte_carlo",), mc, "sampling", ("random", "sobol"), "random")
+    if sampling == "sobol" and trials is not None and trials & (trials - 1):
+        raise chk.error(("monte_carlo",), "trials",
+                        "must be a power of two with sampling = \"sobol\" (the balance of "
+                        f"Sobol points holds for 2^k of them), e.g. {1 << (trials - 1).bit_length():,}; "
+                        f"got {trials:,}")
+
     inputs = data.get("inputs", {})
     if not inputs:
         raise SpecError("the spec has no inputs ([inputs.NAME] tables)", file=file,
@@ -304,7 +313,7 @@ def parse_spec(text: str, *, file: str = "<string>", folder: Path | None = None,
                 correlation_pairs=tuple(pairs), from_observations=tuple(groups), trials=trials,
                 seed=seed, interval=interval, significant_digits=ndig, max_trials=max_trials,
                 monte_carlo_enabled=enabled, report=report, t_for_finite_dof=t_dof, chain=chain,
-                lines=lines)
+                sampling=sampling, lines=lines)
 
 
 def check_trials(n: int, *, file: str | None = None, line: int | None = None,
