@@ -57,3 +57,32 @@ def test_en_against_the_mean_with_shared_term_and_unequal_u():
     assert pair.en == near(-1 / (2 * math.sqrt(0.8425)), rel=1e-6)
     assert e1.en == near(-1 / (2 * math.sqrt(0.8425)), rel=1e-6)
     assert e2.en == near(1 / (2 * math.sqrt(0.8425)), rel=1e-6)
+
+
+def test_en_against_the_mean_when_the_weights_are_not_the_gls_ones():
+    # With GLS weights (Va)_i = aᵀVa for every i (Va = V·V⁻¹1/(1ᵀV⁻¹1) = u²(x̄)·1), so the
+    # shortcut V_ii − aᵀVa equals V_ii − 2(Va)_i + aᵀVa and a test with GLS weights cannot tell
+    # them apart. Here both runs carry only the shared resistor term, with sensitivities 1 and 2
+    # (cr), so V = g gᵀ with g = (0.6, 1.2) is singular and the weights fall back to 1/u_i².
+    # Hand computation (JCGM 100 eq. (13) for a linear combination c of the results):
+    #   w = (1/0.36, 1/1.44), a = (0.8, 0.2); x̄ = 0.8·1 + 0.2·2 = 1.2
+    #   u(x̄) internal = (1/0.36 + 1/1.44)^(−1/2) = √0.288; with the shared term: a·g = 0.72
+    #   c = e_1 − a = (0.2, −0.2): var = (c·g)² = (0.12 − 0.24)² = 0.0144, u = 0.12
+    #   c = e_2 − a = (−0.8, 0.8): var = (−0.48 + 0.96)² = 0.2304, u = 0.48
+    #   (the shortcut would give 0.36 − 0.72² < 0 and 1.44 − 0.72² = 0.9216)
+    #   E_n = (x_i − x̄)/(2u): (−0.2)/(0.24) = −5/6 and 0.8/0.96 = 5/6
+    #   χ² from the diagonal: 0.2²/0.36 + 0.8²/1.44 = 5/9
+    h = digest_of("the same resistor history")
+    r1 = record_from_dict(record(1 * S, 0.0, 0.60 * S, cr=1, digest=h))
+    r2 = record_from_dict(record(2 * S, 0.0, 0.60 * S, cr=2, digest=h))
+    c = compare_runs([r1, r2], en_basis="2u")
+    assert any("singular" in n for n in c.notes), c.notes
+    assert c.mean.value == near(1.2 * S, rel=1e-6)
+    assert c.mean.internal_uncertainty == near(math.sqrt(0.288) * S, rel=1e-9)
+    assert c.mean.uncertainty_with_shared == near(0.72 * S, rel=1e-9)
+    assert c.mean.chi2 == near(5 / 9, rel=1e-6)
+    e1, e2 = c.en
+    assert e1.standard_uncertainty == near(0.12 * S, rel=1e-9)
+    assert e2.standard_uncertainty == near(0.48 * S, rel=1e-9)
+    assert e1.en == near(-5 / 6, rel=1e-6)
+    assert e2.en == near(5 / 6, rel=1e-6)
