@@ -5,6 +5,8 @@
 * ``cascade_parts_decimal``: the same formula's missed part Σ_(k≤n) (1 − e^(−X_k)), extra part
   Σ_(k>n) e^(−X_k) and deviation ⟨n⟩ − n, with 60-digit decimals (Python's decimal module), so
   that errors of 1e-13 keep all their digits.
+* ``escape_taus``: τ_k(V) = τ_k0 · exp(−b_k (V − V_ref)) (DOMAIN notes: escape times depend
+  exponentially on the gate voltage — common practice).
 * ``escape_mean``: mean number ejected within a hold time t for sequential escape with mean
   waiting times τ_k of the k-th escape, Σ_k P(T_1 + … + T_k ≤ t) from the hypoexponential
   distribution function, in 80-digit decimals; ``escape_simulated``: the same by direct
@@ -22,7 +24,8 @@ def staircase(v, slopes, centres):
     """⟨n⟩ at gate voltages ``v`` (V); ``slopes`` a_k (1/V), one per step or one for all."""
     v = np.asarray(v, dtype=float)
     slopes = np.broadcast_to(np.asarray(slopes, dtype=float), (len(centres),))
-    return sum(np.exp(-np.exp(-a * (v - c))) for a, c in zip(slopes, centres))
+    with np.errstate(over="ignore"):     # far below a step X_k = inf, so its term is 0 exactly
+        return sum(np.exp(-np.exp(-a * (v - c))) for a, c in zip(slopes, centres))
 
 
 def cascade_parts_decimal(v: float, slopes, centres, plateau: int) -> tuple[float, float, float]:
@@ -38,6 +41,17 @@ def cascade_parts_decimal(v: float, slopes, centres, plateau: int) -> tuple[floa
             else:
                 extra += (-x).exp()
         return float(missed), float(extra), float(extra - missed)
+
+
+def escape_taus(tau0, slopes, v, v_ref: float) -> np.ndarray:
+    """(points, N) mean waiting times τ_k(V) = τ_k0·exp(−b_k (V − V_ref)) (s).
+
+    tau0 : (N,) τ_k0 (s); slopes : b_k (1/V), one per electron or one for all; v : (points,) V.
+    """
+    tau0 = np.asarray(tau0, dtype=float)
+    b = np.broadcast_to(np.asarray(slopes, dtype=float), tau0.shape)
+    v = np.atleast_1d(np.asarray(v, dtype=float))
+    return tau0[None, :] * np.exp(-b[None, :] * (v[:, None] - v_ref))
 
 
 def escape_simulated(rng, tau_k, t, cycles: int) -> np.ndarray:
@@ -81,4 +95,5 @@ def escape_mean(tau_k, t) -> np.ndarray:
     return out
 
 
-__all__ = ["staircase", "cascade_parts_decimal", "escape_simulated", "escape_mean"]
+__all__ = ["staircase", "cascade_parts_decimal", "escape_taus", "escape_simulated",
+           "escape_mean"]

@@ -1,7 +1,9 @@
 """Decay-cascade model (Kashcheyevs & Kaestner, Phys. Rev. Lett. 104, 186805, 2010): formula,
 best operating point, fit against scipy.optimize.curve_fit, and recovery across seeds.
 
-Synthetic staircases are generated in the tests from known parameters with fixed seeds.
+Synthetic staircases are generated in the tests from known parameters with fixed seeds, by
+the formula written out here and in tests/pump_sim.py, never by ``CascadeModel`` itself (a wrong
+model formula must fail the recovery tests, not produce its own truth).
 """
 
 from __future__ import annotations
@@ -13,6 +15,8 @@ from pathlib import Path
 import numpy as np
 import pytest
 from numeric import near
+from pump_sim import cascade_parts_decimal
+from pump_sim import staircase as sim_staircase
 from scipy import stats
 from scipy.optimize import curve_fit
 
@@ -144,15 +148,17 @@ def test_recovery_and_coverage_across_seeds(tmp_path, shared):
     # Synthetic staircases with known parameters: parameters and δ_pump recovered within their
     # uncertainties. Stated tolerance: Σ z² over 60 seeds inside the 0.05 %–99.95 % quantiles of
     # χ²(60), and |z| ≤ 2 in at least 51 of 60 (expected 57.3; 51 is 4 binomial sd below).
-    m = CascadeModel(2, shared)
     truth = np.array([300.0, V1, V2]) if shared else np.array([300.0, V1, 260.0, V2])
     v = np.linspace(-0.64, -0.50, 160)
     v_op = -0.545
-    d_true = m.deviation(truth[None, :], {"gate_voltage": v_op}, 1)[0]
+    slopes = (300.0,) if shared else (300.0, 260.0)
+    # truth from the 60-digit evaluation of the published formula (tests/pump_sim.py)
+    d_true = cascade_parts_decimal(v_op, slopes, (V1, V2), 1)[2]
     z = []
     for seed in range(60):
         rng = np.random.default_rng(500 + seed)
-        y = m.predict(truth, v) + rng.normal(0, 1e-3, v.size)
+        y = sim_staircase(v, slopes, (V1, V2)) \
+            + rng.normal(0, 1e-3, v.size)
         f = write_scan(tmp_path / f"s{seed}.csv", v, y, np.full(v.size, 1e-3))
         a = analyse_data(f, model="decay-cascade", plateau=1, operating_point=v_op, steps=2,
                          shared_slope=shared, samples=4000, seed=seed)
@@ -170,9 +176,8 @@ def test_linear_and_sampled_uncertainty_both_reported(tmp_path):
     # coarse, noisy data the two differ there, and the note says so; near the step edge, where
     # δ is close to linear in the parameters over their uncertainty, they agree within 5 %.
     rng = np.random.default_rng(8)
-    m = CascadeModel(2, True)
     v = np.linspace(-0.64, -0.50, 40)
-    y = m.predict([300.0, V1, V2], v) + rng.normal(0, 2e-2, v.size)
+    y = sim_staircase(v, 300.0, (V1, V2)) + rng.normal(0, 2e-2, v.size)
     f = write_scan(tmp_path / "coarse.csv", v, y, np.full(v.size, 2e-2))
     deep = analyse_data(f, model="decay-cascade", plateau=1, operating_point=-0.545, steps=2)
     at_edge = analyse_data(f, model="decay-cascade", plateau=1, operating_point=-0.59, steps=2)

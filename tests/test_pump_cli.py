@@ -1,7 +1,8 @@
 """``budget pump fit``: report, fit-result file, figures, and one-line errors with exit code 2.
 
 Contract: DESIGN.md (exit codes 0/2, one line on stderr naming file and field, no output file on
-error). Data are synthetic, generated here with fixed seeds.
+error). Data are synthetic, generated here with fixed seeds by tests/pump_sim.py (the published
+formulas written out independently of the package's models).
 """
 
 from __future__ import annotations
@@ -9,16 +10,15 @@ from __future__ import annotations
 from pathlib import Path
 
 import numpy as np
+from pump_sim import escape_mean, escape_taus, staircase
 
 from budget.cli import main
-from budget.inputs.pump.cascade import CascadeModel
-from budget.inputs.pump.escape import EscapeModel
 
 
 def scan(tmp_path: Path) -> Path:
     rng = np.random.default_rng(61)
     v = np.linspace(-0.64, -0.50, 141)
-    y = CascadeModel(2).predict([300.0, -0.60, -0.5333], v) + rng.normal(0, 1e-4, v.size)
+    y = staircase(v, 300.0, (-0.60, -0.5333)) + rng.normal(0, 1e-4, v.size)
     f = tmp_path / "scan.csv"
     f.write_text("# synthetic\ngate_voltage,n_mean,n_std\n" + "".join(
         f"{float(a)!r},{float(b)!r},0.0001\n" for a, b in zip(v, y)))
@@ -29,7 +29,7 @@ def record(tmp_path: Path) -> Path:
     rng = np.random.default_rng(62)
     v = np.repeat(np.linspace(-0.34, -0.26, 3), 14)
     t = np.tile(np.geomspace(2e-9, 1.5e-5, 14), 3)
-    y = EscapeModel(2, "shared", -0.3).predict(np.r_[np.log([1e-8, 4e-7]), 30.0], v, t)
+    y = escape_mean(escape_taus([1e-8, 4e-7], 30.0, v, -0.3), t)
     y = y + rng.normal(0, 2e-3, y.size)
     f = tmp_path / "esc.csv"
     f.write_text("hold_time_s,gate_voltage,n_mean,n_std\n" + "".join(

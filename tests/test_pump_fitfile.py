@@ -2,7 +2,7 @@
 
 The raw-data path is the reference for the fit-file path (issue 4, deliverable 4): identical
 parameters, covariance, seed and sample count must give an identical term. Data are synthetic,
-generated here with fixed seeds.
+generated here with fixed seeds by tests/pump_sim.py (independent of the package's models).
 """
 
 from __future__ import annotations
@@ -12,18 +12,17 @@ from pathlib import Path
 
 import numpy as np
 import pytest
+from pump_sim import escape_mean, escape_taus, staircase
 
 from budget.errors import DataError, SpecError
 from budget.inputs import InputContext, run_module
-from budget.inputs.pump.cascade import CascadeModel
-from budget.inputs.pump.escape import EscapeModel
 from budget.inputs.pump.fitfile import fit_file_text, read_fit_file, record_from_dict
 
 
 def make_scan(folder: Path) -> Path:
     rng = np.random.default_rng(12)
     v = np.linspace(-0.64, -0.46, 181)
-    y = CascadeModel(3).predict([300.0, -0.60, -0.5333, -0.47], v) + rng.normal(0, 1e-4, v.size)
+    y = staircase(v, 300.0, (-0.60, -0.5333, -0.47)) + rng.normal(0, 1e-4, v.size)
     f = folder / "scan.csv"
     f.write_text("gate_voltage,n_mean,n_std\n" + "".join(
         f"{float(a)!r},{float(b)!r},0.0001\n" for a, b in zip(v, y)))
@@ -34,8 +33,7 @@ def make_record(folder: Path) -> Path:
     rng = np.random.default_rng(13)
     v = np.repeat(np.linspace(-0.34, -0.26, 3), 16)
     t = np.tile(np.geomspace(2e-9, 1.5e-5, 16), 3)
-    m = EscapeModel(3, "per-electron", -0.30)
-    y = m.predict(np.r_[np.log([5e-9, 6e-8, 1.2e-6]), 40.0, 30.0, 25.0], v, t)
+    y = escape_mean(escape_taus([5e-9, 6e-8, 1.2e-6], [40.0, 30.0, 25.0], v, -0.30), t)
     y = y + rng.normal(0, 3e-3, y.size)
     f = folder / "escape.csv"
     f.write_text("hold_time_s,gate_voltage,n_mean,n_std\n" + "".join(

@@ -14,11 +14,11 @@ from pathlib import Path
 import numpy as np
 import pytest
 from numeric import near
+from pump_sim import cascade_parts_decimal, escape_mean, escape_taus, staircase
 
 from budget.errors import DataError, SpecError
 from budget.inputs import InputContext, run_module
 from budget.inputs.pump import KEYS
-from budget.inputs.pump.cascade import CascadeModel
 
 TRUTH = [300.0, -0.60, -0.60 + 20 / 300.0, -0.47]   # a (1/V), V_1..V_3 (V); δ_2 = 20
 
@@ -26,7 +26,7 @@ TRUTH = [300.0, -0.60, -0.60 + 20 / 300.0, -0.47]   # a (1/V), V_1..V_3 (V); δ_
 def scan(folder: Path, v=None, name="scan.csv", noise=1e-4, steps=TRUTH) -> Path:
     rng = np.random.default_rng(31)
     v = np.linspace(-0.64, -0.46, 181) if v is None else v
-    y = CascadeModel(len(steps) - 1).predict(steps, v) + rng.normal(0, noise, v.size)
+    y = staircase(v, steps[0], steps[1:]) + rng.normal(0, noise, v.size)
     f = folder / name
     f.write_text("# synthetic\ngate_voltage,n_mean,n_std\n" + "".join(
         f"{float(a)!r},{float(b)!r},{noise!r}\n" for a, b in zip(v, y)))
@@ -52,8 +52,9 @@ def test_single_quantity_with_provenance(tmp_path):
     assert q.provenance.notes[0].startswith("model extrapolation, not a measurement")
     assert q.provenance.files[0].path == "scan.csv" and q.provenance.files[0].rows == "1-181"
     assert "seed 20100430" in q.provenance.method      # the module's default (pump.fit.DEFAULT_SEED)
-    # the truth (derived from TRUTH with the published formula) is covered at k = 3
-    d_true = CascadeModel(3).deviation(np.array([TRUTH]), {"gate_voltage": -0.545}, 1)[0]
+    # the truth (TRUTH through the published formula in 60-digit decimals, tests/pump_sim.py)
+    # is covered at k = 3
+    d_true = cascade_parts_decimal(-0.545, TRUTH[0], TRUTH[1:], 1)[2]
     assert abs(q.value - d_true) < 3 * q.standard_uncertainty
     json.dumps(r.diagnostics, allow_nan=False)
     for fig in r.diagnostics["figures"]:
@@ -78,19 +79,18 @@ def test_discrepancy_allowance_is_its_own_row(tmp_path):
 
 
 def test_escape_model_through_the_spec(tmp_path):
-    from budget.inputs.pump.escape import EscapeModel
     rng = np.random.default_rng(41)
     v = np.repeat(np.linspace(-0.34, -0.26, 3), 16)
     t = np.tile(np.geomspace(2e-9, 1.5e-5, 16), 3)
-    m = EscapeModel(3, "per-electron", -0.30)
-    truth = np.r_[np.log([5e-9, 6e-8, 1.2e-6]), 40.0, 30.0, 25.0]
-    y = m.predict(truth, v, t) + rng.normal(0, 3e-3, v.size)
+    tau0, b = [5e-9, 6e-8, 1.2e-6], [40.0, 30.0, 25.0]
+    y = escape_mean(escape_taus(tau0, b, v, -0.30), t) + rng.normal(0, 3e-3, v.size)
     (tmp_path / "esc.csv").write_text("hold_time_s,gate_voltage,n_mean,n_std\n" + "".join(
         f"{float(a)!r},{float(b)!r},{float(c)!r},0.003\n" for a, b, c in zip(t, v, y)))
     r = run_module(ctx(tmp_path, file="esc.csv", model="sequential-escape", plateau=2,
                        operating_point=-0.30, hold_time=3e-7))
     q = r.quantities[0]
-    d_true = m.deviation(truth[None, :], {"gate_voltage": -0.30, "hold_time": 3e-7}, 2)[0] / 2
+    # truth: relative deviation (⟨ejected⟩ − 2)/2 with the hypoexponential mean (pump_sim)
+    d_true = (escape_mean(escape_taus(tau0, b, [-0.30], -0.30), 3e-7)[0] - 2) / 2
     assert abs(q.value - d_true) < 3 * q.standard_uncertainty
     out = r.diagnostics["outcome"]
     assert out["p_exactly_n"] + out["p_n_minus_1"] + out["p_n_plus_1"] <= 1 + 1e-12

@@ -10,11 +10,10 @@ import tomllib
 from pathlib import Path
 
 import numpy as np
+from pump_sim import escape_mean, escape_taus, staircase
 from scipy import constants
 
 from budget.inputs.pump.analysis import add_thermal_check, analyse_data, analyse_fit_file
-from budget.inputs.pump.cascade import CascadeModel
-from budget.inputs.pump.escape import EscapeModel
 from budget.inputs.pump.figdata import figure_data
 from budget.inputs.pump.fitfile import record_from_dict
 from budget.report.figures import check_figure
@@ -24,7 +23,7 @@ from budget.text.pump_text import SECTIONS, fit_report
 def cascade_analysis(tmp_path: Path):
     rng = np.random.default_rng(51)
     v = np.linspace(-0.64, -0.50, 141)
-    y = CascadeModel(2).predict([300.0, -0.60, -0.5333], v) + rng.normal(0, 1e-4, v.size)
+    y = staircase(v, 300.0, (-0.60, -0.5333)) + rng.normal(0, 1e-4, v.size)
     f = tmp_path / "scan.csv"
     f.write_text("gate_voltage,n_mean\n" + "".join(f"{float(a)!r},{float(b)!r}\n"
                                                    for a, b in zip(v, y)))
@@ -35,7 +34,7 @@ def cascade_analysis(tmp_path: Path):
 def escape_analysis(tmp_path: Path):
     rng = np.random.default_rng(52)
     t = np.geomspace(2e-9, 1.5e-5, 30)
-    y = EscapeModel(2, "none").predict(np.log([1e-8, 2e-6]), None, t) + \
+    y = escape_mean(escape_taus([1e-8, 2e-6], 0.0, np.zeros(t.size), 0.0), t) + \
         rng.normal(0, 2e-3, t.size)
     f = tmp_path / "esc.csv"
     f.write_text("hold_time_s,n_mean\n" + "".join(f"{float(a)!r},{float(b)!r}\n"
