@@ -270,14 +270,16 @@ class Budget:
             out.append(f"<p><b>{esc(m.name)}</b> = {m.value:.10g} {esc(m.unit)}, "
                        f"u = {m.standard_uncertainty:.3g}, U = {m.expanded_uncertainty:.3g} "
                        f"(k = {m.coverage_factor:.3g}, p = {m.coverage_probability:g})</p>")
-            out.append("<table><tr><th>input</th><th>estimate</th><th>u</th><th>distribution"
-                       "</th><th>ν</th><th>c</th><th>|c·u|</th><th>share</th></tr>")
+            out.append("<table><tr><th>X<sub>i</sub></th><th>x<sub>i</sub></th>"
+                       "<th>u(x<sub>i</sub>)</th><th>probability distribution</th>"
+                       "<th>ν<sub>i</sub></th><th>c<sub>i</sub></th>"
+                       "<th>u<sub>i</sub>(y)</th><th>u<sub>i</sub>²/u<sub>c</sub>²</th></tr>")
             for t in m.terms:
                 nu = "∞" if math.isinf(t.dof) else f"{t.dof:.3g}"
                 out.append(f"<tr><td>{esc(t.name)}</td><td>{t.value:.8g}</td>"
                            f"<td>{t.standard_uncertainty:.3g}</td><td>{esc(t.distribution)}</td>"
                            f"<td>{nu}</td><td>{t.sensitivity:.4g}</td>"
-                           f"<td>{t.contribution:.3g}</td><td>{100 * t.variance_share:.1f} %</td>"
+                           f"<td>{math.copysign(t.contribution, t.sensitivity):.3g}</td><td>{100 * t.variance_share:.1f} %</td>"
                            "</tr>")
             out.append("</table>")
         return "\n".join(out)

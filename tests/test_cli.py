@@ -91,13 +91,15 @@ def test_run_prints_the_budget_table(spec, tmp_path, capsys):
     out = tmp_path / "out.json"
     assert main(["run", str(spec), "--json", str(out)]) == 0
     text = capsys.readouterr().out
-    # issue 2 item 7: input, estimate, standard uncertainty, distribution, ν, sensitivity
-    # coefficient, contribution, share of u_c²
-    for header in ("input", "estimate", "u(x)", "distribution", "ν", "c", "|c·u|",
-                   "share of u_c²"):
+    # EA-4/02 budget-table columns (quantity X_i, estimate x_i, standard uncertainty u(x_i),
+    # probability distribution, sensitivity coefficient c_i, contribution u_i(y)), with the
+    # type and ν_i beside u(x_i) and the share u_i²/u_c² drawn as a bar (issue 13)
+    for header in ("X_i", "x_i", "u(x_i)", "type", "ν_i", "distribution", "c_i",
+                   "u_i(Y) / V", "u_i²/u_c²(Y)"):
         assert header in text
+    assert "share of u_c²" not in text and "|c·u|" not in text
     for name in ("a", "b", "c"):
-        assert any(line.startswith(name + " ") for line in text.splitlines())
+        assert any(line.startswith("  " + name + " ") for line in text.splitlines())
     assert "rectangular" in text
     # By hand: u_c² = 0.3² + 0.4² + 2·0.5·0.3·0.4 + 1/12 = 0.37 + 0.08333 = 0.45333,
     # u_c = 0.6733 V → "0.67" (GUM §7.2.6: two significant digits); U = t_0.975(91)·u_c = 1.337

@@ -350,11 +350,11 @@ def test_module_figure_drawn(module_budget):
     assert hashlib.sha256(history.read_bytes()).hexdigest() in text
     ids = [a.get("id") for t, a in parsed.tags if t == "figure"]
     assert "figure-R-drift" in ids
-    # 1 share chart + 1 Monte Carlo histogram + 1 module figure
+    # 1 Monte Carlo histogram + 1 module figure (the shares are drawn in the budget rows)
     imgs = [a["src"] for t, a in parsed.tags if t == "img"]
-    assert len(imgs) == 3
+    assert len(imgs) == 2
     import base64
-    svg = base64.b64decode(imgs[2].split(",", 1)[1]).decode("utf-8")
+    svg = base64.b64decode(imgs[1].split(",", 1)[1]).decode("utf-8")
     # the module's axis label "... (10^-6)" is typeset with a superscript and keeps its ")"
     assert "(10⁻⁶)" in svg
 

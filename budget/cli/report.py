@@ -24,7 +24,7 @@ def add_report(sub) -> None:
     p = sub.add_parser(
         "report", help="write the uncertainty report or a certificate draft (PDF, HTML)",
         description="Render a budget as an A4 report (PDF with -o, HTML with --html): header, "
-                    "result statement, budget table, share chart, Monte Carlo histogram, input "
+                    "result statement, budget table (shares drawn in its rows), Monte Carlo histogram, input "
                     "details and figures, cautions, digests, signature block. --certificate "
                     "writes the calibration-certificate draft (ISO/IEC 17025:2017 7.8) instead, "
                     "watermarked DRAFT. Give SPEC to evaluate it now, or --record RESULT.json "

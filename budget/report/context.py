@@ -11,6 +11,7 @@ from __future__ import annotations
 import math
 from typing import Any
 
+from ..budget_rows import distribution_name, grouped_rows
 from ..errors import DataError
 from ..fmt import fmt_dof, fmt_num, fmt_share, fmt_u
 from ..result import Budget, Measurand
@@ -79,17 +80,24 @@ def _distribution_text(q) -> str:
     return f"{d.kind} on {bounds}"
 
 
-def _term_rows(m: Measurand) -> list[dict[str, str]]:
-    rows = []
-    for t in sorted(m.terms, key=lambda t: -t.variance_share):
-        rows.append({
-            "name": t.name, "estimate": value_u(t.value, t.standard_uncertainty),
-            "unit": "" if t.unit == "1" else t.unit, "u": sci(fmt_u(t.standard_uncertainty)),
-            "distribution": t.distribution, "dof": fmt_dof(t.dof), "type": t.evaluation,
-            "c": sci(fmt_num(t.sensitivity, 4)), "contribution": sci(fmt_u(t.contribution)),
-            "share": fmt_share(t.variance_share), "derivative": t.derivative,
-        })
-    return rows
+def _term_row(r) -> dict[str, Any]:
+    t = r.term
+    share = min(max(r.share, 0.0), 1.0)
+    return {
+        "name": t.name, "estimate": value_u(t.value, t.standard_uncertainty),
+        "unit": "" if t.unit == "1" else t.unit, "u": sci(fmt_u(t.standard_uncertainty)),
+        "distribution": distribution_name(t), "dof": fmt_dof(t.dof), "type": t.evaluation,
+        "c": sci(fmt_num(t.sensitivity, 4)),
+        "contribution": sci(("-" if r.contribution < 0 else "") + fmt_u(abs(r.contribution))),
+        "share": fmt_share(r.share), "bar_width": f"{max(100 * share, 1.5) if share > 0 else 0:.2f}",
+        "derivative": t.derivative,
+    }
+
+
+def _term_groups(b: Budget, m: Measurand) -> list[dict[str, Any]]:
+    """The budget rows of ``m`` grouped by origin (see :mod:`budget.budget_rows`)."""
+    return [{"heading": g.heading, "share": fmt_share(g.share),
+             "rows": [_term_row(r) for r in g.rows]} for g in grouped_rows(b, m)]
 
 
 def _mc_block(b: Budget, m: Measurand, *, draw: bool) -> dict[str, Any] | None:
@@ -142,10 +150,6 @@ def _measurand_block(b: Budget, m: Measurand, *, draw: bool) -> dict[str, Any]:
     stated = stated_result(b, m)
     if stated.method != "JCGM 100":
         rel = ""        # U/|y| is the linear U, not the stated interval's
-    share_fig = None
-    if draw and m.terms:
-        share_fig = figs.svg_data_uri(figs.share_figure([t.name for t in m.terms],
-                                                        [t.variance_share for t in m.terms]))
     second = ""
     if m.second_order_variance:
         second = (f"includes the GUM's second-order terms (JCGM 100 §5.1.2 note): "
@@ -159,7 +163,7 @@ def _measurand_block(b: Budget, m: Measurand, *, draw: bool) -> dict[str, Any]:
         "k": f"{m.coverage_factor:.2f}",
         "p": pct_of_k(fixed_k_probability(m)) if fixed else pct(m.coverage_probability),
         "dof": fmt_dof(m.effective_dof), "relative_U": rel,
-        "terms": _term_rows(m), "share_figure": share_fig, "second_order": second,
+        "groups": _term_groups(b, m), "second_order": second,
         "mc": _mc_block(b, m, draw=draw),
     }
 

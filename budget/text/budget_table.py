@@ -6,14 +6,41 @@ import math
 from typing import TYPE_CHECKING
 
 from ..fmt import fmt_dof, fmt_num, fmt_share, fmt_u, fmt_value
-from .tables import table
+from ..budget_rows import column_headings, distribution_name, grouped_rows, text_bar
+from .tables import grouped_table, unit_suffix
 
 if TYPE_CHECKING:  # pragma: no cover - annotations only
     from ..result import Budget
 
-__all__ = ["budget_text"]
+__all__ = ["budget_text", "budget_rows_text"]
 
-_HEADERS = ["input", "estimate", "u(x)", "distribution", "ν", "c", "|c·u|", "share of u_c²"]
+_BAR = 12          # cells of the share bar (one cell = 1/12 of u_c²)
+
+
+def budget_rows_text(b: Budget, m) -> str:
+    """The budget table of one measurand, rows grouped by origin (:mod:`budget.budget_rows`).
+
+    Columns: X_i, x_i (with its unit), u(x_i), type (A/B), ν_i, distribution, c_i, the
+    signed contribution u_i(y) = c_i·u(x_i) in the unit of y, and the share u_i²/u_c² as a
+    text bar of :data:`_BAR` cells with the percentage beside it.
+    """
+    h = column_headings(m.name, m.unit)
+    headers = [h["quantity"], h["estimate"], h["u"], h["type"], h["dof"], h["distribution"],
+               h["c"], h["contribution"], h["share"]]
+    groups = []
+    for g in grouped_rows(b, m):
+        rows = []
+        for r in g.rows:
+            t = r.term
+            rows.append([t.name, fmt_value(t.value, t.standard_uncertainty)
+                         + unit_suffix(t.unit),
+                         fmt_u(t.standard_uncertainty), t.evaluation, fmt_dof(t.dof),
+                         distribution_name(t), fmt_num(t.sensitivity, 4),
+                         fmt_u(abs(r.contribution)) if r.contribution >= 0
+                         else "-" + fmt_u(abs(r.contribution)),
+                         f"{text_bar(r.share, _BAR)} {fmt_share(r.share):>7}"])
+        groups.append((g.heading, rows))
+    return grouped_table(headers, groups, right={1, 2, 4, 6, 7})
 
 
 def budget_text(b: Budget) -> str:
@@ -27,24 +54,18 @@ def budget_text(b: Budget) -> str:
     Returns
     -------
     str
-        The title, then for each measurand its model, its terms by share of u_c² (largest
-        first), the estimate with u_c and ν_eff, the result with U and k, the second-order
-        contribution if any and the Monte Carlo comparison if it ran; then the run's notes.
-        Numbers are rounded by :mod:`budget.fmt` (two significant digits of uncertainties).
+        The title, then for each measurand its model, its budget table (rows grouped by
+        origin, see :func:`budget_rows_text`), the estimate with u_c and ν_eff, the result
+        with U and k, the second-order contribution if any and the Monte Carlo comparison
+        if it ran; then the run's notes. Numbers are rounded by :mod:`budget.fmt` (two
+        significant digits of uncertainties).
     """
     out = [b.title, "=" * len(b.title)]
     for m in b.measurands:
         unit = f" {m.unit}" if m.unit else ""   # unlike the estimate column, shows a unit "1"
         out.append("")
         out.append(f"{m.name} = {m.expression}")
-        rows = []
-        for t in sorted(m.terms, key=lambda t: -t.variance_share):
-            rows.append([t.name, fmt_value(t.value, t.standard_uncertainty)
-                         + (f" {t.unit}" if t.unit not in ("", "1") else ""),
-                         fmt_u(t.standard_uncertainty), t.distribution, fmt_dof(t.dof),
-                         fmt_num(t.sensitivity, 4), fmt_u(t.contribution),
-                         fmt_share(t.variance_share)])
-        out.append(table(_HEADERS, rows))
+        out.append(budget_rows_text(b, m))
         out.append("")
         p = m.coverage_probability
         out.append(f"  {m.name} = {fmt_value(m.value, m.standard_uncertainty)}{unit}, "

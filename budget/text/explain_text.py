@@ -5,6 +5,7 @@ from __future__ import annotations
 
 from typing import TYPE_CHECKING
 
+from ..budget_rows import column_headings, distribution_name, text_bar
 from ..fmt import fmt_dof, fmt_num, fmt_share, fmt_u, fmt_value
 from .tables import WIDTH, section, table
 from .tables import unit_suffix as _unit
@@ -29,8 +30,8 @@ def explain_overview_text(ov: Overview) -> str:
     Returns
     -------
     str
-        Per measurand a table of the terms (estimate, u, distribution, ν, c, |c·u|, share,
-        Type A/B and the source, cut to fit :data:`~budget.text.tables.WIDTH` columns), then
+        Per measurand a table of the terms (the budget table's columns: X_i, x_i, u(x_i),
+        type, ν_i, distribution, c_i, signed u_i(y), share u_i²/u_c² with a bar; then the source, cut to fit :data:`~budget.text.tables.WIDTH` columns), then
         the result line; then a hint how to ask about one term.
     """
     out = [ov.title, "=" * len(ov.title)]
@@ -40,19 +41,21 @@ def explain_overview_text(ov: Overview) -> str:
         rows, sources = [], []
         for r in mo.rows:
             t = r.term
+            signed = ("-" if t.sensitivity < 0 else "") + fmt_u(t.contribution)
             rows.append([t.name, fmt_value(t.value, t.standard_uncertainty) + _unit(t.unit),
-                         fmt_u(t.standard_uncertainty), t.distribution, fmt_dof(t.dof),
-                         fmt_num(t.sensitivity, 4), fmt_u(t.contribution),
-                         fmt_share(t.variance_share), t.evaluation])
+                         fmt_u(t.standard_uncertainty), t.evaluation, fmt_dof(t.dof),
+                         distribution_name(t), fmt_num(t.sensitivity, 4), signed,
+                         f"{text_bar(t.variance_share, 4)} {fmt_share(t.variance_share):>7}"])
             sources.append(r.source)
-        headers = ["input", "estimate", "u(x)", "distribution", "ν", "c", "|c·u|", "share",
-                   "type"]
+        h = column_headings(m.name, m.unit)
+        headers = [h["quantity"], h["estimate"], h["u"], h["type"], h["dof"],
+                   h["distribution"], h["c"], f"u_i({m.name})", h["share"]]
         # the source column gets what is left of the 100 columns (at least 12 characters)
         used = len(table(headers, rows).split("\n")[1])
         room = max(12, WIDTH - used - 2)
         for row, src in zip(rows, sources):
             row.append(src if len(src) <= room else src[:room - 1] + "…")
-        tab = table(headers + ["source"], rows, right={1, 2, 4, 5, 6, 7})
+        tab = table(headers + ["source"], rows, right={1, 2, 4, 6, 7})
         out += [ln.rstrip() for ln in tab.split("\n")]
         mu = _unit(m.unit)
         out.append(f"  {m.name} = {fmt_value(m.value, m.standard_uncertainty)}{mu}, "

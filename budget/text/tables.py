@@ -8,7 +8,7 @@ from __future__ import annotations
 
 import textwrap
 
-__all__ = ["LABEL", "WIDTH", "section", "table", "unit_suffix"]
+__all__ = ["LABEL", "WIDTH", "grouped_table", "section", "table", "unit_suffix"]
 
 LABEL = 20          # width of the label column of a fixed-section answer, in characters
 WIDTH = 100         # a fixed-section answer fits a 100-column terminal
@@ -42,6 +42,42 @@ def table(headers: list[str], rows: list[list[str]], right: set[int] | None = No
                          for i, (c, w) in enumerate(zip(cells, widths)))
     out = [line(headers), "  ".join("-" * w for w in widths)]
     out += [line(r) for r in rows]
+    return "\n".join(out)
+
+
+def grouped_table(headers: list[str], groups: list[tuple[str, list[list[str]]]],
+                  right: set[int] | None = None, indent: str = "  ") -> str:
+    """A :func:`table` whose rows come in groups, each under its own sub-heading line.
+
+    Parameters
+    ----------
+    headers : list of str
+        Column headings.
+    groups : list of (str, list of list of str)
+        ``(sub-heading, rows)``; the columns are as wide as the widest cell of any group.
+    right : set of int, optional
+        Right-aligned columns. Default: every column but the first.
+    indent : str
+        Put before every row (not the sub-headings), so the rows read as under them.
+        Default two spaces.
+
+    Returns
+    -------
+    str
+        Heading line, dashed rule, then per group its sub-heading and its indented rows.
+    """
+    right = right if right is not None else set(range(1, len(headers)))
+    rows = [r for _, rs in groups for r in rs]
+    widths = [max(len(h), *(len(r[i]) for r in rows)) if rows else len(h)
+              for i, h in enumerate(headers)]
+
+    def line(cells):
+        return "  ".join(c.rjust(w) if i in right else c.ljust(w)
+                         for i, (c, w) in enumerate(zip(cells, widths))).rstrip()
+    out = [indent + line(headers), indent + "  ".join("-" * w for w in widths)]
+    for heading, rs in groups:
+        out.append(heading)
+        out += [indent + line(r) for r in rs]
     return "\n".join(out)
 
 
