@@ -53,7 +53,7 @@ from dataclasses import dataclass
 from typing import Any
 
 import numpy as np
-from scipy import stats
+from scipy import special
 
 from .compare_basis import SharedTerm, TermBasis, cross_correlation, identity, term_bases
 from .errors import DataError, UsageError, did_you_mean
@@ -276,7 +276,7 @@ def _gls_mean(x: np.ndarray, v: np.ndarray, notes: list[str]
     u_int = big_w ** -0.5
     u_v = math.sqrt(max(float(a @ v @ a), 0.0))
     return MeanResult(xbar, u_int, u_int * rb, u_v, rb, chi2, dof,
-                      float(stats.chi2.sf(chi2, dof))), a
+                      float(special.chdtrc(dof, chi2))), a
 
 
 def compare_runs(records: Sequence[Budget], *, labels: Sequence[str] | None = None,

@@ -65,3 +65,12 @@ def test_import_budget_is_light(tmp_path):
     code = "import budget, budget.engine; assert budget.evaluate is budget.engine.evaluate"
     subprocess.run([sys.executable, "-c", code], cwd=tmp_path, check=True, timeout=60,
                    env={**os.environ, "PYTHONPATH": str(ROOT)})
+
+
+def test_compare_needs_no_scipy_stats(tmp_path):
+    # scipy.stats costs most of a second to import; the χ² and F tails come from scipy.special
+    code = ("import sys, budget.compare, budget.logbook.gls, budget.stats.regression, "
+            "budget.stats.typea, budget.cli.explain; print('scipy.stats' in sys.modules)")
+    out = subprocess.run([sys.executable, "-c", code], cwd=tmp_path, capture_output=True,
+                         text=True, env={**os.environ, "PYTHONPATH": str(ROOT)}, timeout=60)
+    assert out.stdout.strip() == "False", out.stderr

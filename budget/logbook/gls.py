@@ -24,7 +24,7 @@ import math
 from dataclasses import dataclass
 
 import numpy as np
-from scipy import stats
+from scipy import special
 
 __all__ = ["Sums", "MeanStats", "mean_stats", "cov_of_means", "running_means"]
 
@@ -115,7 +115,7 @@ def mean_stats(s: Sums) -> MeanStats:
     # clip the rounding noise of a perfect fit
     chi2 = max(xx - w * mean * mean, 0.0)
     dof = s.n - 1
-    p = float(stats.chi2.sf(chi2, dof)) if dof > 0 else None
+    p = float(special.chdtrc(dof, chi2)) if dof > 0 else None
     rb = math.sqrt(chi2 / dof) if dof > 0 else None
     return MeanStats(n=s.n, value=mean, standard_uncertainty=1.0 / math.sqrt(w), chi2=chi2,
                      dof=dof, p_value=p, birge_ratio=rb, g=tuple(float(x) for x in g),

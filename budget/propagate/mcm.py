@@ -44,7 +44,6 @@ from dataclasses import dataclass, field
 
 import numpy as np
 from scipy import special
-from scipy.stats import qmc
 
 from ..errors import ComputationError
 from ..model import Model
@@ -255,6 +254,8 @@ def monte_carlo(model: Model, quantities: Sequence[Quantity], corr: np.ndarray,
     if sobol and settings.trials is not None and not is_power_of_two(settings.trials):
         raise ComputationError(f"with sampling = \"sobol\" the number of trials must be a power "
                                f"of two; got {settings.trials:,}", field="monte_carlo.trials")
+    if sobol:
+        from scipy.stats import qmc    # scipy.stats costs most of a second: only when used
     if sobol and sampler.dim > qmc.Sobol.MAXDIM:
         raise ComputationError(f"sampling = \"sobol\" supports at most {qmc.Sobol.MAXDIM:,} "
                                f"uncertain inputs; this model has {sampler.dim:,} (use "

@@ -37,7 +37,7 @@ from dataclasses import dataclass
 from typing import Any
 
 import numpy as np
-from scipy import optimize, stats
+from scipy import optimize, special
 
 from ..errors import ComputationError
 from . import allan, autocorr
@@ -144,7 +144,7 @@ def _verdict(curve: allan.AllanCurve, model: WhiteModel, n: int, level: float) -
     ratio = float(avar_l / (avar1 / model_avar[0] * model_avar[1]))
     edf_l = float(allan.edf_white_fm(n, m_l))
     edf_1 = float(allan.edf_white_fm(n, 1))
-    p = float(stats.f.sf(ratio, edf_l, edf_1))
+    p = float(special.fdtrc(edf_l, edf_1, ratio))
     white = p >= level
     text = (f"Allan ratio at m = {m_l} cycles: R = {ratio:.3g} (white noise expects 1), "
             f"p = {p:.3g} against F({edf_l:.3g}, {edf_1:.3g}); "
