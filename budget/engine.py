@@ -16,6 +16,7 @@ from .inputs import InputContext, run_module
 from .inputs.direct import evaluate_direct, observations_of
 from .model import Model, build_model
 from .propagate import McmSettings, compare_lpu_mcm, monte_carlo, propagate_linear
+from .propagate.lpu import correlation_groups
 from .propagate.mcm import adaptive_batch_size
 from .quantity import Quantity
 from .result import Budget, Measurand, MonteCarlo, Term
@@ -25,6 +26,11 @@ from .warnings import Warning, unique, warn, with_input
 __all__ = ["evaluate", "resolve_inputs", "ResolvedInputs"]
 
 _MAX_DERIVATIVE_TEXT = 4000  # characters; longer derivatives are left out of the record
+# Writing out every ∂f/∂x costs (inputs used) × (nodes of the model): quadratic in the number of
+# inputs for a model that names each once. Above this many node visits the record leaves the
+# texts out (the sensitivities come from the exact forward-mode derivative either way) and
+# `budget explain` writes out the one asked for, on demand.
+_MAX_DERIVATIVE_WORK = 200_000
 
 
 class ResolvedInputs:
@@ -164,14 +170,21 @@ def _module_dof_groups(qs: list[Quantity], correlations) -> list[list[str]]:
 
 
 def _check_psd(corr: np.ndarray, names: list[str], spec: Spec) -> None:
-    if corr.shape[0] < 2:
-        return
-    w, v = np.linalg.eigh(corr)
-    if w[0] < -1e-9:
-        comp = np.abs(v[:, 0])
-        worst = [names[i] for i in np.argsort(comp)[::-1][:3] if comp[i] > 0.1]
+    # block by block (the connected groups of correlated inputs): a block-diagonal matrix is
+    # positive semi-definite when each block is, and 1000 uncorrelated inputs then cost no
+    # 1000 × 1000 eigendecomposition
+    worst_w, worst = 0.0, []
+    for comp in correlation_groups(corr):
+        if len(comp) < 2:
+            continue
+        w, v = np.linalg.eigh(corr[np.ix_(comp, comp)])
+        if w[0] < min(worst_w, -1e-9):
+            c = np.abs(v[:, 0])
+            worst_w = float(w[0])
+            worst = [names[comp[i]] for i in np.argsort(c)[::-1][:3] if c[i] > 0.1]
+    if worst_w < -1e-9:
         raise SpecError("the correlation matrix is not positive semi-definite (smallest "
-                        f"eigenvalue {w[0]:.3g}); the inconsistent coefficients involve "
+                        f"eigenvalue {worst_w:.3g}); the inconsistent coefficients involve "
                         f"{', '.join(repr(x) for x in worst)}", file=spec.path,
                         line=spec.line_of(("correlations",)), field="correlations")
 
@@ -215,6 +228,11 @@ def evaluate(spec: Spec, *, trials: int | None | str = "spec", seed: int | None 
     except BudgetError as exc:
         raise _at_spec(exc, spec) from None
     measurands = tuple(_measurand(spec, model, lin[o], qs) for o in model.outputs)
+    long = [m.name for m in measurands if m.terms and not any(t.derivative for t in m.terms)]
+    if long:
+        notes.append(f"{', '.join(long)}: the model is too large for every ∂f/∂x to be written "
+                     "out in the record (the sensitivity coefficients are the exact derivatives "
+                     "all the same); `budget explain` writes out the one asked for")
     # A first-order term that vanishes at the estimates (Y = X² or abs(X) at X = 0) drops an
     # uncertain input from u_c without a trace; say so rather than let u_c look exact.
     for m in measurands:
@@ -380,12 +398,13 @@ def _measurand(spec: Spec, model: Model, lr, qs: list[Quantity]) -> Measurand:
     used = ex.names(tree)
     by_name = {q.name: q for q in qs}
     terms = []
+    write_out = len(used) * ex.size(tree) <= _MAX_DERIVATIVE_WORK
     for i, name in enumerate(lr.names):
         if name not in used:
             continue
         q = by_name[name]
         try:
-            d = ex.to_text(ex.diff(tree, name))
+            d = ex.to_text(ex.diff(tree, name)) if write_out else ""
         except RecursionError:  # pragma: no cover - enormous models
             d = ""
         terms.append(Term(name=name, value=q.value, standard_uncertainty=q.standard_uncertainty,

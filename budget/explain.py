@@ -299,6 +299,28 @@ def _evaluate_text(text: str, env: Mapping[str, float]) -> float | None:
     return v if math.isfinite(v) else None
 
 
+def _derivative_on_demand(run: Mapping[str, Any], m: Measurand, t: Term,
+                          env: Mapping[str, float]) -> str:
+    """∂f/∂x written out from the record's model when the record left it out (a large model,
+    see budget/engine.py); "" unless it reproduces the recorded sensitivity at the estimates."""
+    chain = dict(_model_chain(run, m))
+    if not chain:
+        return ""
+    try:
+        trees = {k: ex.parse(v) for k, v in chain.items()}
+        tree = trees[m.name]
+        for _ in range(len(trees)):                  # inline earlier outputs, as the engine does
+            refs = ex.names(tree) & (set(trees) - {m.name})
+            if not refs:
+                break
+            tree = ex.substitute(tree, {r: trees[r] for r in refs})
+        text = ex.to_text(ex.diff(tree, t.name))
+    except (BudgetError, RecursionError):
+        return ""
+    value = _evaluate_text(text, env)
+    return text if value is not None and _rel(value, t.sensitivity) else ""
+
+
 def _answer(budget: Budget, m: Measurand, t: Term) -> TermAnswer:
     run = budget.run
     try:
@@ -308,8 +330,9 @@ def _answer(budget: Budget, m: Measurand, t: Term) -> TermAnswer:
     cautions = []
     env = {**{k: float(v) for k, v in run.get("constants", {}).items() if finite_number(v)},
            **{x.name: x.value for x in budget.inputs}}
-    dvalue = _evaluate_text(t.derivative, env)
-    if not t.derivative:
+    derivative = t.derivative or _derivative_on_demand(run, m, t, env)
+    dvalue = _evaluate_text(derivative, env)
+    if not derivative:
         cautions.append("the written-out derivative is not in the record (too long); the "
                         "sensitivity coefficient is the engine's exact derivative")
     elif dvalue is None:
@@ -347,7 +370,7 @@ def _answer(budget: Budget, m: Measurand, t: Term) -> TermAnswer:
         description=q.description if q is not None else "",
         distribution=q.distribution.to_dict() if q is not None else {"kind": t.distribution},
         distribution_reason=prov.distribution_reason if prov else "",
-        dof_reason=prov.dof_reason if prov else "", derivative=t.derivative,
+        dof_reason=prov.dof_reason if prov else "", derivative=derivative,
         derivative_value=dvalue, model=_model_chain(run, m), module_input=owner,
         module_kind=str(mod.get("module", "")), module_expression=expr,
         signed_contribution=t.sensitivity * t.standard_uncertainty,

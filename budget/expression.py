@@ -28,7 +28,7 @@ import numpy as np
 
 from .errors import ModelError
 
-__all__ = ["Node", "Num", "Var", "Bin", "Neg", "Call", "FUNCTIONS", "parse", "names", "diff",
+__all__ = ["Node", "Num", "Var", "Bin", "Neg", "Call", "FUNCTIONS", "parse", "names", "size", "diff",
            "substitute", "compile_node", "to_text", "MAX_LENGTH",
            "MAX_DEPTH"]
 
@@ -199,6 +199,21 @@ def names(node: Node) -> set[str]:
     if isinstance(node, (Neg, Call)):
         return names(node.a if isinstance(node, Neg) else node.arg)
     return set()
+
+
+def size(node: Node) -> int:
+    """Number of nodes in the tree (counted without recursion)."""
+    n, stack = 0, [node]
+    while stack:
+        x = stack.pop()
+        n += 1
+        if isinstance(x, Bin):
+            stack += (x.a, x.b)
+        elif isinstance(x, Neg):
+            stack.append(x.a)
+        elif isinstance(x, Call):
+            stack.append(x.arg)
+    return n
 
 
 def substitute(node: Node, mapping: Mapping[str, Node]) -> Node:
