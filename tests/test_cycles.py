@@ -269,7 +269,7 @@ def test_module_matches_pipeline_and_reports(tmp_path):
     assert len(q.provenance.files[0].sha256) == 64
     assert q.provenance.method and q.provenance.dof_reason and q.provenance.distribution_reason
     ids = {f["id"] for f in d["figures"]}
-    assert ids == {"cycles-differences", "cycles-allan"}
+    assert ids == {"cycles-differences", "cycles-allan", "cycles-settling"}
     for fig in d["figures"]:
         assert {"title", "xlabel", "ylabel", "xscale", "yscale", "series"} <= set(fig)
         for s in fig["series"]:
@@ -329,18 +329,22 @@ def test_settle_removes_the_transient(tmp_path):
 def test_pooled_files_and_window(tmp_path):
     rng = np.random.default_rng(12)
     parts = []
+    # the data-derived settle time is the floor here, max(2 intervals, 5 % of 20 s) = 2 s
+    # (budget/inputs/settling.py): the chain's τ = 0.25 s is over within one reading
     for name in ("a.csv", "b.csv"):
         t, y, on = synth(rng, 40)
         write_csv(tmp_path / name, t, y, on)
-        parts.append(pipeline(t, y, on)[2])
+        parts.append(pipeline(t, y, on, settle=2.0)[2])
     r = cycles.evaluate(ctx_for(tmp_path, files=["a.csv", "b.csv"]))
+    assert [d["settle_s"] for d in r.diagnostics["settling"]] == [2.0, 2.0]
     (q,) = r.quantities
     pooled = np.concatenate([p.d for p in parts])
     assert r.diagnostics["cycles_used"] == 80
     assert q.value == near(pooled.mean(), rel=1e-9)
     assert [f.path for f in q.provenance.files] == ["a.csv", "b.csv"]
     # window: only readings from 400 s on; segment starting at 400 s is the first one
-    w = cycles.evaluate(ctx_for(tmp_path, file="a.csv", start_s=400.0, stop_s=1200.0))
+    w = cycles.evaluate(ctx_for(tmp_path, file="a.csv", start_s=400.0, stop_s=1200.0,
+                                settle_s=SETTLE))
     assert w.quantities[0].provenance.files[0].rows.startswith("405-420")
     assert w.diagnostics["cycles_used"] == 19       # on segments 21, 23, ..., 57
     # the reading at 1200 s opens a segment of one reading that the settle cut empties: an

@@ -22,10 +22,18 @@ unit : str
     Unit of ``reading`` and of the result. Default ``"V"``.
 settle_s : float
     Readings closer than this to the first reading of their segment (the switch) are discarded,
-    s. Default: 20 % of the median segment length (switch to switch) of each file. The right
-    value comes from the measuring chain's settling time, which the module cannot know; a fixed
-    number of seconds could swallow a short segment, while a fraction scales with the cycling
-    the user chose and still keeps 80 % of the data. The value used is in the diagnostics.
+    s. Default: derived from the record (:mod:`budget.inputs.settling`): the shortest time
+    after which the fitted residual transient is below ``transient_fraction`` of the Type A
+    standard uncertainty and the early/late test sees none, at least max(2 sampling
+    intervals, 5 % of the median segment), at most half the median segment. The value used,
+    the step response, τ and the test are in the diagnostics (``settling``).
+settle_policy : str
+    ``"warn"`` (default): a given ``settle_s`` that leaves a transient the early/late test
+    detects gives the warning ``cycles.transient`` with a settle time that would remove it.
+    ``"refuse"``: that is an error (exit 2).
+transient_fraction : float
+    Residual transient allowed by the default settle time, as a fraction of the Type A
+    standard uncertainty (0 < fraction < 1). Default 0.1.
 tail_s : float
     Readings closer than this to the last reading of their segment are discarded, s. Default 0.
 start_s, stop_s : float
@@ -77,17 +85,18 @@ from ..quantity import ModuleResult, Provenance, Quantity
 from ..stats import onoff, typea
 from ..stats.allan import edf_white_fm
 from ..warnings import warn
+from . import settling
 from .context import InputContext
+from .cycles_figures import figure_allan, figure_differences
+from .cycles_settle import settling_findings
 from .onoff_table import OnOffTable, mask_ranges, read_onoff
 
 __all__ = ["KEYS", "evaluate"]
 
 KEYS = frozenset({"file", "files", "unit", "settle_s", "tail_s", "start_s", "stop_s",
                   "estimator", "rejection", "rejection_limit", "whiteness_level",
-                  "target_relative_uncertainty"})
+                  "target_relative_uncertainty", "settle_policy", "transient_fraction"})
 
-DEFAULT_SETTLE_FRACTION = 0.2
-MAX_POINTS = 400
 
 _METHOD_TEXT = {
     "white": "white-noise standard error of the mean of the cycle differences, exact for their "
@@ -116,6 +125,9 @@ def _options(ctx: InputContext) -> dict[str, Any]:
         "unit": ctx.option("unit", str, "V", check=lambda s: s.strip() != "", must="non-empty"),
         "settle_s": ctx.number("settle_s", None, nonnegative=True),
         "tail_s": ctx.number("tail_s", 0.0, nonnegative=True),
+        "settle_policy": ctx.choice("settle_policy", ("warn", "refuse"), "warn"),
+        "transient_fraction": ctx.option("transient_fraction", float, settling.DEFAULT_FRACTION,
+                                         check=lambda x: 0 < x < 1, must="between 0 and 1"),
         "start_s": ctx.number("start_s", -math.inf),
         "stop_s": ctx.number("stop_s", math.inf),
         "estimator": ctx.choice("estimator", tuple(onoff.ESTIMATORS), "linear"),
@@ -132,7 +144,18 @@ def _options(ctx: InputContext) -> dict[str, Any]:
     return o
 
 
-def _load(ctx: InputContext, path: Path, index: int, o: dict[str, Any]) -> _Record:
+@dataclass(frozen=True)
+class _Raw:
+    """One file read and windowed: its readings from index ``first_row`` on."""
+
+    table: OnOffTable
+    first_row: int
+    t: np.ndarray
+    y: np.ndarray
+    on: np.ndarray
+
+
+def _read(ctx: InputContext, path: Path, o: dict[str, Any]) -> _Raw:
     shown = ctx.display(path)
     table = read_onoff(path, shown)
     lo = int(np.searchsorted(table.time, o["start_s"], side="left"))
@@ -140,13 +163,20 @@ def _load(ctx: InputContext, path: Path, index: int, o: dict[str, Any]) -> _Reco
     if hi - lo < 2:
         raise DataError("fewer than 2 readings between start_s and stop_s", file=shown,
                         field="time_s")
-    t, y, on = table.time[lo:hi], table.reading[lo:hi], table.on[lo:hi]
-    settle, settle_default = o["settle_s"], o["settle_s"] is None
-    if settle_default:
-        starts = t[np.concatenate(([0], np.flatnonzero(on[1:] != on[:-1]) + 1))]
-        lengths = np.diff(starts)[1:]        # complete segments only (the first may be partial)
-        settle = DEFAULT_SETTLE_FRACTION * float(np.median(lengths)) if len(lengths) else 0.0
-    seg = onoff.segment(t, y, on, settle, o["tail_s"])
+    return _Raw(table, lo, table.time[lo:hi], table.reading[lo:hi], table.on[lo:hi])
+
+
+def _median_segment(raw: _Raw) -> float:
+    """Median length of the complete segments (switch to switch), s; NaN when none."""
+    starts = raw.t[np.concatenate(([0], np.flatnonzero(raw.on[1:] != raw.on[:-1]) + 1))]
+    lengths = np.diff(starts)[1:]        # complete segments only (the first may be partial)
+    return float(np.median(lengths)) if len(lengths) else math.nan
+
+
+def _build(raw: _Raw, index: int, settle: float, settle_default: bool,
+           o: dict[str, Any]) -> _Record:
+    table, lo, shown = raw.table, raw.first_row, raw.table.shown
+    seg = onoff.segment(raw.t, raw.y, raw.on, settle, o["tail_s"])
     usable = onoff.usable_on_segments(seg, o["estimator"])
     if len(usable) == 0:
         need = ("an off-on-off sequence" if o["estimator"] == "linear"
@@ -169,6 +199,49 @@ def _load(ctx: InputContext, path: Path, index: int, o: dict[str, Any]) -> _Reco
     return _Record(table, lo, seg, settle, settle_default, diff)
 
 
+def _u_white(records: list[_Record], o: dict[str, Any]) -> float:
+    """White-noise u of the pooled mean difference (NaN when it cannot be found)."""
+    pooled = onoff.stack([r.diff for r in records])
+    used = pooled.subset(_reject(pooled, o))
+    if used.n < 2:
+        return math.nan
+    model = onoff.white_model(used)
+    return float(np.std(used.d, ddof=1)) * math.sqrt(model.factor)
+
+
+def _settled_records(raws: list[_Raw], o: dict[str, Any]) -> tuple[list[_Record], list[dict]]:
+    """Records cut at the given or the data-derived settle time (budget.inputs.settling), and
+    per file the step response, its fit and the choice."""
+    assess = []
+    for raw in raws:
+        resp = settling.step_response(raw.t, raw.y, raw.on, o["tail_s"])
+        assess.append({"response": resp, "fit": settling.fit_exponential(resp) if resp else None,
+                       "choice": None})
+    if o["settle_s"] is not None:
+        return [_build(r, i, o["settle_s"], False, o) for i, r in enumerate(raws)], assess
+    settles = []
+    for raw in raws:
+        seg_s = _median_segment(raw)
+        dt = float(np.median(np.diff(raw.t)))
+        settles.append(settling.floor_settle(seg_s, dt) if math.isfinite(seg_s) else 0.0)
+    for _ in range(3):
+        records = [_build(r, i, settles[i], True, o) for i, r in enumerate(raws)]
+        u = _u_white(records, o)
+        if not math.isfinite(u) or u <= 0:
+            break
+        new = list(settles)
+        for i, (raw, a) in enumerate(zip(raws, assess)):
+            if a["response"] is not None:
+                a["choice"] = settling.choose_settle(raw.t, raw.y, raw.on, a["response"],
+                                                     a["fit"], u, settles[i], o["tail_s"],
+                                                     o["transient_fraction"])
+                new[i] = a["choice"]["settle_s"]
+        if new == settles:
+            return records, assess
+        settles = new
+    return [_build(r, i, settles[i], True, o) for i, r in enumerate(raws)], assess
+
+
 def _reject(diff: onoff.Differences, o: dict[str, Any]) -> np.ndarray:
     keep = np.ones(diff.n, dtype=bool)
     if o["rejection"] == "mad":
@@ -183,7 +256,8 @@ def evaluate(ctx: InputContext) -> ModuleResult:
     """Evaluate the ``cycles`` input (see the module docstring for options and method)."""
     o = _options(ctx)
     paths = ctx.files()
-    records = [_load(ctx, p, i, o) for i, p in enumerate(paths)]
+    raws = [_read(ctx, p, o) for p in paths]
+    records, assess = _settled_records(raws, o)
     pooled = onoff.stack([r.diff for r in records])
     keep = _reject(pooled, o)
     used = pooled.subset(keep)
@@ -228,10 +302,14 @@ def evaluate(ctx: InputContext) -> ModuleResult:
     diagnostics = _diagnostics(res, model, o, rec_diag, rejected, cycle_s, used_s, kept_s, unit)
     if o["target"] is not None:
         diagnostics["planning"] = typea.planning(res, model, o["target"], cycle_s, used_s)
-    diagnostics["figures"] = [_figure_differences(records, [f.path for f in files], pooled, keep, res,
-                                                  unit),
-                              _figure_allan(res, cycle_s, unit)]
-    return ModuleResult(quantities=(_quantity(ctx, res, o, records, files, rejected),),
+    names = [f.path for f in files]
+    settle_diag, settle_ws, settle_figs = settling_findings(ctx, raws, records, assess, names,
+                                                            res.u_white, o)
+    diagnostics["settling"] = settle_diag
+    diagnostics["figures"] = [figure_differences(records, names, pooled, keep, res, unit),
+                              figure_allan(res, cycle_s, unit), *settle_figs]
+    return ModuleResult(quantities=(_quantity(ctx, res, o, records, files, rejected,
+                                              settle_ws),),
                         diagnostics=diagnostics)
 
 
@@ -291,7 +369,7 @@ def _diagnostics(res: typea.TypeA, model: onoff.WhiteModel, o: dict[str, Any],
 
 
 def _quantity(ctx: InputContext, res: typea.TypeA, o: dict[str, Any], records: list[_Record],
-              files: list, rejected: list) -> Quantity:
+              files: list, rejected: list, settle_ws: list) -> Quantity:
     est = onoff.ESTIMATORS[o["estimator"]][1]
     method = (f"mean of {res.n} cycle differences ({est}); u by the {_METHOD_TEXT[res.method]}. "
               f"White-noise test: {res.verdict.text}.")
@@ -303,13 +381,8 @@ def _quantity(ctx: InputContext, res: typea.TypeA, o: dict[str, Any], records: l
     else:
         dof_reason = (f"ν = {res.dof:.4g}: Welch–Satterthwaite from the white part and the "
                       "flicker-noise edf of the Allan variance at the longest averaging used")
-    notes = []
-    ws = []
-    for r, f in zip(records, files):
-        if r.settle_default:
-            notes.append(f"{f.path}: settle_s not given; {r.settle:.4g} s used (20 % of "
-                         "the median segment length)")
-            ws.append(warn("cycles.default_settle", notes[-1], severity="note"))
+    notes = [w.message for w in settle_ws]
+    ws = list(settle_ws)
     if o["rejection"] != "none":
         notes.append(f"rejection rule '{o['rejection']}' at {o['rejection_limit']:g} robust "
                      f"standard deviations: {len(rejected)} cycle(s) rejected"
@@ -333,58 +406,3 @@ def _quantity(ctx: InputContext, res: typea.TypeA, o: dict[str, Any], records: l
                     description=o["description"] or "mean pump-on minus pump-off difference of "
                                                     "the reading, from the on/off record",
                     provenance=prov)
-
-
-def _binned(x: np.ndarray, y: np.ndarray, max_points: int) -> tuple[list, list, list | None]:
-    """At most ``max_points`` points: means of consecutive groups, with their standard error."""
-    if len(x) <= max_points:
-        return x.tolist(), y.tolist(), None
-    g = math.ceil(len(x) / max_points)
-    k = len(x) // g * g
-    xs, ys = x[:k].reshape(-1, g).mean(axis=1), y[:k].reshape(-1, g)
-    return xs.tolist(), ys.mean(axis=1).tolist(), (ys.std(axis=1, ddof=1) / math.sqrt(g)).tolist()
-
-
-def _figure_differences(records: list[_Record], names: list[str], pooled: onoff.Differences,
-                        keep: np.ndarray, res: typea.TypeA, unit: str) -> dict[str, Any]:
-    series = []
-    per = max(1, MAX_POINTS // len(records))
-    for i in range(len(records)):
-        sel = (pooled.record == i) & keep
-        x, y, err = _binned(pooled.t[sel] / 3600.0, pooled.d[sel], per)
-        label = names[i] if err is None else \
-            f"{names[i]} (means of {math.ceil(int(sel.sum()) / per)} cycles)"
-        s = {"label": label, "style": "points", "x": x, "y": y}
-        if err is not None:
-            s["yerr"] = err
-        series.append(s)
-    if (~keep).any():
-        series.append({"label": "rejected", "style": "points",
-                       "x": (pooled.t[~keep] / 3600.0)[:MAX_POINTS].tolist(),
-                       "y": pooled.d[~keep][:MAX_POINTS].tolist()})
-    span = [float(pooled.t.min() / 3600.0), float(pooled.t.max() / 3600.0)]
-    series.append({"label": "mean ± u", "style": "band", "x": span, "y": [res.mean] * 2,
-                   "y_low": [res.mean - res.u] * 2, "y_high": [res.mean + res.u] * 2})
-    return {"id": "cycles-differences", "title": "On − off difference of each cycle",
-            "xlabel": "time in record (h)", "ylabel": f"difference ({unit})",
-            "xscale": "linear", "yscale": "linear", "series": series}
-
-
-def _figure_allan(res: typea.TypeA, cycle_s: float, unit: str) -> dict[str, Any]:
-    tau = (res.curve.m * (cycle_s if math.isfinite(cycle_s) else 1.0)).astype(float)
-    edf = edf_white_fm(res.n, res.curve.m)
-    series = [{"label": "overlapping Allan deviation", "style": "points", "x": tau.tolist(),
-               "y": res.curve.deviation.tolist(),
-               "yerr": (res.curve.deviation / np.sqrt(2.0 * edf)).tolist()},
-              {"label": "white noise (expected)", "style": "line", "x": tau.tolist(),
-               "y": np.sqrt(res.avar_white).tolist()}]
-    if res.fit is not None and res.method == "allan-floor":
-        # avar_white = S²·A(m), so the fitted curve a·A(m) + b follows from it
-        fit = res.fit.a * res.avar_white / res.noise_density ** 2 + res.fit.b
-        series.append({"label": "white + floor fit", "style": "line", "x": tau.tolist(),
-                       "y": np.sqrt(fit).tolist()})
-    return {"id": "cycles-allan", "title": "Allan deviation of the cycle differences",
-            "xlabel": "averaging time τ (s)" if math.isfinite(cycle_s) else "cycles averaged",
-            "ylabel": f"Allan deviation ({unit})", "xscale": "log", "yscale": "log",
-            "series": series}
-

@@ -1,0 +1,434 @@
+"""Settling of the measuring chain after each pump switch, from the on/off record itself.
+
+Used by :mod:`budget.inputs.cycles`. Three pieces, all in the reading's unit and seconds:
+
+Mean step response
+    For every complete segment (not the first or last of a record, which the record's ends may
+    cut) the excess of each reading over the segment's *late level* (the mean of the readings
+    in its second half, ``tail_s`` excluded), indexed by the lag from the segment's first
+    reading (the switch) in sampling intervals. Averaged over the segments that follow an
+    off→on switch and, separately, over those that follow an on→off switch, with the standard
+    error of each mean (scatter over segments / √count). A linear drift of the offset adds the
+    same slope to both directions, a transient of the chain adds opposite excesses, so the
+    *antisymmetric part* R(t) = (R_off→on(t) − R_on→off(t))/2 is the transient with the drift
+    removed — exactly what biases a cycle difference.
+
+Single-exponential fit
+    R(t) = A·exp(−t/τ) + c by weighted least squares (:func:`scipy.optimize.curve_fit`,
+    ``absolute_sigma``: the weights are the standard errors). The fit's status is ``"fits"``
+    (χ² consistent with its ν at the 0.1 % level), ``"poor"`` (a single exponential does not
+    describe it: χ² too large), ``"fast"`` (τ ran to its lower bound, a twentieth of the
+    sampling interval: the transient is over within about one reading), ``"failed"`` (no
+    convergence, τ at its upper bound of ten segments, or no covariance) or ``"none"``
+    (|A| < 3 u(A): no transient above the noise of the mean response).
+
+Early-half versus late-half test
+    For each complete segment whose kept readings (after ``settle_s`` and ``tail_s``) number at
+    least 4, e = mean(first half of the kept readings) − mean(second half). A residual transient
+    makes e of opposite sign after off→on and on→off switches; a linear drift gives both the
+    same e. The statistic is Welch's t of e(on segments) against e(off segments)
+    (:func:`scipy.stats.ttest_ind`, ``equal_var=False``), two-sided, at level
+    :data:`TRANSIENT_LEVEL`. When the residual sits in the early half, the difference of the
+    two mean e's is twice the bias it leaves in a cycle difference.
+
+Default settle time
+-------------------
+The smallest settle time s on the sampling grid, not below the floor, for which the residual
+transient the fit predicts in a cycle difference, 2·|A|·mean(exp(−t/τ)) over the kept lags of a
+median segment (|A| and τ each taken two standard uncertainties towards the larger bias), is at
+most ``fraction`` (default :data:`DEFAULT_FRACTION` = 0.1) of the Type A standard uncertainty
+of the result; the latter is the white-noise u found at a provisional settle time (first the
+floor, then the last choice: :mod:`budget.inputs.cycles` repeats the choice until it no longer
+changes, at most three times, because a large transient also inflates the scatter), scaled as
+1/√(kept readings). A bias of 0.1·u changes the combined u by 0.5 % when added in quadrature,
+so it is negligible in the GUM sense. Then the early/late test is run at s; while it detects
+a transient, s grows by 5 % of the median segment (the test also sees a tail that is not a
+single exponential). s never exceeds the cap, half the median segment.
+
+Floor
+    max(2 sampling intervals, 5 % of the median segment length). Two intervals discard the
+    reading that straddles the switch and the next; 5 % guards against a transient too small
+    or too fast to be seen in the mean response yet not zero, at a cost of 5 % of the data.
+    Used alone when no transient is detected.
+"""
+
+from __future__ import annotations
+
+import math
+import warnings as pywarnings
+from dataclasses import dataclass
+from typing import Any
+
+import numpy as np
+
+from ..stats import onoff
+
+__all__ = ["TRANSIENT_LEVEL", "DEFAULT_FRACTION", "FLOOR_INTERVALS", "FLOOR_FRACTION",
+           "CAP_FRACTION", "StepResponse", "ExpFit", "HalfTest", "step_response", "fit_exponential",
+           "half_test", "predicted_bias", "floor_settle", "choose_settle"]
+
+#: Two-sided level of the early/late test. Stricter than the whiteness test's 5 %: a false
+#: alarm warns (or, with ``settle_policy = "refuse"``, stops the run), so about one clean
+#: record in a hundred is flagged.
+TRANSIENT_LEVEL = 0.01
+#: Residual transient allowed in the default settle time, as a fraction of the Type A u.
+DEFAULT_FRACTION = 0.1
+FLOOR_INTERVALS = 2
+FLOOR_FRACTION = 0.05
+CAP_FRACTION = 0.5
+_FIT_LEVEL = 1e-3          # χ² p-value below which a single exponential "does not fit"
+MAX_POINTS = 400
+
+
+@dataclass(frozen=True)
+class ExpFit:
+    """R(t) = A·exp(−t/τ) + c fitted to the antisymmetric step response (reading unit, s)."""
+
+    status: str
+    text: str
+    amplitude: float = math.nan
+    amplitude_u: float = math.nan
+    tau_s: float = math.nan
+    tau_u: float = math.nan
+    offset: float = math.nan
+    chi2: float = math.nan
+    dof: int = 0
+
+    @property
+    def usable(self) -> bool:
+        return self.status in ("fits", "poor")
+
+    def to_dict(self) -> dict[str, Any]:
+        def num(x: float) -> float | None:
+            return float(x) if math.isfinite(x) else None
+        return {"model": "A·exp(−t/τ) + c", "status": self.status, "text": self.text,
+                "amplitude": num(self.amplitude), "amplitude_u": num(self.amplitude_u),
+                "tau_s": num(self.tau_s), "tau_u": num(self.tau_u), "offset": num(self.offset),
+                "chi2": num(self.chi2), "dof": self.dof}
+
+
+@dataclass(frozen=True)
+class StepResponse:
+    """Mean excess over the late level after each kind of switch, by lag (see module doc)."""
+
+    lag_s: np.ndarray
+    off_on: np.ndarray
+    off_on_se: np.ndarray
+    on_off: np.ndarray
+    on_off_se: np.ndarray
+    segments_off_on: int
+    segments_on_off: int
+    segment_s: float
+    dt: float
+
+    @property
+    def anti(self) -> np.ndarray:
+        return (self.off_on - self.on_off) / 2.0
+
+    @property
+    def anti_se(self) -> np.ndarray:
+        return np.hypot(self.off_on_se, self.on_off_se) / 2.0
+
+    def to_dict(self) -> dict[str, Any]:
+        sel = _thin(len(self.lag_s))
+        return {"lag_s": self.lag_s[sel].tolist(),
+                "off_to_on": {"mean": self.off_on[sel].tolist(), "se": self.off_on_se[sel].tolist(),
+                              "segments": self.segments_off_on},
+                "on_to_off": {"mean": self.on_off[sel].tolist(), "se": self.on_off_se[sel].tolist(),
+                              "segments": self.segments_on_off},
+                "reference": "mean of the second half of each segment",
+                "median_segment_s": self.segment_s, "sampling_interval_s": self.dt}
+
+
+@dataclass(frozen=True)
+class HalfTest:
+    """Early-half minus late-half test of the kept readings (see module docstring)."""
+
+    settle_s: float
+    segments: int
+    difference: float        # mean e(on) − mean e(off), reading unit
+    difference_u: float
+    statistic: float         # Welch t
+    dof: float
+    p_value: float
+    level: float
+
+    @property
+    def testable(self) -> bool:
+        return math.isfinite(self.p_value)
+
+    @property
+    def detected(self) -> bool:
+        return self.testable and self.p_value < self.level
+
+    @property
+    def bias(self) -> float:
+        """Residual bias of a cycle difference it suggests (residual in the early half)."""
+        return self.difference / 2.0
+
+    def to_dict(self) -> dict[str, Any]:
+        def num(x: float) -> float | None:
+            return float(x) if math.isfinite(x) else None
+        return {"test": "Welch t of e = mean(early half) − mean(late half) of the kept readings, "
+                        "segments after off→on against segments after on→off, two-sided",
+                "settle_s": self.settle_s, "segments": self.segments,
+                "difference": num(self.difference), "difference_u": num(self.difference_u),
+                "statistic": num(self.statistic), "dof": num(self.dof),
+                "p_value": num(self.p_value), "level": self.level, "detected": self.detected,
+                "bias_estimate": num(self.bias)}
+
+
+def p_text(p: float) -> str:
+    """A p-value for a message: ``p = 0.013``, ``p < 1e-15``."""
+    return "p < 1e-15" if p < 1e-15 else f"p = {p:.2g}"
+
+
+def _thin(n: int) -> slice:
+    return slice(None, None, max(1, math.ceil(n / MAX_POINTS)))
+
+
+def _complete(seg: onoff.Segments) -> np.ndarray:
+    """Per reading: in a segment that is neither the first nor the last of the record."""
+    return (seg.seg_of > 0) & (seg.seg_of < seg.count - 1)
+
+
+def step_response(time: np.ndarray, reading: np.ndarray, on: np.ndarray,
+                  tail_s: float = 0.0) -> StepResponse | None:
+    """Mean step response of one record; None when it has fewer than 2 complete segments of
+    each kind."""
+    seg = onoff.segment(time, reading, on, 0.0, tail_s)
+    if seg.count < 3:
+        return None
+    dt = seg.dt
+    lengths = np.diff(seg.t_first)[1:]            # complete segments: 1 .. count − 2
+    seg_s = float(np.median(lengths))
+    n_lag = max(1, int(round(seg_s / dt)))
+    rel = time - seg.t_first[seg.seg_of]
+    length_of = np.concatenate((np.diff(seg.t_first), [np.inf]))[seg.seg_of]
+    t_last = time[seg.stop - 1][seg.seg_of]
+    late = (rel >= length_of / 2.0) & ((t_last - time) >= tail_s - 1e-9)
+    cnt = np.bincount(seg.seg_of, weights=late, minlength=seg.count)
+    ref = float(reading[0])
+    with np.errstate(invalid="ignore", divide="ignore"):
+        level = np.bincount(seg.seg_of, weights=np.where(late, reading - ref, 0.0),
+                            minlength=seg.count) / cnt + ref
+    lag = np.rint(rel / dt).astype(np.int64)
+    use = _complete(seg) & seg.keep & (lag < n_lag) & (cnt[seg.seg_of] > 0)
+    excess = reading - level[seg.seg_of]
+    out = {}
+    counts = {}
+    for name, state in (("off_on", True), ("on_off", False)):
+        m = use & (seg.on[seg.seg_of] == state)
+        counts[name] = int(len(np.unique(seg.seg_of[m])))
+        k = np.bincount(lag[m], minlength=n_lag)[:n_lag].astype(float)
+        s1 = np.bincount(lag[m], weights=excess[m], minlength=n_lag)[:n_lag]
+        with np.errstate(invalid="ignore", divide="ignore"):
+            mean = s1 / k
+            dev = excess[m] - mean[lag[m]]
+            var = np.bincount(lag[m], weights=dev * dev, minlength=n_lag)[:n_lag] / (k - 1)
+            se = np.sqrt(var / k)
+        bad = k < 2
+        mean[bad], se[bad] = np.nan, np.nan
+        out[name] = (mean, se)
+    if counts["off_on"] < 2 or counts["on_off"] < 2:
+        return None
+    good = np.isfinite(out["off_on"][0]) & np.isfinite(out["on_off"][0])
+    lags = np.arange(n_lag)[good]
+    return StepResponse(lag_s=lags * dt, off_on=out["off_on"][0][good],
+                        off_on_se=out["off_on"][1][good], on_off=out["on_off"][0][good],
+                        on_off_se=out["on_off"][1][good], segments_off_on=counts["off_on"],
+                        segments_on_off=counts["on_off"], segment_s=seg_s, dt=dt)
+
+
+def fit_exponential(resp: StepResponse) -> ExpFit:
+    """Fit A·exp(−t/τ) + c to the antisymmetric step response (module docstring)."""
+    from scipy import optimize, stats
+
+    t, r, se = resp.lag_s, resp.anti, resp.anti_se
+    if len(t) < 5:
+        return ExpFit("failed", f"only {len(t)} lags in a segment; no fit")
+    positive = se[se > 0]
+    floor = float(np.min(positive)) if len(positive) else max(float(np.max(np.abs(r))), 1.0) * 1e-15
+    sigma = np.where(se > 0, se, floor)
+    c0 = float(np.mean(r[len(r) // 2:]))
+    a0 = float(r[0] - c0)
+    below = np.flatnonzero(np.abs(r - c0) < abs(a0) / math.e)
+    tau0 = max(float(t[below[0]]) if len(below) else resp.segment_s / 4, resp.dt / 2)
+    lo, hi = resp.dt / 20.0, 10.0 * resp.segment_s
+
+    def f(x, a, tau, c):
+        return a * np.exp(-x / tau) + c
+
+    try:
+        with pywarnings.catch_warnings():
+            pywarnings.simplefilter("error", optimize.OptimizeWarning)
+            pywarnings.simplefilter("ignore", RuntimeWarning)
+            p, cov = optimize.curve_fit(f, t, r, p0=(a0, min(max(tau0, lo * 2), hi / 2), c0),
+                                        sigma=sigma, absolute_sigma=True,
+                                        bounds=([-np.inf, lo, -np.inf], [np.inf, hi, np.inf]),
+                                        maxfev=4000)
+    except (RuntimeError, ValueError, optimize.OptimizeWarning) as exc:
+        return ExpFit("failed", f"the single-exponential fit did not converge ({exc})")
+    a, tau, c = (float(v) for v in p)
+    ua, ut = (float(math.sqrt(v)) if v >= 0 else math.nan for v in np.diag(cov)[:2])
+    chi2 = float(np.sum(((r - f(t, *p)) / sigma) ** 2))
+    dof = len(t) - 3
+    base = dict(amplitude=a, amplitude_u=ua, tau_s=tau, tau_u=ut, offset=c, chi2=chi2, dof=dof)
+    if tau <= lo * 1.001:
+        return ExpFit("fast", f"the transient is over within about one sampling interval "
+                              f"({resp.dt:g} s): τ ran to the fit's lower bound", **base)
+    if not (math.isfinite(ua) and math.isfinite(ut)) or tau >= hi * 0.999:
+        return ExpFit("failed", f"the fit ran to a bound (τ = {tau:.3g} s) or its covariance "
+                                "is undefined: no single time constant found", **base)
+    if not abs(a) >= 3.0 * ua:
+        return ExpFit("none", f"no transient above the noise of the mean step response "
+                              f"(|A| = {abs(a):.3g} < 3 u(A) = {3 * ua:.3g})", **base)
+    p_chi = float(stats.chi2.sf(chi2, dof)) if dof > 0 else math.nan
+    if dof > 0 and p_chi < _FIT_LEVEL:
+        return ExpFit("poor", f"τ = {tau:.3g} s, but a single exponential does not describe the "
+                              f"step response (χ²/ν = {chi2 / dof:.3g}, p = {p_chi:.2g})", **base)
+    return ExpFit("fits", f"τ = {tau:.3g} ± {ut:.2g} s (χ²/ν = {chi2 / max(dof, 1):.3g})", **base)
+
+
+def half_test(time: np.ndarray, reading: np.ndarray, on: np.ndarray, settle_s: float,
+              tail_s: float = 0.0, level: float = TRANSIENT_LEVEL) -> HalfTest:
+    """Early-half versus late-half test at ``settle_s`` (module docstring)."""
+    from scipy import stats
+
+    seg = onoff.segment(time, reading, on, settle_s, tail_s)
+    m = seg.keep & _complete(seg)
+    idx = np.flatnonzero(m)
+    so = seg.seg_of[idx]
+    k = np.bincount(so, minlength=seg.count)
+    first = np.concatenate(([0], np.cumsum(k)[:-1]))
+    pos = np.arange(len(idx)) - first[so]
+    half = k[so] // 2
+    early = pos < half
+    late = pos >= k[so] - half
+    ref = float(reading[0])
+    y = reading[idx] - ref
+    with np.errstate(invalid="ignore", divide="ignore"):
+        e = (np.bincount(so, weights=np.where(early, y, 0.0), minlength=seg.count)
+             / np.bincount(so, weights=early, minlength=seg.count)
+             - np.bincount(so, weights=np.where(late, y, 0.0), minlength=seg.count)
+             / np.bincount(so, weights=late, minlength=seg.count))
+    ok = k >= 4
+    e_on, e_off = e[ok & seg.on], e[ok & ~seg.on]
+    n = int(ok.sum())
+    if len(e_on) < 2 or len(e_off) < 2 or not (np.std(e_on) > 0 or np.std(e_off) > 0):
+        return HalfTest(settle_s, n, math.nan, math.nan, math.nan, math.nan, math.nan, level)
+    r = stats.ttest_ind(e_on, e_off, equal_var=False)
+    diff = float(np.mean(e_on) - np.mean(e_off))
+    u = math.sqrt(np.var(e_on, ddof=1) / len(e_on) + np.var(e_off, ddof=1) / len(e_off))
+    return HalfTest(settle_s, n, diff, u, float(r.statistic), float(r.df), float(r.pvalue), level)
+
+
+def _kept_lags(resp: StepResponse, settle: np.ndarray, tail_s: float) -> tuple[np.ndarray, np.ndarray]:
+    """Per candidate settle: number of kept lags in a median segment and mean exp-weights grid."""
+    n_lag = max(1, int(round(resp.segment_s / resp.dt)))
+    lag_t = np.arange(n_lag) * resp.dt
+    keep = (lag_t[None, :] >= settle[:, None] - 1e-9) & \
+           ((lag_t[-1] - lag_t)[None, :] >= tail_s - 1e-9)
+    return keep, lag_t
+
+
+def predicted_bias(resp: StepResponse, fit: ExpFit, settle: np.ndarray | float,
+                   tail_s: float = 0.0) -> np.ndarray:
+    """Bias of a cycle difference the fit predicts at each settle time (reading unit, ≥ 0),
+    with |A| and τ taken two standard uncertainties towards the larger bias."""
+    s = np.atleast_1d(np.asarray(settle, dtype=float))
+    if not fit.usable:
+        return np.full(len(s), np.nan)
+    keep, lag_t = _kept_lags(resp, s, tail_s)
+    a = abs(fit.amplitude) + 2.0 * fit.amplitude_u
+    tau = fit.tau_s + 2.0 * fit.tau_u
+    w = np.exp(-lag_t / tau)
+    with np.errstate(invalid="ignore", divide="ignore"):
+        return 2.0 * a * (keep @ w) / keep.sum(axis=1)
+
+
+def floor_settle(segment_s: float, dt: float) -> float:
+    """The floor of the default settle time, s (module docstring)."""
+    return max(FLOOR_INTERVALS * dt, FLOOR_FRACTION * segment_s)
+
+
+def choose_settle(time: np.ndarray, reading: np.ndarray, on: np.ndarray, resp: StepResponse,
+                  fit: ExpFit, u_ref: float, settle_ref: float, tail_s: float = 0.0,
+                  fraction: float = DEFAULT_FRACTION, start: float = 0.0) -> dict[str, Any]:
+    """The data-derived settle time (module docstring) and how it was found.
+
+    ``u_ref`` is the white-noise standard uncertainty of the result (reading unit) found with
+    ``settle_ref`` (s); at another settle time it is scaled as 1/√(kept readings). No settle
+    time below ``start`` (s) is considered (used to look beyond a user's choice).
+    Returns a dict with ``settle_s``, ``floor_s``, ``cap_s``, ``by`` (``"floor"``, ``"fit"``,
+    ``"test"``, ``"cap"``), ``text``, ``predicted_bias`` and ``test`` (the last
+    :class:`HalfTest`).
+    """
+    floor = floor_settle(resp.segment_s, resp.dt)
+    cap = max(floor, CAP_FRACTION * resp.segment_s)
+    floor = min(max(floor, start), cap)
+    grid = np.arange(math.ceil(floor / resp.dt - 1e-9), math.floor(cap / resp.dt + 1e-9) + 1) * resp.dt
+    if len(grid) == 0:
+        grid = np.array([floor])
+    by, s = "floor", float(grid[0])
+    if fit.usable and fit.status != "none":
+        bias = predicted_bias(resp, fit, grid, tail_s)
+        keep, _ = _kept_lags(resp, np.concatenate(([settle_ref], grid)), tail_s)
+        kept = keep.sum(axis=1).astype(float)
+        u = u_ref * np.sqrt(kept[0] / np.maximum(kept[1:], 1))
+        ok = np.flatnonzero(bias <= fraction * u)
+        if len(ok):
+            s = float(grid[ok[0]])
+            by = "fit" if ok[0] > 0 else "floor"
+        else:
+            s, by = float(grid[-1]), "cap"
+    step = max(resp.dt, FLOOR_FRACTION * resp.segment_s)
+    test = half_test(time, reading, on, s, tail_s)
+    while test.detected and s < cap - 1e-9:
+        s = min(cap, s + step)
+        by = "test"
+        test = half_test(time, reading, on, s, tail_s)
+    if test.detected:
+        by = "cap"
+    bias_s = float(predicted_bias(resp, fit, s, tail_s)[0])
+    texts = {"floor": f"no transient that needs more than the floor ({floor:.4g} s: the larger "
+                      f"of {FLOOR_INTERVALS} sampling intervals and {FLOOR_FRACTION:.0%} of the "
+                      "median segment)",
+             "fit": f"the fitted transient falls below {fraction:g} of the Type A u",
+             "test": "the early/late test still saw a transient after the fitted settle time; "
+                     "lengthened until it did not",
+             "cap": f"the transient is not removed even at the cap ({cap:.4g} s, half the "
+                    "median segment)"}
+    return {"settle_s": s, "floor_s": floor, "cap_s": cap, "by": by, "text": texts[by],
+            "fraction": fraction, "u_reference": u_ref,
+            "predicted_bias": bias_s if math.isfinite(bias_s) else None, "test": test}
+
+
+def figure(resp: StepResponse, fit: ExpFit, settle_s: float, unit: str,
+           label: str = "", index: int = 0) -> dict[str, Any]:
+    """Figure data (report/figures.py ``module_figure``): the antisymmetric step response (the
+    transient, drift removed) on a log scale, the fitted exponential, the noise of the mean
+    response and the settle time."""
+    sel = _thin(len(resp.lag_s))
+    x = resp.lag_s[sel]
+    a = np.abs(resp.anti[sel])
+    ok = a > 0
+    series = [{"label": "|transient|: half of (off→on − on→off) mean excess", "style": "points",
+               "x": x[ok].tolist(), "y": a[ok].tolist()}]
+    noise = resp.anti_se[sel]
+    series.append({"label": "standard error of the mean response", "style": "line",
+                   "x": x.tolist(), "y": noise.tolist()})
+    lows = [v for s in series for v in s["y"] if v > 0]
+    y_lo, y_hi = (min(lows), max(lows)) if lows else (1e-30, 1.0)
+    if fit.usable:
+        yf = np.abs(fit.amplitude) * np.exp(-x / fit.tau_s)
+        keep = yf >= y_lo / 10
+        series.append({"label": f"fit |A|·exp(−t/τ), τ = {fit.tau_s:.3g} s", "style": "line",
+                       "x": x[keep].tolist(), "y": yf[keep].tolist()})
+    series.append({"label": f"settle time {settle_s:.4g} s", "style": "line",
+                   "x": [settle_s, settle_s], "y": [y_lo, y_hi]})
+    title = "Mean step response after a switch" + (f" ({label})" if label else "")
+    return {"id": "cycles-settling" + (f"-{index + 1}" if index else ""), "title": title,
+            "xlabel": "time since the switch (s)",
+            "ylabel": f"|excess over the segment's late level| ({unit})",
+            "xscale": "linear", "yscale": "log", "series": series}
