@@ -8,7 +8,7 @@ from __future__ import annotations
 
 import math
 
-__all__ = ["round_pair", "fmt_u", "fmt_value", "fmt_num", "fmt_dof", "fmt_share"]
+__all__ = ["round_pair", "fmt_u", "fmt_value", "fmt_num", "fmt_dof", "fmt_share", "fmt_rows"]
 
 
 def _exp10(x: float) -> int:
@@ -79,3 +79,59 @@ def fmt_dof(nu: float | None) -> str:
 def fmt_share(s: float) -> str:
     """A share of u_c² as a percentage with one decimal."""
     return f"{100 * s:.1f} %"
+
+
+def _parse_ranges(rows: str) -> list[tuple[int, int]] | None:
+    out = []
+    for part in rows.split(","):
+        part = part.strip()
+        if not part:
+            continue
+        a, sep, b = part.partition("-")
+        try:
+            lo, hi = int(a), int(b) if sep else int(a)
+        except ValueError:
+            return None
+        out.append((lo, hi))
+    return out
+
+
+def fmt_rows(rows: str, max_ranges: int = 4) -> str:
+    """Row ranges for a reader: as stored when short, summarised when long.
+
+    Parameters
+    ----------
+    rows : str
+        Row ranges as a :class:`budget.quantity.FileRef` stores them (``"37-100, 137-200"``,
+        1-based, header excluded).
+    max_ranges : int
+        Up to this many ranges are listed as they are (with an en dash). Default 4.
+
+    Returns
+    -------
+    str
+        ``"rows 37–100, 137–200"``; for more ranges a summary: with ranges of equal length at a
+        fixed spacing ``"rows 37–100 of each block of 100 (180 blocks, rows 37–17 999);
+        11 520 rows used; every range in the record"``, otherwise the first and last range,
+        the number of ranges and of rows used. Text that is not a list of ranges is
+        returned unchanged.
+    """
+    ranges = _parse_ranges(rows) if rows else None
+    if not ranges:
+        return rows
+    dash = lambda a, b: f"{a}–{b}" if b > a else f"{a}"  # noqa: E731
+    if len(ranges) <= max_ranges:
+        return "rows " + ", ".join(dash(a, b) for a, b in ranges)
+    used = sum(b - a + 1 for a, b in ranges)
+    n_used = f"{used:,}".replace(",", "\u202f")
+    lengths = {b - a for a, b in ranges}
+    steps = {ranges[i + 1][0] - ranges[i][0] for i in range(len(ranges) - 1)}
+    if len(lengths) == 1 and len(steps) == 1:
+        step = steps.pop()
+        a0, b0 = ranges[0]
+        first = a0 - (a0 - 1) // step * step if step > 0 else a0   # offset within a block
+        lead = f"rows {dash(first, first + b0 - a0)} of each block of {step}"
+        return (f"{lead} ({len(ranges)} blocks, rows {dash(a0, ranges[-1][1])}); "
+                f"{n_used} rows used; every range in the record")
+    return (f"rows in {len(ranges)} ranges from {dash(*ranges[0])} to {dash(*ranges[-1])}; "
+            f"{n_used} rows used; every range in the record")

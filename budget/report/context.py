@@ -13,7 +13,7 @@ from typing import Any
 
 from ..budget_rows import distribution_name, grouped_rows
 from ..errors import DataError
-from ..fmt import fmt_dof, fmt_num, fmt_share, fmt_u
+from ..fmt import fmt_dof, fmt_num, fmt_rows, fmt_share, fmt_u
 from ..result import Budget, Measurand
 from . import figures as figs
 from .statement import (
@@ -184,7 +184,8 @@ def _input_block(b: Budget, q) -> dict[str, Any]:
         "distribution": _distribution_text(q), "dof": fmt_dof(q.dof), "type": q.evaluation,
         "origin": p.origin, "method": p.method, "distribution_reason": p.distribution_reason,
         "dof_reason": p.dof_reason, "notes": list(p.notes), "shares": shares,
-        "files": [{"path": f.path, "sha256": f.sha256, "rows": f.rows} for f in p.files],
+        "files": [{"path": f.path, "sha256": f.sha256, "rows": fmt_rows(f.rows)}
+                  for f in p.files],
     }
 
 
@@ -217,7 +218,7 @@ def _diagnostic_rows(diag: dict[str, Any]) -> list[tuple[str, str]]:
             continue
         s = _scalar(v)
         if s is not None:
-            rows.append((k, s))
+            rows.append((k, fmt_rows(s) if isinstance(v, str) and "rows" in k else s))
         elif isinstance(v, dict):
             for k2, v2 in v.items():
                 s2 = _scalar(v2)

@@ -6,7 +6,7 @@ from __future__ import annotations
 from typing import TYPE_CHECKING
 
 from ..budget_rows import column_headings, distribution_name, text_bar
-from ..fmt import fmt_dof, fmt_num, fmt_share, fmt_u, fmt_value
+from ..fmt import fmt_dof, fmt_num, fmt_rows, fmt_share, fmt_u, fmt_value
 from .tables import WIDTH, section, table
 from .tables import unit_suffix as _unit
 
@@ -178,7 +178,7 @@ def explain_term_text(expl: Explanation) -> str:
         out += section("Evaluation", f"Type {t.evaluation}: {kind}")
         out += section("Source", f"{a.method or '(not stated)'} [origin: {a.origin or '?'}]")
         for f in a.files:
-            out += section("  file", f"{f.path}" + (f", rows {f.rows}" if f.rows else ""))
+            out += section("  file", f"{f.path}" + (f", {fmt_rows(f.rows)}" if f.rows else ""))
             out += section("  sha256", f.sha256)
         out += section("Correlated with", ", ".join(f"{n} (r = {r:.3g})" for n, r in
                                                     a.correlations) or "none")
