@@ -54,6 +54,21 @@ def _header(text: str, shown: str) -> list[str]:
     raise DataError("file is empty (no header row)", file=shown)
 
 
+def _head_text(raw: bytes, shown: str) -> str:
+    """The text of the first MiB (enough for the header), or of the whole file when the header
+    may lie further on; bad bytes there are refused as :func:`decode_text` does. Decoding all
+    of a 10⁷-row record only to read its first line cost a quarter of a second; pandas checks
+    the rest while it parses."""
+    head = raw[:1 << 20]
+    if len(head) == len(raw) or b"\x00" in raw[:65536]:
+        return decode_text(raw, shown)
+    cut = head.rfind(b"\n") + 1                  # whole lines only: no split character
+    text = decode_text(head[:cut], shown)
+    if not any(ln.strip() and not ln.lstrip().startswith("#") for ln in text.splitlines()):
+        return decode_text(raw, shown)
+    return text
+
+
 def _check_columns(cols: list[str], shown: str) -> None:
     seen = set()
     for c in cols:
@@ -100,10 +115,14 @@ def _pump(df: pd.DataFrame, shown: str) -> np.ndarray:
         ok = (v == 0) | (v == 1)
         on = v == 1
     else:
-        codes, uniques = pd.factorize(s, use_na_sentinel=False)
+        if isinstance(s.dtype, pd.CategoricalDtype):     # the reader's dtype: no factorising
+            codes, uniques = s.cat.codes.to_numpy(), list(s.cat.categories)
+        else:
+            codes, uniques = pd.factorize(s, use_na_sentinel=False)
         labels = [str(u).strip().lower() for u in uniques]
-        valid = np.array([lab in _ON or lab in _OFF for lab in labels], dtype=bool)
-        is_on = np.array([lab in _ON for lab in labels], dtype=bool)
+        # a missing value (code −1) takes the extra last entry: invalid
+        valid = np.array([lab in _ON or lab in _OFF for lab in labels] + [False], dtype=bool)
+        is_on = np.array([lab in _ON for lab in labels] + [False], dtype=bool)
         ok = valid[codes]
         on = is_on[codes]
     if not ok.all():
@@ -117,8 +136,7 @@ def read_onoff(path: Path, shown: str | None = None) -> OnOffTable:
     """Read and check an on/off record; every problem is a DataError with file, row, column."""
     shown = shown or str(path)
     raw = path.read_bytes()    # pandas parses the bytes; the text gives the header and rows
-    text = decode_text(raw, shown)
-    cols = _header(text, shown)
+    cols = _header(_head_text(raw, shown), shown)
     _check_columns(cols, shown)
     try:
         with warnings.catch_warnings():
@@ -126,10 +144,14 @@ def read_onoff(path: Path, shown: str | None = None) -> OnOffTable:
             warnings.simplefilter("error", pd.errors.ParserWarning)
             df = pd.read_csv(io.BytesIO(raw), encoding="utf-8-sig", comment="#", header=0,
                              names=cols, index_col=False, skipinitialspace=True,
-                             keep_default_na=False, na_values=[], low_memory=False)
+                             keep_default_na=False, na_values=[], low_memory=False,
+                             dtype={"pump": "category"})   # no 10⁷ Python strings
     except (pd.errors.ParserError, pd.errors.ParserWarning):
-        raise _bad_field_count(text, len(cols), shown) from None
-    except (ValueError, UnicodeDecodeError) as exc:  # pragma: no cover - pandas edge cases
+        raise _bad_field_count(decode_text(raw, shown), len(cols), shown) from None
+    except UnicodeDecodeError:
+        decode_text(raw, shown)          # raises the located message (offset and line)
+        raise                            # pragma: no cover - pandas and Python disagree
+    except ValueError as exc:  # pragma: no cover - pandas edge cases
         raise DataError(f"cannot read as CSV: {' '.join(str(exc).split())}", file=shown) from None
     if len(df) == 0:
         raise DataError("has no data rows", file=shown)
