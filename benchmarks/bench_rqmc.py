@@ -17,8 +17,9 @@ For every worked example whose spec runs the Monte Carlo method, and in one run 
 Printed per example: trials at the stop and wall time (min/median/max over the seeds) for both,
 the ratio of the median trial counts, and for both the largest |interval end − reference| in
 units of δ (the numerical tolerance of u(y), JCGM 101 §7.9.2) with the fraction of seeds within
-δ/5. The reference's own standard error at 10⁸ trials is about δ/300 for these examples, so it
-counts as the truth here.
+δ/5. The adaptive stop leaves each interval end a standard error of about δ/10 (2·s ≤ δ/5), so
+about one run in ten is expected to have an end beyond δ/5 by chance, for either sampling; the
+10⁸-trial reference has a standard error of δ/40 to δ/70 (√(M_stop/10⁸) of δ/10).
 """
 
 from __future__ import annotations

@@ -191,7 +191,8 @@ def _check_psd(corr: np.ndarray, names: list[str], spec: Spec) -> None:
 
 def evaluate(spec: Spec, *, trials: int | None | str = "spec", seed: int | None = None,
              monte_carlo_enabled: bool | None = None,
-             progress: Callable[[int, int], None] | None = None) -> Budget:
+             progress: Callable[[int, int], None] | None = None,
+             sampling: str | None = None) -> Budget:
     """Evaluate a loaded spec into a Budget.
 
     Parameters
@@ -204,6 +205,9 @@ def evaluate(spec: Spec, *, trials: int | None | str = "spec", seed: int | None 
         Overrides the spec's seed. When neither gives one, a fresh seed is drawn and recorded.
     monte_carlo_enabled : bool, optional
         Overrides ``[monte_carlo] enabled``.
+    sampling : {"random", "sobol"}, optional
+        Overrides ``[monte_carlo] sampling`` (a recomputation uses the record's). Unset in
+        both: "sobol" for the adaptive procedure, "random" for a fixed number of trials.
     progress : callable, optional
         ``progress(done, total)`` during Monte Carlo.
     """
@@ -261,7 +265,8 @@ def evaluate(spec: Spec, *, trials: int | None | str = "spec", seed: int | None 
     if seed is None:
         seed = int(np.random.SeedSequence().entropy % (2 ** 63))
     mcs: tuple[MonteCarlo, ...] = ()
-    if enabled and spec.sampling == "sobol" and isinstance(n_trials, int) and \
+    sampling = sampling or spec.sampling or ("sobol" if n_trials is None else "random")
+    if enabled and sampling == "sobol" and isinstance(n_trials, int) and \
             n_trials & (n_trials - 1):
         raise SpecError("must be a power of two with sampling = \"sobol\" (the balance of Sobol "
                         f"points holds for 2^k of them), e.g. {1 << (n_trials - 1).bit_length():,}"
@@ -269,13 +274,16 @@ def evaluate(spec: Spec, *, trials: int | None | str = "spec", seed: int | None 
                         line=spec.line_of(("monte_carlo",), "trials") if trials == "spec" else None,
                         field="monte_carlo.trials" if trials == "spec" else "--trials")
     if enabled and n_trials is None and spec.max_trials < adaptive_batch_size(
-            spec.coverage_probability, spec.sampling):
+            spec.coverage_probability, sampling):
         # the adaptive procedure runs whole batches: a cap below one batch would be overrun by
         # the first batch while the notes claimed the run stopped at the cap
-        raise SpecError(f"must be at least one adaptive batch, M = max(⌈100/(1 − p)⌉, 10⁴) = "
-                        f"{adaptive_batch_size(spec.coverage_probability, spec.sampling):,} "
-                        "trials (JCGM 101 "
-                        f"§7.9.4); got {spec.max_trials:,}", file=spec.path,
+        raise SpecError("must be at least one adaptive batch, M = "
+                        + ("the power of two ≥ " if sampling == "sobol" else "")
+                        + f"max(⌈100/(1 − p)⌉, 10⁴) = "
+                        f"{adaptive_batch_size(spec.coverage_probability, sampling):,} "
+                        "trials (JCGM 101 §7.9.4"
+                        + ("; sampling = \"sobol\"" if sampling == "sobol" else "")
+                        + f"); got {spec.max_trials:,}", file=spec.path,
                         line=spec.line_of(("monte_carlo",), "max_trials"),
                         field="monte_carlo.max_trials")
     if enabled:
@@ -284,7 +292,7 @@ def evaluate(spec: Spec, *, trials: int | None | str = "spec", seed: int | None 
                                significant_digits=spec.significant_digits,
                                max_trials=spec.max_trials,
                                t_for_finite_dof=spec.t_for_finite_dof,
-                               interval=spec.interval, sampling=spec.sampling)
+                               interval=spec.interval, sampling=sampling)
         try:
             mres = monte_carlo(model, qs, resolved.corr, settings, progress=progress,
                                intervals={m.name: (m.value - m.expanded_uncertainty,
@@ -323,6 +331,11 @@ def evaluate(spec: Spec, *, trials: int | None | str = "spec", seed: int | None 
                     f"(JCGM 101 §8: d_low = {v.d_low:.2g}, d_high = {v.d_high:.2g} > δ = "
                     f"{v.tolerance:.2g}); quote the Monte Carlo interval or find out why"))
         mcs = tuple(out)
+        if sampling == "sobol":
+            notes.append("Monte Carlo by randomized quasi-Monte Carlo: scrambled Sobol points, an "
+                         "independent scramble per batch, inverse distribution functions; JCGM "
+                         "101 describes pseudo-random sampling, against which this option is "
+                         "checked (sampling = \"random\" gives that)")
         if any(q.distribution.kind != "normal" for q in qs if not q.is_constant and any(
                 q.name in p[:2] for p in resolved.pairs)):
             notes.append("correlated non-Gaussian inputs were sampled through a Gaussian copula")
@@ -345,7 +358,7 @@ def evaluate(spec: Spec, *, trials: int | None | str = "spec", seed: int | None 
         "coverage_factor_fixed": spec.coverage_factor,
         "significant_digits": spec.significant_digits,
         "t_for_finite_dof": spec.t_for_finite_dof,
-        "sampling": spec.sampling,
+        "sampling": sampling,
         "chain": spec.chain,
         "model": dict(spec.outputs),
         "constants": dict(model.constants),

@@ -108,7 +108,8 @@ def recompute(spec_bytes: bytes, record_json: str, manifest: dict[str, Any],
     inputs_dir : str or Path
         Folder standing for the spec's folder: relative data-file paths resolve against it.
 
-    The run uses the original seed, trial setting and Monte Carlo switch from the record. A
+    The run uses the original seed, trial setting, sampling and Monte Carlo switch from the
+    record. A
     spec or data problem during the run is reported as a problem, not raised: for a verifier
     it is a failed check.
     """
@@ -148,8 +149,11 @@ def recompute(spec_bytes: bytes, record_json: str, manifest: dict[str, Any],
     trials = None if trials == "adaptive" else trials
     try:
         spec = parse_spec(text, file=spec_name, folder=folder.resolve(), raw=spec_bytes)
+        # the record's own sampling (records from before the option were pseudo-random)
         budget = evaluate(spec, trials=trials, seed=run.get("seed"),
-                          monte_carlo_enabled=run.get("monte_carlo_enabled"))
+                          monte_carlo_enabled=run.get("monte_carlo_enabled"),
+                          sampling=run.get("sampling") if run.get("sampling") in
+                          ("random", "sobol") else "random")
         new = budget.to_json()
     except BudgetError as exc:
         problems.append(f"the spec could not be re-run on {folder}: {exc.one_line()}")

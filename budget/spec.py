@@ -12,7 +12,8 @@ Stable sections and keys (see README "The budget spec"):
 ``[monte_carlo]``  trials (integer or "adaptive"), seed, interval ("symmetric" or "shortest"),
                    significant_digits (ndig, default 2), max_trials, enabled,
                    t_for_finite_dof (default true: normal inputs with finite ν drawn from t_ν),
-                   sampling ("random", the default, or "sobol": randomized quasi-Monte Carlo)
+                   sampling ("random" or "sobol": randomized quasi-Monte Carlo; unset: "sobol"
+                   for the adaptive procedure, "random" for a fixed number of trials)
 ``[inputs.NAME]``  a typed-in quantity, ``observations``, or ``module`` + ``file``
 ``[correlations]`` pairs = [["a", "b", r], ...], from_observations = [["V", "I", "phi"], ...]
 """
@@ -92,7 +93,10 @@ class Spec:
     report: dict[str, str]
     t_for_finite_dof: bool = True
     chain: str | None = None
-    sampling: str = "random"      # "random" (pseudo-random, JCGM 101) or "sobol" (RQMC)
+    # "random" (pseudo-random, JCGM 101) or "sobol" (RQMC); None (unset): "sobol" for the adaptive
+    # procedure, "random" for a fixed number of trials (resolved by the engine, which knows
+    # whether --trials overrides the spec)
+    sampling: str | None = None
     lines: dict[tuple[str, ...], dict[str, int]] = field(default_factory=dict, repr=False)
 
     def line_of(self, section: tuple[str, ...], key: str = "") -> int | None:
@@ -275,7 +279,8 @@ def parse_spec(text: str, *, file: str = "<string>", folder: Path | None = None,
     if not isinstance(t_dof, bool):
         raise chk.error(("monte_carlo",), "t_for_finite_dof", f"must be true or false; got {shown(t_dof)}")
 
-    sampling = chk.choice(("monte_carlo",), mc, "sampling", ("random", "sobol"), "random")
+    sampling = None if mc.get("sampling") is None else chk.choice(
+        ("monte_carlo",), mc, "sampling", ("random", "sobol"), "random")
     if sampling == "sobol" and trials is not None and trials & (trials - 1):
         raise chk.error(("monte_carlo",), "trials",
                         "must be a power of two with sampling = \"sobol\" (the balance of "

@@ -274,12 +274,15 @@ def test_max_trials_below_one_batch_is_refused(tmp_path):
             [monte_carlo]
             trials = "adaptive"
             max_trials = 5000
+            sampling = "random"
             [inputs.X]
             value = 0.0
             standard_uncertainty = 1.0
         """)
     assert info.value.field == "monte_carlo.max_trials" and info.value.line == 6
     assert "10,000" in info.value.message
+    # (with sampling unset, an adaptive run uses RQMC: batches of 2^14 = 16 384, see
+    # tests/bad_inputs/spec_max_trials_below_batch)
 
 
 # --------------------------------------------------------------------------- correlated sampling

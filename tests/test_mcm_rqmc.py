@@ -176,3 +176,19 @@ def test_spec_key_record_and_refusals(tmp_path):
     p.write_text(textwrap.dedent(SPEC.format(trials=65536, sampling="sobol")))
     with pytest.raises(SpecError, match="power of two"):
         evaluate(load_spec(p), trials=1000)
+
+
+def test_default_sampling_follows_the_trial_setting(tmp_path):
+    p = tmp_path / "spec.toml"
+    text = textwrap.dedent(SPEC.format(trials='"adaptive"', sampling="x")).replace(
+        'sampling = "x"\n', "")
+    p.write_text(text)
+    b = evaluate(load_spec(p))                     # adaptive, sampling unset: RQMC
+    assert b.run["sampling"] == "sobol"
+    assert b.mc("Y").trials % 16_384 == 0
+    assert any("randomized quasi-Monte Carlo" in n for n in b.run["notes"])
+    b = evaluate(load_spec(p), trials=100_000)     # a fixed count overrides: pseudo-random
+    assert b.run["sampling"] == "random" and b.mc("Y").trials == 100_000
+    assert not any("randomized quasi-Monte Carlo" in n for n in b.run["notes"])
+    b = evaluate(load_spec(p), sampling="random")  # e.g. a recomputation of an older record
+    assert b.run["sampling"] == "random" and b.mc("Y").trials % 10_000 == 0

@@ -31,7 +31,7 @@
   (the balance of the Sobol points holds for 2^k points). An RQMC batch is so much more
   accurate than a pseudo-random one that two or three batches can already pass the §7.9 test;
   with so few the standard deviation of the batch results is itself a guess (one or two degrees
-  of freedom) and the stop was seen to come early with an interval end off by several δ. The
+  of freedom) and the stop was seen to come early with an interval end off by about δ. The
   adaptive RQMC procedure therefore tests for the stop only from :data:`SOBOL_MIN_BATCHES`
   batches on (nine or more degrees of freedom).
 """
