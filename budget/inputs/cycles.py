@@ -46,7 +46,9 @@ estimator : str
 rejection : str
     ``"none"`` (default) or ``"mad"``: reject cycle differences farther than
     ``rejection_limit`` robust standard deviations (1.4826 · median absolute deviation) from
-    the median, once. Rejected cycles are listed in the diagnostics and the provenance.
+    the median, once. Rejected cycles are listed in the diagnostics and the provenance. With
+    ``"none"`` such cycles are still flagged (:mod:`budget.inputs.glitches`): the warning
+    ``cycles.glitch`` names them with the result without them.
 rejection_limit : float
     Default 5.
 whiteness_level : float
@@ -85,7 +87,7 @@ from ..quantity import ModuleResult, Provenance, Quantity
 from ..stats import onoff, typea
 from ..stats.allan import edf_white_fm
 from ..warnings import warn
-from . import settling
+from . import glitches, settling
 from .context import InputContext
 from .cycles_figures import figure_allan, figure_differences
 from .cycles_settle import settling_findings
@@ -243,13 +245,46 @@ def _settled_records(raws: list[_Raw], o: dict[str, Any]) -> tuple[list[_Record]
 
 
 def _reject(diff: onoff.Differences, o: dict[str, Any]) -> np.ndarray:
-    keep = np.ones(diff.n, dtype=bool)
     if o["rejection"] == "mad":
-        med = float(np.median(diff.d))
-        mad = 1.4826 * float(np.median(np.abs(diff.d - med)))
-        if mad > 0:
-            keep = np.abs(diff.d - med) <= o["rejection_limit"] * mad
-    return keep
+        return ~glitches.screen(diff.d, o["rejection_limit"]).flagged
+    return np.ones(diff.n, dtype=bool)
+
+
+def _glitch_findings(records: list[_Record], names: list[str], pooled: onoff.Differences,
+                     res: typea.TypeA, o: dict[str, Any]) -> tuple[dict[str, Any], list]:
+    """The robust screen of all cycles (budget.inputs.glitches), with the result without the
+    flagged ones when they were kept."""
+    scr = glitches.screen(pooled.d, o["rejection_limit"])
+    listed = []
+    for k in np.flatnonzero(scr.flagged).tolist():
+        r = records[int(pooled.record[k])]
+        j = int(pooled.on_seg[k])
+        listed.append({"cycle": k + 1, "file": names[int(pooled.record[k])],
+                       "rows": f"{r.first_row + r.seg.start[j] + 1}-{r.first_row + r.seg.stop[j]}",
+                       "time_s": float(pooled.t[k]), "difference": float(pooled.d[k]),
+                       "sigma_distance": float(scr.distance[k])})
+    diag: dict[str, Any] = {**scr.to_dict(), "cycles": listed[:100], "if_rejected": None}
+    ws = []
+    if listed and o["rejection"] == "none" and pooled.n - len(listed) >= 2:
+        alt = pooled.subset(~scr.flagged)
+        try:
+            r2 = typea.analyse(alt.d, onoff.white_model(alt), o["whiteness_level"])
+        except ComputationError:
+            r2 = None
+        if r2 is not None:
+            diag["if_rejected"] = {"mean_difference": r2.mean, "u": r2.u, "dof": r2.dof,
+                                   "cycles_used": r2.n}
+            unit = o["unit"]
+            which = "; ".join(f"cycle {x['cycle']} ({x['file']} rows {x['rows']}) at "
+                              f"{x['time_s']:.6g} s lies {x['sigma_distance']:.3g} σ from the "
+                              "median" for x in listed[:5]) + (" ..." if len(listed) > 5 else "")
+            ws.append(warn("cycles.glitch", f"{len(listed)} cycle difference(s) beyond "
+                           f"{o['rejection_limit']:g} robust standard deviations (σ_MAD = "
+                           f"{scr.sigma_mad:.3g} {unit}): {which}; kept in the result "
+                           f"({res.mean:.8g} ± {res.u:.3g} {unit}); without them it would be "
+                           f"{r2.mean:.8g} ± {r2.u:.3g} {unit}; consider rejection = \"mad\" "
+                           "if they are glitches"))
+    return diag, ws
 
 
 def evaluate(ctx: InputContext) -> ModuleResult:
@@ -306,6 +341,8 @@ def evaluate(ctx: InputContext) -> ModuleResult:
     settle_diag, settle_ws, settle_figs = settling_findings(ctx, raws, records, assess, names,
                                                             res.u_white, o)
     diagnostics["settling"] = settle_diag
+    diagnostics["glitches"], glitch_ws = _glitch_findings(records, names, pooled, res, o)
+    settle_ws = settle_ws + glitch_ws
     diagnostics["figures"] = [figure_differences(records, names, pooled, keep, res, unit),
                               figure_allan(res, cycle_s, unit), *settle_figs]
     return ModuleResult(quantities=(_quantity(ctx, res, o, records, files, rejected,

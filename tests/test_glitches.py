@@ -1,0 +1,77 @@
+"""Glitch screen of the ``cycles`` module (budget/inputs/glitches.py).
+
+References: the robust scale σ_MAD = 1.4826·MAD with 1.4826 = 1/Φ⁻¹(3/4) (derivation, checked
+against scipy.stats.norm); MAD-based outlier screening is common practice (NIST/SEMATECH
+e-Handbook §1.3.5.17, memory); the limit 5 σ_MAD flags a normal value with probability
+2·Φ(−5) = 5.7·10⁻⁷ (derivation, checked against scipy). The records are invented
+(tests/test_settling.py's first-order chain) with a glitch added where the truth is known.
+"""
+
+from __future__ import annotations
+
+import numpy as np
+import pytest
+from numeric import near
+from scipy import stats
+from test_settling import STEP, chain, cycles_diag, run, write
+
+from budget.inputs import glitches
+
+
+def test_mad_factor_and_false_flag_rate():
+    assert glitches.MAD_FACTOR == near(1 / stats.norm.ppf(0.75), abs=5e-5)
+    assert 2 * stats.norm.sf(5) == near(5.733e-7, abs=1e-10)
+    # normal sample: σ_MAD estimates σ (consistency), no flags at 5 σ among 10⁴ values
+    x = np.random.default_rng(1).normal(0.0, 2.0, 10_000)
+    s = glitches.screen(x)
+    assert s.sigma_mad == near(2.0, abs=0.06)            # se of σ_MAD ≈ 1.17·σ/√n·... ≈ 0.03
+    assert not s.flagged.any()
+
+
+@pytest.fixture(scope="module")
+def glitched():
+    t, y, on = chain(np.random.default_rng(2027), 100)
+    # a 40 s glitch of 2e-7 V (10 × the reading noise) inside on segment 37: rows of the
+    # segment that starts at 73·120 s (segment index 73 is on: odd index)
+    start = 73 * 120.0
+    y = y.copy()
+    y[(t >= start + 70) & (t < start + 110)] += 2e-7
+    return t, y, on, start
+
+
+def test_glitch_is_flagged_not_rejected(tmp_path, capsys, glitched):
+    t, y, on, start = glitched
+    rc, rec, err = run(write(tmp_path, t, y, on, settle_s=60), capsys)
+    assert rc == 0
+    g = cycles_diag(rec)["glitches"]
+    assert g["flagged"] == 1
+    (c,) = g["cycles"]
+    assert c["cycle"] == 37 and start <= c["time_s"] <= start + 120
+    assert c["sigma_distance"] > 9
+    assert cycles_diag(rec)["cycles_rejected"] == 0          # no rejection by default
+    assert "cycles.glitch" in err and "cycle 37" in err and 'rejection = "mad"' in err
+    # the effect of rejecting it: u and the mean without it (the truth is STEP exactly)
+    alt = g["if_rejected"]
+    mean = cycles_diag(rec)["mean_difference"]
+    assert abs(alt["mean_difference"] - STEP) < abs(mean - STEP)
+    assert alt["u"] < cycles_diag(rec)["u"]
+
+
+def test_mad_rejection_removes_it(tmp_path, capsys, glitched):
+    t, y, on, _ = glitched
+    rc, rec, err = run(write(tmp_path, t, y, on, settle_s=60, rejection="mad"), capsys)
+    assert rc == 0
+    d = cycles_diag(rec)
+    assert d["cycles_rejected"] == 1 and d["glitches"]["if_rejected"] is None
+    assert "cycles.glitch" not in err and "cycles.rejected" in err
+    m = rec["measurands"][0]
+    assert abs(m["value"]) <= m["expanded_uncertainty"]
+
+
+def test_default_settle_is_not_fooled_by_the_glitch(tmp_path, capsys, glitched):
+    t, y, on, _ = glitched
+    rc, rec, err = run(write(tmp_path, t, y, on), capsys)
+    assert rc == 0
+    s = cycles_diag(rec)["settling"][0]
+    # same chain as tests/test_settling.py (τ = 3 s): the derived time stays near 45 s
+    assert 38 <= s["settle_s"] <= 50, s["choice"]
