@@ -5,7 +5,7 @@ VENV := .venv
 BIN := $(VENV)/bin
 STAMP := $(VENV)/.installed
 
-.PHONY: demo test bench clean lint wheel-check fuzz
+.PHONY: demo test bench clean lint wheel-check fuzz mutate
 
 $(STAMP): pyproject.toml
 	$(PY) -m venv $(VENV)
@@ -22,6 +22,13 @@ test: $(STAMP)
 # the long fuzz profile (by hand): 5 000 cases for each of the four generated properties
 fuzz: $(STAMP)
 	BUDGET_FUZZ_EXAMPLES=5000 $(BIN)/python -m pytest -p no:cacheprovider tests/test_fuzz.py --hypothesis-show-statistics
+
+# mutation testing of the numerical core (by hand, never in CI: about an hour per full pass):
+# the named bugs of issue 18 first, then every mutant of each core module; results in .mutate/,
+# the kill rates in tests/README.md. MUTATE_ARGS="budget.compare --sample 40" narrows a run.
+mutate: $(STAMP)
+	nice -n 15 $(BIN)/python tests/mutate.py --known
+	nice -n 15 $(BIN)/python tests/mutate.py $(MUTATE_ARGS)
 
 # a wheel built from this checkout, installed in a fresh venv, renders a report (CI runs it)
 wheel-check: $(STAMP)

@@ -18,6 +18,7 @@ from scipy import constants
 from budget.chains import CHAINS, ChainModel, build_chain, validate_n
 from budget.errors import SpecError
 from budget.expression import compile_node, names, parse
+from budget.model import BUILTIN_CONSTANTS
 
 E = 1.602176634e-19   # C, SI Brochure 2019 (exact)
 
@@ -34,8 +35,15 @@ def evaluate(model: ChainModel, env: dict) -> dict:
     return out
 
 
-def test_scipy_agrees_on_e():
-    assert constants.e == E   # SI Brochure: exact by definition
+def test_builtin_defining_constants_are_the_exact_si_values():
+    # SI Brochure, 9th ed. (2019), Table 1: e, h, k_B exact by definition; R_K = h/e² and
+    # K_J = 2e/h follow exactly (CODATA 2018 prints R_K = 25 812.807 45... Ω and
+    # K_J = 483 597.848 4... GHz/V, memory). scipy.constants carries the same SI values.
+    assert BUILTIN_CONSTANTS["e"] == E == constants.e
+    assert BUILTIN_CONSTANTS["h"] == 6.62607015e-34
+    assert BUILTIN_CONSTANTS["k_B"] == 1.380649e-23
+    assert BUILTIN_CONSTANTS["R_K"] == near(25812.80745, rel=5e-10)
+    assert BUILTIN_CONSTANTS["K_J"] == near(483597.8484e9, rel=5e-10)
 
 
 def test_resistor_voltmeter_outputs():
