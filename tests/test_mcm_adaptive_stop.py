@@ -60,3 +60,17 @@ def test_adaptive_results_spread_less_than_a_fifth_of_delta():
     assert np.all(spread <= delta / 5), spread
     # each result within 4 standard errors (4·δ/10) of the exact value
     assert np.all(np.abs(stats_by_seed - exact) <= 0.4 * delta), stats_by_seed - exact
+
+
+def test_adaptive_stop_does_not_depend_on_the_mean():
+    # the stopping tolerance δ comes from u(y) alone (JCGM 101 §7.9.2): the same case shifted
+    # by 100 (Y = X1 + X2, X1 ~ N(100, 1)) needs the same ~57 batches (derivation above)
+    qs = [Quantity(name="X1", value=100.0, standard_uncertainty=1.0,
+                   distribution=Distribution.normal(100.0, 1.0), dof=math.inf),
+          Quantity(name="X2", value=0.0, standard_uncertainty=1.0,
+                   distribution=Distribution.normal(0.0, 1.0), dof=math.inf)]
+    model = build_model({"Y": "X1 + X2"}, quantities={"X1", "X2"}, constants={})
+    res = monte_carlo(model, qs, np.eye(2), McmSettings(trials=None, seed=SEEDS[0],
+                                                        significant_digits=2))["Y"]
+    assert res.adaptive and 30 <= res.batches <= 120, res.batches
+    assert res.standard_uncertainty == near(math.sqrt(2), rel=0.02)
