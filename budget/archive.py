@@ -34,7 +34,7 @@ from typing import Any
 
 from . import __version__
 from .errors import DataError, UsageError
-from .outputs import name_max, temp_prefix
+from .outputs import name_max, new_file_mode, new_folder_mode, temp_prefix
 from .record import record_data
 
 __all__ = ["MANIFEST_SCHEMA", "ARCHIVE_SCHEMA", "input_manifest", "archive",
@@ -158,6 +158,7 @@ def _copy_object(src: Path, objects: Path, expected: str | None, shown: str) -> 
     """Copy a file into objects/<sha256> while hashing it; refuse a changed file."""
     h = hashlib.sha256()
     fd, tmp = tempfile.mkstemp(dir=objects, suffix=".part")
+    os.fchmod(fd, new_file_mode())  # mkstemp makes it 0600; an archive is read by others
     size = 0
     with os.fdopen(fd, "wb") as out, open(src, "rb") as fh:
         for block in iter(lambda: fh.read(_BLOCK), b""):
@@ -209,6 +210,7 @@ def archive(spec, budget, out_dir: str | Path, *, force: bool = False) -> Archiv
     """
     out = check_archive_target(out_dir, force=force)
     tmp = Path(tempfile.mkdtemp(prefix=temp_prefix(out), suffix=".part", dir=out.parent))
+    os.chmod(tmp, new_folder_mode())  # mkdtemp makes it 0700
     try:
         info = build_archive(spec, budget, tmp, shown=str(out))
         _swap_into_place(tmp, out)

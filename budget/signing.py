@@ -149,12 +149,11 @@ def create_identity(name: str, role: str, out_dir: str | Path, passphrase: str |
     pem = cert.public_bytes(serialization.Encoding.PEM)
     with OutputSet() as staged:            # both files or neither (and no empty folder)
         if out.is_dir():
-            staged.file(p12_path, p12)     # mkstemp: mode 0600, kept by the rename
-            staged.file(pem_path, pem)
+            staged.file(p12_path, p12, force=force, mode=0o600)  # the private key
+            staged.file(pem_path, pem, force=force, mode=0o644)  # the certificate is public
         else:
             staged.folder(out, lambda tmp: _write_identity(tmp, p12, pem))
         staged.commit()
-    os.chmod(pem_path, 0o644)              # the certificate is public
     return Identity(name=name, role=role, p12_path=str(p12_path), pem_path=str(pem_path),
                     fingerprint=cert.fingerprint(hashes.SHA256()).hex())
 

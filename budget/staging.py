@@ -10,10 +10,12 @@ it found it. Signals that arrive during the renames are held until the commit is
 renames take microseconds), so a stop lands either before the commit (nothing written) or after
 it (everything written); :func:`committed` tells the CLI which, for an honest message.
 
-A symbolic link is written through: its target is staged and replaced, the link kept. A target
-that cannot be renamed onto (``-`` for standard output, a FIFO, a character device) is not
-staged: its bytes are kept in memory and written by :func:`budget.outputs.write_atomic` as the
-last step of the commit.
+Which paths may be written, and how, is decided by :func:`budget.outputs.classify`: a symbolic
+link to a regular file is written through only with ``force`` (its target is staged and
+replaced, the link kept). A target that must not be renamed onto (``-`` for standard output, a
+FIFO, a character device, a descriptor such as ``/dev/stdout``) is not staged: its bytes are
+kept in memory and written in place as the last step of the commit. A staged file gets its
+final mode before the rename (new: ``0666 & ~umask``; replacing: the old file's mode).
 
 A change outside the file system that must go with the files (``run --logbook``: the record's
 row in the SQLite logbook) joins the set with :meth:`OutputSet.transaction`: its work is done
@@ -35,7 +37,8 @@ import threading
 from dataclasses import dataclass
 from pathlib import Path
 
-from .outputs import temp_prefix, write_atomic
+from .errors import UsageError
+from .outputs import Target, classify, new_folder_mode, stage_file, temp_prefix, write_in_place
 
 __all__ = ["OutputSet", "committed", "reset_committed"]
 
@@ -85,21 +88,24 @@ class _Item:
     target: Path
     shown: str
     tmp: Path | None = None          # staged file or folder
-    data: bytes | None = None        # for targets written directly at the end
+    data: bytes | None = None        # for targets written in place at the end
     folder: bool = False
     backup: Path | None = None       # the target's previous content during the commit
     done: bool = False
+    kind: str = "new"                # budget.outputs.Target.kind (folders: "folder")
+    written: Target | None = None    # the in-place target
 
 
-def _direct(p: Path, name: str) -> bool:
-    """A target that must be written in place rather than renamed onto."""
-    if name == "-":
-        return True
+def _check_unchanged(item: _Item) -> None:
+    """Refuse to rename onto a target that became something else while the command ran
+    (a link, a device, a folder where a file was): it would be replaced."""
     try:
-        mode = os.stat(p).st_mode
-    except OSError:
-        return False
-    return not (stat.S_ISREG(mode) or stat.S_ISDIR(mode))
+        mode = os.lstat(item.target).st_mode
+    except FileNotFoundError:
+        return
+    if not stat.S_ISREG(mode):
+        raise UsageError("changed while the command ran (it is no longer a regular file); "
+                         "nothing is written", file=item.shown, field="output")
 
 
 class OutputSet:
@@ -129,32 +135,35 @@ class OutputSet:
             self.discard()
 
     # ------------------------------------------------------------------ staging
-    def file(self, path: str | Path, data: bytes | str) -> None:
-        """Stage ``data`` for ``path`` (same-folder temporary file, flushed to disk)."""
+    def file(self, path: str | Path, data: bytes | str, *, force: bool = False,
+             mode: int | None = None) -> None:
+        """Stage ``data`` for ``path`` (same-folder temporary file, flushed to disk).
+
+        ``force``: the user gave ``--force`` (a symbolic link to a file is written through);
+        ``mode``: the file's permission bits (default ``0666 & ~umask``, or the mode of the
+        file it replaces). Refuses (UsageError) a path :func:`budget.outputs.classify`
+        refuses.
+        """
         raw = data.encode("utf-8") if isinstance(data, str) else bytes(data)
-        p = Path(path)
-        if p.is_symlink():  # write through the link: the link itself stays
-            p = Path(os.path.realpath(p))
-        item = _Item(target=p, shown=str(path))
-        if _direct(p, str(path)):
-            item.data = raw
-            self._items.append(item)
-            return
+        target = classify(path, force=force)
+        if target.kind == "stdout" and any(i.kind == "stdout" for i in self._items):
+            raise UsageError("only one output can go to standard output ('-')",
+                             file=str(path), field="output")
+        item = _Item(target=target.path, shown=str(path), kind=target.kind)
         self._items.append(item)
-        fd, tmp = tempfile.mkstemp(prefix=temp_prefix(p), suffix=".part", dir=p.parent)
-        item.tmp = Path(tmp)
-        with os.fdopen(fd, "wb") as fh:
-            fh.write(raw)
-            fh.flush()
-            os.fsync(fh.fileno())
+        if target.in_place:
+            item.data, item.written = raw, target
+            return
+        item.tmp = stage_file(target, raw, mode)
 
     def folder(self, path: str | Path, build) -> object:
         """Stage a folder: ``build(tmp)`` fills the new, empty folder ``tmp`` beside ``path``;
         its return value is returned."""
         p = Path(path)
-        item = _Item(target=p, shown=str(path), folder=True)
+        item = _Item(target=p, shown=str(path), folder=True, kind="folder")
         self._items.append(item)
         item.tmp = Path(tempfile.mkdtemp(prefix=temp_prefix(p), suffix=".part", dir=p.parent))
+        os.chmod(item.tmp, new_folder_mode())  # mkdtemp makes it 0700; ours to set
         return build(item.tmp)
 
     def transaction(self, shown: str, commit, rollback) -> None:
@@ -183,7 +192,7 @@ class OutputSet:
                     hook.commit()
                 for item in self._items:  # in place, last: these cannot be taken back
                     if item.data is not None:
-                        write_atomic(item.shown, item.data)
+                        write_in_place(item.written, item.data)
                         item.done = True
             except BaseException:
                 self._roll_back()
@@ -212,7 +221,9 @@ class OutputSet:
                                                     dir=p.parent))
                 item.backup.rmdir()
                 os.replace(p, item.backup)
-        elif p.exists():
+        else:
+            _check_unchanged(item)
+        if not item.folder and p.exists():
             item.backup = p.parent / f"{temp_prefix(p)}{secrets.token_hex(4)}.old"
             try:   # the old bytes stay reachable until the commit is done
                 os.link(p, item.backup)

@@ -17,6 +17,7 @@ import sys
 import pytest
 
 from budget.cli import main
+from budget.errors import UsageError
 from budget.staging import OutputSet
 
 SPEC = """[budget]
@@ -164,13 +165,17 @@ def test_commit_failure_restores_the_previous_files(tmp_path, monkeypatch):
 
 
 def test_symlink_target_is_written_through_the_link(tmp_path):
-    # a link is kept (written in place at the end), not replaced by a regular file
+    # with force a link is kept and its target replaced; without, refused (README "Output
+    # files"; tests/test_output_paths.py has the rest)
     real = tmp_path / "real.txt"
     real.write_text("old")
     link = tmp_path / "link.txt"
     link.symlink_to(real)
     with OutputSet() as out:
-        out.file(link, "new")
+        with pytest.raises(UsageError, match="symbolic link"):
+            out.file(link, "new")
+    with OutputSet() as out:
+        out.file(link, "new", force=True)
         out.commit()
     assert link.is_symlink() and real.read_text() == "new"
 

@@ -100,6 +100,31 @@ def _show_numeric_warnings(caught) -> None:
               "check the inputs' magnitudes)", file=sys.stderr)
 
 
+OUTPUT_OPTIONS = ("json", "output", "html", "pdf", "write_fit")  # file outputs of any command
+
+
+def _run_command(args) -> int:
+    """Run the command; when one of its outputs is standard output (``-``, ``/dev/stdout``,
+    the pipe stdout is), the text it would print goes to stderr, so stdout carries only that
+    output (``budget run S --json - | jq .``)."""
+    import contextlib
+
+    from ..outputs import on_stdout, set_stdout
+    piped = [f"--{o.replace('_', '-')}" for o in OUTPUT_OPTIONS
+             if on_stdout(getattr(args, o, None))]
+    if len(piped) > 1:
+        raise UsageError(f"{' and '.join(piped)} both go to standard output; only one can",
+                         field=piped[1])
+    if not piped:
+        return args.func(args)
+    set_stdout(sys.stdout)
+    try:
+        with contextlib.redirect_stdout(sys.stderr):
+            return args.func(args)
+    finally:
+        set_stdout(None)
+
+
 def main(argv: list[str] | None = None) -> int:
     import warnings
 
@@ -115,7 +140,7 @@ def main(argv: list[str] | None = None) -> int:
             args = parser.parse_args(argv)
             if not getattr(args, "func", None):
                 raise UsageError("budget: a command is required (see 'budget --help')")
-            code = args.func(args)
+            code = _run_command(args)
         _show_numeric_warnings(caught)
         return code
     except BudgetError as exc:

@@ -178,10 +178,25 @@ def archive_message(info) -> str:
             f"{'' if len(info.files) == 1 else 's'})")
 
 
-def write_outputs(*items: tuple[str, bytes | str]) -> tuple[str, ...]:
-    """Write ``(path, data)`` outputs all or none (see :mod:`budget.staging`)."""
+def write_outputs(*items: tuple[str, bytes | str], force: bool = False) -> tuple[str, ...]:
+    """Write ``(path, data)`` outputs all or none (see :mod:`budget.staging`); ``force``: the
+    user's ``--force`` (write through a symbolic link to a file)."""
     from ..staging import OutputSet
     with OutputSet() as out:
         for path, data in items:
-            out.file(path, data)
+            out.file(path, data, force=force)
         return out.commit()
+
+
+FORCE_HELP = ("write through a symbolic link to a file (its target is replaced, the link "
+              "kept); without it such a link is refused")
+
+
+def add_force_option(p, help: str = FORCE_HELP) -> None:
+    """``--force`` of a command that writes files (README "Output files")."""
+    p.add_argument("--force", action="store_true", help=help)
+
+
+def shown_output(name: str) -> str:
+    """An output's name in messages: ``-`` is 'standard output'."""
+    return "standard output" if name == "-" else name

@@ -6,7 +6,15 @@ import sys
 from pathlib import Path
 
 from ..errors import UsageError
-from .common import EXIT_CHECK_FAILED, EXIT_OK, add_group, print_warnings, read_input, write_outputs
+from .common import (
+    EXIT_CHECK_FAILED,
+    EXIT_OK,
+    add_group,
+    print_warnings,
+    read_input,
+    shown_output,
+    write_outputs,
+)
 
 _PASSPHRASE_ENV = "BUDGET_PASSPHRASE"
 
@@ -103,7 +111,7 @@ def _cmd_sign(args) -> int:
     from ..record import record_from_text
     from ..signing import ATTACHMENTS, read_attachments, sign_pdf
     _quiet_library_logs()
-    check_writable(args.output, force=args.force)
+    check_writable(args.output, force=args.force, replace=False, field="--output")
     if not Path(args.identity).is_file():   # before reading anything or asking a passphrase
         raise UsageError("identity file not found", file=args.identity, field="--identity")
     pdf = read_input(args.report, "report")
@@ -149,8 +157,8 @@ def _cmd_sign(args) -> int:
         raise exc.located(file=args.report) from None
     finally:
         del pw
-    write_outputs((args.output, signed))
-    print(f"signed {args.report} -> {args.output}{note}")
+    write_outputs((args.output, signed), force=args.force)
+    print(f"signed {args.report} -> {shown_output(args.output)}{note}")
     print_warnings(budget)
     return EXIT_OK
 

@@ -7,7 +7,14 @@ from pathlib import Path
 
 from .. import __version__
 from ..errors import UsageError
-from .common import EXIT_OK, number, print_warnings, write_outputs
+from .common import (
+    EXIT_OK,
+    add_force_option,
+    number,
+    print_warnings,
+    shown_output,
+    write_outputs,
+)
 
 
 def add_explain(sub) -> None:
@@ -24,6 +31,7 @@ def add_explain(sub) -> None:
                    help="explain a stored result record instead of evaluating a spec")
     p.add_argument("--measurand", metavar="NAME", help="only this measurand")
     p.add_argument("--json", metavar="OUT", help="write the answer as JSON to OUT")
+    add_force_option(p)
     p.set_defaults(func=_cmd_explain)
 
 
@@ -34,7 +42,7 @@ def _cmd_explain(args) -> int:
     from ..record import load_record
     from ..text import explain_overview_text, explain_term_text
     if args.json:
-        check_writable(args.json)
+        check_writable(args.json, force=args.force, field="--json")
     if args.record:
         given = [x for x in (args.spec, args.term) if x]
         if len(given) > 1:
@@ -60,8 +68,8 @@ def _cmd_explain(args) -> int:
         except ValueError:  # a module put inf/NaN in its diagnostics (its contract says None)
             raise ComputationError("the answer holds a non-finite number and cannot be "
                                    "written as JSON", file=args.json, field="--json") from None
-        write_outputs((args.json, text + "\n"))
-        print(f"\nanswer written to {args.json}")
+        write_outputs((args.json, text + "\n"), force=args.force)
+        print(f"\nanswer written to {shown_output(args.json)}")
     print_warnings(b)  # last: an error while writing stays the only line on stderr
     return EXIT_OK
 
@@ -87,6 +95,7 @@ def add_compare(sub) -> None:
                         "§9.7) or U = 2u for every result")
     p.add_argument("--pdf", metavar="OUT.pdf", help="write the comparison as a PDF")
     p.add_argument("--json", metavar="OUT", help="write the comparison as JSON")
+    add_force_option(p)
     p.set_defaults(func=_cmd_compare)
 
 
@@ -110,9 +119,9 @@ def _cmd_compare(args) -> int:
         else:
             ref_file = ref[0]
             records += ref[1:]
-    for out in (args.pdf, args.json):
+    for out, opt in ((args.pdf, "--pdf"), (args.json, "--json")):
         if out:
-            check_writable(out)
+            check_writable(out, force=args.force, field=opt)
     runs = [load_record(f) for f in records]
     if ref_file is not None:
         reference = load_record(ref_file)
@@ -131,9 +140,9 @@ def _cmd_compare(args) -> int:
         d = {"records": records, "reference_record": ref_file, **c.to_dict()}
         outputs.append((args.json, json.dumps(d, indent=2, ensure_ascii=False,
                                               allow_nan=False) + "\n"))
-    write_outputs(*outputs)  # the PDF and the JSON: both or neither
+    write_outputs(*outputs, force=args.force)  # the PDF and the JSON: both or neither
     if args.pdf:
-        print(f"\nPDF written to {args.pdf}")
+        print(f"\nPDF written to {shown_output(args.pdf)}")
     if args.json:
-        print(f"\ncomparison written to {args.json}")
+        print(f"\ncomparison written to {shown_output(args.json)}")
     return EXIT_OK

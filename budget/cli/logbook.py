@@ -12,7 +12,7 @@ import re
 from pathlib import Path
 
 from ..errors import UsageError, did_you_mean
-from .common import EXIT_OK, add_group, positive_float
+from .common import EXIT_OK, add_force_option, add_group, positive_float, write_outputs
 
 _DATE = re.compile(r"^\d{4}-\d{2}-\d{2}$")
 
@@ -64,6 +64,7 @@ def add_logbook(sub) -> None:
                                                    "(YYYY-MM-DD)")
     p.add_argument("--chain", metavar="NAME", help="only records of this chain")
     p.add_argument("--json", metavar="OUT", help="write the list as JSON to OUT")
+    add_force_option(p)
     add_book_options(p, wait=True)
     p.set_defaults(func=_cmd_list)
 
@@ -85,6 +86,7 @@ def add_logbook(sub) -> None:
     p.add_argument("--pdf", metavar="OUT", help="write the trend page (A4 PDF) to OUT")
     p.add_argument("--html", metavar="OUT", help="write the trend page (HTML) to OUT")
     p.add_argument("--json", metavar="OUT", help="write the trend, step tests and flags as JSON")
+    add_force_option(p)
     add_book_options(p, wait=True)
     p.set_defaults(func=_cmd_trend)
 
@@ -106,12 +108,12 @@ def _cmd_add(args) -> int:
 
 
 def _cmd_list(args) -> int:
-    from ..outputs import check_writable, write_atomic
+    from ..outputs import check_writable
     from ..text import logbook_list_text
     if args.since and not _DATE.match(args.since):
         raise UsageError(f"must be a date YYYY-MM-DD; got {args.since!r}", field="--since")
     if args.json:
-        check_writable(args.json)
+        check_writable(args.json, force=args.force, field="--json")
     with _open(args) as lb:
         entries = lb.entries(since=args.since, chain=args.chain)
         chains = {e.chain for e in lb.entries()} if args.chain and not entries else set()
@@ -120,8 +122,9 @@ def _cmd_list(args) -> int:
                          f"book (chains: {', '.join(sorted(chains))})", field="--chain")
     print(logbook_list_text(entries, str(lb.path)))
     if args.json:
-        write_atomic(args.json, json.dumps([e.to_dict() for e in entries], indent=2,
-                                           ensure_ascii=False, allow_nan=False) + "\n")
+        write_outputs((args.json, json.dumps([e.to_dict() for e in entries], indent=2,
+                                             ensure_ascii=False, allow_nan=False) + "\n"),
+                      force=args.force)
     return EXIT_OK
 
 
@@ -137,11 +140,11 @@ def _cmd_show(args) -> int:
 
 def _cmd_trend(args) -> int:
     from ..logbook import compute_trend
-    from ..outputs import check_writable, write_atomic
+    from ..outputs import check_writable
     from ..text import logbook_trend_text, main_measurand
-    for out in (args.pdf, args.html, args.json):
+    for out, opt in ((args.pdf, "--pdf"), (args.html, "--html"), (args.json, "--json")):
         if out:
-            check_writable(out)
+            check_writable(out, force=args.force, field=opt)
     with _open(args) as lb:
         names = [n for n, _c in lb.measurand_counts()]
         name = args.measurand or main_measurand(names)
@@ -153,17 +156,19 @@ def _cmd_trend(args) -> int:
         trend = compute_trend(lb.series(name))
         book = lb.path.name          # the page names the book, not the folders above it
     print(logbook_trend_text(trend))
+    outputs = []
     if args.json:
-        write_atomic(args.json, json.dumps(trend.to_dict(), indent=2, ensure_ascii=False,
-                                           allow_nan=False) + "\n")
+        outputs.append((args.json, json.dumps(trend.to_dict(), indent=2, ensure_ascii=False,
+                                              allow_nan=False) + "\n"))
     if args.html or args.pdf:
         from .. import __version__
         from ..report.trend_render import trend_html, trend_pdf
         soft = f"qcs-budget {__version__}"
         if args.html:
-            write_atomic(args.html, trend_html(trend, book=book, software=soft))
+            outputs.append((args.html, trend_html(trend, book=book, software=soft)))
         if args.pdf:
-            write_atomic(args.pdf, trend_pdf(trend, book=book, software=soft))
+            outputs.append((args.pdf, trend_pdf(trend, book=book, software=soft)))
+    write_outputs(*outputs, force=args.force)  # JSON, HTML and PDF: all or none
     return EXIT_OK
 
 

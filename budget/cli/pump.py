@@ -7,11 +7,13 @@ from pathlib import Path
 from ..errors import UsageError
 from .common import (
     EXIT_OK,
+    add_force_option,
     add_group,
     finite_float,
     int_arg,
     positive_float,
     seed_arg,
+    shown_output,
     write_outputs,
 )
 
@@ -60,6 +62,7 @@ def add_pump(sub) -> None:
     f.add_argument("--figures", metavar="DIR", help="write the figures as SVG files into DIR")
     f.add_argument("--write-fit", metavar="FILE",
                    help="write the fit-result file (JSON if FILE ends in .json, else TOML)")
+    add_force_option(f)
     f.set_defaults(func=_cmd_pump_fit)
 
 
@@ -77,7 +80,7 @@ def _cmd_pump_fit(args) -> int:
     if not data.is_file():
         raise UsageError("file not found", file=args.data, field="DATA")
     if args.write_fit:
-        check_writable(args.write_fit)
+        check_writable(args.write_fit, force=args.force, field="--write-fit")
     if args.figures and not Path(args.figures).is_dir():
         raise UsageError("the folder does not exist", file=args.figures, field="--figures")
     if args.temperatures and not Path(args.temperatures).is_file():
@@ -118,9 +121,11 @@ def _cmd_pump_fit(args) -> int:
     if args.write_fit:
         fmt = "json" if args.write_fit.lower().endswith(".json") else "toml"
         outputs.append((args.write_fit, fit_file_text(a.record, fmt)))
-    write_outputs(*outputs)  # the fit file and the figures: all or none
+    for p, _ in figures:
+        check_writable(p, force=args.force, field="--figures")
+    write_outputs(*outputs, force=args.force)  # the fit file and the figures: all or none
     if args.write_fit:
-        print(f"\nfit result written to {args.write_fit}")
+        print(f"\nfit result written to {shown_output(args.write_fit)}")
     if figures:
         print(f"figures written to {args.figures}: " + ", ".join(p.name for p, _ in figures))
     return EXIT_OK

@@ -15,6 +15,7 @@ from .common import (
     print_warnings,
     read_input,
     seed_arg,
+    shown_output,
     stage_archive_option,
     trials_arg,
 )
@@ -30,7 +31,8 @@ def add_report(sub) -> None:
                     "watermarked DRAFT. Give SPEC to evaluate it now, or --record RESULT.json "
                     "(from 'budget run --json') to render a stored result without recomputing; "
                     "SPEC is then left out.",
-        epilog="An existing output file is replaced, except a signed PDF, which needs --force.")
+        epilog="An existing output file is replaced, except a signed PDF, which needs --force "
+               "(README \"Output files\").")
     p.add_argument("spec", nargs="?", metavar="SPEC",
                    help="budget spec (TOML); leave out with --record")
     p.add_argument("-o", "--output", metavar="OUT.pdf", help="write the PDF to OUT.pdf")
@@ -43,7 +45,8 @@ def add_report(sub) -> None:
                    help="Monte Carlo trials (integer or 'adaptive'); overrides the spec")
     p.add_argument("--seed", type=seed_arg, metavar="S", help="random seed; overrides the spec")
     p.add_argument("--no-monte-carlo", action="store_true", help="skip the Monte Carlo method")
-    p.add_argument("--force", action="store_true", help="replace an existing signed PDF")
+    p.add_argument("--force", action="store_true", help="replace an existing signed PDF; write through a symbolic link to a "
+                        "file (its target is replaced, the link kept)")
     add_archive_options(p)
     p.set_defaults(func=_cmd_report)
 
@@ -66,11 +69,15 @@ def _check_report_args(args) -> list[str]:
     if not outs:
         raise UsageError("nothing to write: give -o OUT.pdf and/or --html OUT.html",
                          field="--output")
-    if args.output and args.html and Path(args.output).resolve() == Path(args.html).resolve():
+    if args.output == "-" and args.html == "-":
+        raise UsageError("-o and --html both go to standard output; only one can",
+                         field="--html")
+    if args.output and args.html and "-" not in (args.output, args.html) and \
+            Path(args.output).resolve() == Path(args.html).resolve():
         raise UsageError("-o and --html name the same file", field="--html")
     ins = {Path(x).resolve() for x in (args.spec, args.record) if x}
     for o in outs:
-        if Path(o).resolve() in ins:
+        if o != "-" and Path(o).resolve() in ins:
             raise UsageError("would overwrite an input file", file=o, field="output")
     return outs
 
@@ -82,9 +89,9 @@ def _cmd_report(args) -> int:
     from ..staging import OutputSet
     outs = _check_report_args(args)
     for o in outs:
-        check_writable(o)
+        check_writable(o, force=args.force, field="--output" if o == args.output else "--html")
         p = Path(o)
-        if o == args.output and p.is_file() and not args.force:
+        if o == args.output and o != "-" and p.is_file() and not args.force:
             if looks_signed(read_input(o, "--output")):
                 raise UsageError("is a signed PDF; use --force to replace it", file=o,
                                  field="--output")
@@ -99,20 +106,20 @@ def _cmd_report(args) -> int:
                 if args.output else None)
     with OutputSet() as out:  # HTML, PDF and archive: all or none
         if args.html:
-            out.file(args.html, html)
+            out.file(args.html, html, force=args.force)
         if rendered is not None:
-            out.file(args.output, rendered.pdf)
+            out.file(args.output, rendered.pdf, force=args.force)
         info = stage_archive_option(args, b, out)
         out.commit()
     kind = "certificate draft" if args.certificate else "report"
     for m in b.measurands:
         print(stated_result(b, m).line)   # the validated result (JCGM 101 §8)
     if args.html:
-        print(f"{kind} (HTML) written to {args.html}")
+        print(f"{kind} (HTML) written to {shown_output(args.html)}")
     if rendered is not None:
         where = (f"; signature field on page {rendered.signature.page}"
                  if rendered.signature else "")
-        print(f"{kind} written to {args.output} ({rendered.pages} page"
+        print(f"{kind} written to {shown_output(args.output)} ({rendered.pages} page"
               f"{'' if rendered.pages == 1 else 's'}{where})")
     if info is not None:
         print(archive_message(info))

@@ -17,6 +17,7 @@ from datetime import UTC, datetime
 from pathlib import Path
 
 from ..errors import UsageError
+from ..outputs import new_folder_mode, temp_prefix
 from ..record import read_record_bytes
 from .extract import PreparedRecord, prepare
 from .store import DEFAULT_WAIT_S, Logbook
@@ -147,7 +148,8 @@ def export_book(lb: Logbook, out: str | Path) -> list[Path]:
     if not dest.parent.is_dir():
         raise UsageError("the parent folder does not exist", file=str(out), field="DIR")
     records = lb.all_records()          # every digest is checked before anything is written
-    tmp = Path(tempfile.mkdtemp(prefix=f".{dest.name}.", suffix=".part", dir=dest.parent))
+    tmp = Path(tempfile.mkdtemp(prefix=temp_prefix(dest), suffix=".part", dir=dest.parent))
+    os.chmod(tmp, new_folder_mode())  # mkdtemp makes it 0700
     try:
         lines, paths = [], []
         for rid, sha, raw in records:
