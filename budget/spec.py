@@ -41,7 +41,8 @@ REPORT_KEYS = ("laboratory", "laboratory_address", "accreditation", "report_numb
                "certificate_number", "item", "item_serial", "manufacturer", "customer",
                "customer_address", "operator", "approver", "approver_role", "measurement_date",
                "issue_date", "receipt_date", "method", "procedure", "traceability", "conditions",
-               "location", "remarks", "measurand", "item_condition", "adjustment")
+               "location", "remarks", "measurand", "item_condition", "adjustment",
+               "deviations", "external_providers", "decision_rule", "conformity")
 MC_KEYS = ("trials", "seed", "interval", "significant_digits", "max_trials", "enabled",
            "t_for_finite_dof", "sampling")
 CORRELATION_KEYS = ("pairs", "from_observations")

@@ -17,12 +17,13 @@ Sources:
 from __future__ import annotations
 
 import re
+from dataclasses import replace
 from pathlib import Path
 
 from numeric import near
 from scipy import stats
 
-from budget import evaluate, load_spec
+from budget import evaluate, load_spec, parse_spec
 from budget.report import render_html
 from budget.report.statement import stated_result
 
@@ -149,3 +150,32 @@ def test_without_monte_carlo_the_normal_is_an_assumption(tmp_path):
     assert not b.monte_carlo
     s = stated_result(b, b.measurand("Y"))
     assert s.method == "JCGM 100" and "did not check" in s.statement
+
+
+# ISO/IEC 17025:2017 §7.8.2.1 n and p, §7.8.6 (clause letters from memory)
+def _certificate_text(report: dict) -> str:
+    from budget.report import render_html
+    b = evaluate(parse_spec('[budget]\ntitle = "17025 fields (invented)"\n[model]\nY = "A"\n'
+                            '[inputs.A]\nvalue = 1\nstandard_uncertainty = 0.1\n'),
+                 monte_carlo_enabled=False)
+    b = replace(b, run={**b.run, "report": report})
+    return render_html(b, certificate=True, figures=False)
+
+
+def test_certificate_names_deviations_and_external_providers():
+    html = _certificate_text({"deviations": "none (invented)",
+                              "external_providers": "frequency comparison by a partner "
+                              "laboratory (invented)"})
+    assert "Deviations from, additions to or exclusions from the method" in html
+    assert "none (invented)" in html and "partner laboratory (invented)" in html
+    missing = _certificate_text({})
+    assert "(7.8.2.1 n)" in missing and "(7.8.2.1 p)" in missing
+
+
+def test_conformity_only_with_a_decision_rule():
+    with_rule = _certificate_text({"conformity": "within the specification (invented)",
+                                   "decision_rule": "simple acceptance, ILAC-G8 (invented)"})
+    assert "Statement of conformity" in with_rule and "within the specification" in with_rule
+    alone = _certificate_text({"conformity": "within the specification (invented)"})
+    assert "within the specification" not in alone
+    assert "no decision rule" in alone

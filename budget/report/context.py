@@ -42,6 +42,9 @@ FIELD_LABELS = {
     "traceability": "Metrological traceability", "conditions": "Environmental conditions",
     "location": "Location of the measurement", "remarks": "Remarks", "measurand": "Measurand",
     "adjustment": "Adjustment",
+    "deviations": "Deviations from, additions to or exclusions from the method",
+    "external_providers": "Results from external providers",
+    "decision_rule": "Decision rule", "conformity": "Statement of conformity",
 }
 
 #: What ISO/IEC 17025:2017 asks a calibration certificate to state, and the [report] key that
@@ -52,7 +55,8 @@ CERTIFICATE_ITEMS = (
     ("customer_address", "7.8.2.1 e"), ("method", "7.8.2.1 f"), ("item", "7.8.2.1 g"),
     ("item_serial", "7.8.2.1 g"), ("receipt_date", "7.8.2.1 h"),
     ("measurement_date", "7.8.2.1 i"), ("issue_date", "7.8.2.1 j"),
-    ("approver", "7.8.2.1 o"), ("approver_role", "7.8.2.1 o"),
+    ("deviations", "7.8.2.1 n"), ("approver", "7.8.2.1 o"), ("approver_role", "7.8.2.1 o"),
+    ("external_providers", "7.8.2.1 p"),
     ("conditions", "7.8.4.1 b"), ("traceability", "7.8.4.1 c"),
 )
 
@@ -362,4 +366,9 @@ def build_context(b: Budget, *, certificate: bool = False, draft: bool = True,
         ctx["cert_item"] = _header(rep, ("item", "manufacturer", "item_serial",
                                          "item_condition"))
         ctx["cert_dates"] = _header(rep, ("receipt_date", "measurement_date", "issue_date"))
+        # ISO/IEC 17025:2017 §7.8.6: a statement of conformity only with its decision rule
+        conformity = rep.get("conformity", "").strip()
+        rule = rep.get("decision_rule", "").strip()
+        ctx["conformity"] = (conformity, rule) if conformity and rule else None
+        ctx["conformity_without_rule"] = bool(conformity) and not rule
     return ctx
