@@ -237,9 +237,11 @@ def test_nonsense_history_rows_refused(tmp_path, module, value, k, field, words)
 
 def test_gain_history_may_not_be_refused_for_sign_but_k_is(tmp_path):
     # an amplifier *gain* history is dimensionless; k = 1 is the lowest accepted coverage factor
+    # (a standard uncertainty: p = 68.27 % of a normal, JCGM 100 G.1.3 / Table G.1, so the
+    # rows state that p; at the default 95 % no t distribution gives k = 1)
     (tmp_path / "hist.csv").write_text(
-        "date,value,expanded_uncertainty,coverage_factor\n2024-01-01,1000.0,0.002,1\n"
-        "2024-06-01,1000.001,0.002,1\n")
+        "date,value,expanded_uncertainty,coverage_factor,coverage_probability\n"
+        "2024-01-01,1000.0,0.002,1,0.6827\n2024-06-01,1000.001,0.002,1,0.6827\n")
     r = run_module(_ctx(tmp_path, module="amplifier", name="G", at="2024-12-01",
                         quantity="gain"))
     assert r.quantities[0].standard_uncertainty > 0

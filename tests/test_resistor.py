@@ -73,13 +73,18 @@ def test_recovers_truth_within_uncertainty(tmp_path):
 
 def test_consistent_scatter_keeps_stated_uncertainties(tmp_path):
     # scatter 0.3 of the stated u: χ² ≈ 0.09·χ²_10, far below the 5 % critical value 18.3
-    # (scipy.stats.chi2.ppf(0.95, 10)), so no inflation and ν = ∞
+    # (scipy.stats.chi2.ppf(0.95, 10)), so no inflation; k = 2 stated for 95.45 % is the
+    # normal quantile (JCGM 100 Table G.2, ν = ∞), so ν = ∞
     write_history(tmp_path, seed=3, scatter=0.3)
-    r = run_module(ctx(tmp_path, at=AT))
+    r = run_module(ctx(tmp_path, at=AT, coverage_probability=0.9545))
     q = r.quantities[0]
     assert not r.diagnostics["inflated"]
     assert math.isinf(q.dof) and q.distribution.kind == "normal"
     assert r.diagnostics["fit"]["dof"] is None          # JSON form of ∞
+    # at the default p = 95 % the same k = 2 implies ν_i ≈ 60 per calibration (t_0.975(60) =
+    # 2.000, t tables, memory), and the prediction's ν (G.2b over the calibrations) is finite
+    q95 = run_module(ctx(tmp_path, at=AT)).quantities[0]
+    assert q95.dof > 60 and q95.distribution.kind == "student-t"
 
 
 def test_coverage_over_many_seeds(tmp_path):

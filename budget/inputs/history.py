@@ -9,7 +9,9 @@ column                 meaning
 date                   ISO 8601 date or date-time of the calibration (required)
 value                  calibrated value in the quantity's unit (required)
 expanded_uncertainty   U of the certificate, same unit (required, > 0)
-coverage_factor        k of the certificate (required, >= 1); u_i = U_i / k_i
+coverage_factor        k of the certificate (required, >= 1); u_i = U_i / k_i, and ν_i from k_i
+coverage_probability   the p the certificate states k for (optional; blank: the spec's
+                       ``coverage_probability``, default 0.95); k = 1 rows need 0.6827
 reference              the calibrating laboratory's reference behind this calibration, free text
                        (optional; see ``common_standard_uncertainty``)
 temperature_C          temperature at which the value was obtained, °C (optional)
@@ -36,6 +38,16 @@ aᵀ diag(u_i² − u_c²) a + u_c²·aᵀSa. The second part is reported as its
 shared between runs; the first stays with ``NAME_cal``. When the calibrations scatter more than
 stated, only the independent part is inflated (the common part cannot show in the scatter).
 Every u_i must exceed u_c.
+
+Degrees of freedom from the coverage factors (``coverage_probability``)
+----------------------------------------------------------------------
+A certificate's k stated for a coverage probability p implies the degrees of freedom of its u:
+ν_i solves t_p(ν_i) = k_i (:func:`budget.coverage.dof_from_coverage_factor`; JCGM 100 G.4–G.6,
+Table G.2). ``coverage_probability`` (default 0.95, for every row) is the p the certificates
+state k for; k = 2.00 at 0.9545 gives ν_i = ∞, k = 2.00 at 0.95 gives ν_i = 60. When the fit
+keeps the stated uncertainties (not inflated), the prediction ŷ = Σ a_i y_i has the ν of
+Welch–Satterthwaite (JCGM 100 G.2b) over its independent parts w_i = a_i²(u_i² − u_c²):
+ν = (Σ w_i)² / Σ w_i²/ν_i. When the scatter inflated the covariance, ν = n − p of the fit.
 """
 
 from __future__ import annotations
@@ -47,12 +59,14 @@ from dataclasses import dataclass
 import numpy as np
 import pandas as pd
 
+from ..coverage import DEFAULT_CERTIFICATE_PROBABILITY
 from ..distributions import Distribution
 from ..errors import BudgetError, DataError
 from ..quantity import Provenance, Quantity
 from ..stats.regression import INFLATE_POLICIES, Fit, fit
 from ..warnings import Warning, warn
 from .context import InputContext
+from .history_dof import dof_from_certificates, row_dofs
 from .tables import date_column, numeric_column, parse_iso, read_table, row_ranges
 
 __all__ = [
@@ -71,13 +85,13 @@ __all__ = [
 
 #: Option keys every history module accepts.
 HISTORY_KEYS = frozenset({"file", "at", "drift", "inflate", "consistency_level", "exclude_rows",
-                          "nominal", "common_standard_uncertainty"})
+                          "nominal", "common_standard_uncertainty", "coverage_probability"})
 
 #: Lowest coverage factor accepted on a certificate: k < 1 would state U < u (common practice).
 MIN_COVERAGE_FACTOR = 1.0
 
 REQUIRED = ("date", "value", "expanded_uncertainty", "coverage_factor")
-OPTIONAL = ("temperature_C", "voltage_V", "certificate", "reference")
+OPTIONAL = ("temperature_C", "voltage_V", "certificate", "reference", "coverage_probability")
 _DAY = pd.Timedelta(days=1)
 
 
@@ -96,6 +110,11 @@ class History:
     certificates: tuple[str, ...]
     excluded: tuple[int, ...]
     references: tuple[str, ...] | None = None   # ``reference`` column; None without it
+    dof: np.ndarray | None = None    # ν_i inferred from each row's k (inf: normal); None: all ∞
+    k: np.ndarray | None = None      # coverage factors of the rows used
+    coverage_probability: float = DEFAULT_CERTIFICATE_PROBABILITY   # p the k are stated for
+    probability_stated: bool = False   # coverage_probability given in the spec or file
+    probabilities: np.ndarray | None = None   # p of each row used
 
 
 @dataclass(frozen=True)
@@ -115,6 +134,7 @@ class DriftPrediction:
     independent_cov: tuple[tuple[float, ...], ...] = ()   # parameter covariance without the
     #                                                      common part (days relative to at)
     warnings: tuple[Warning, ...] = ()   # the notes that change what the value means
+    dof_reason: str = ""         # how ν was obtained when it comes from the certificates' k
 
 
 def parse_when(ctx: InputContext, key: str = "at", default=None) -> pd.Timestamp | None:
@@ -166,6 +186,7 @@ def read_history(ctx: InputContext, *, voltage: bool = True, positive: bool = Fa
             i = int(neg[0])
             raise DataError(f"a {what} must be > 0; got {df['value'].iloc[i]!r} (give the "
                             "magnitude)", file=shown, row=i + 1, field="value")
+    dof, probs, p, stated = row_dofs(ctx, df, k, shown)
     temp = (numeric_column(df, "temperature_C", shown=shown, allow_blank=True)
             if "temperature_C" in df else None)
     volt = (numeric_column(df, "voltage_V", shown=shown, allow_blank=True)
@@ -189,7 +210,9 @@ def read_history(ctx: InputContext, *, voltage: bool = True, positive: bool = Fa
                    certificates=tuple(c for c, m in zip(certs, keep) if m),
                    excluded=tuple(sorted(set(excluded))),
                    references=None if refs is None else tuple(
-                       c for c, m in zip(refs, keep) if m))
+                       c for c, m in zip(refs, keep) if m),
+                   dof=dof[keep], k=k[keep], coverage_probability=p,
+                   probability_stated=stated, probabilities=probs[keep])
 
 
 def common_covariance(ctx: InputContext, hist: History) -> tuple[float, np.ndarray | None]:
@@ -283,10 +306,13 @@ def predict_drift(ctx: InputContext, hist: History, values: np.ndarray, at: pd.T
         notes.append(f"generalised least squares with a common part u_c = {uc:.6g} of each "
                      f"calibration's u ({groups}); it does not average away and is the row "
                      "NAME_common (JCGM 100 §5.2, F.1.2.3)".replace("NAME", ctx.name))
-    return DriftPrediction(fit=f, at=at, value=float(value), u=float(u), dof=f.dof,
+    dof, dof_reason = f.dof, ""
+    if not f.inflated and math.isinf(f.dof):
+        dof, dof_reason = dof_from_certificates(f, days, hist, uc, share)
+    return DriftPrediction(fit=f, at=at, value=float(value), u=float(u), dof=dof,
                            days_past_last=past, notes=tuple(notes), u_independent=float(u_ind),
                            u_common=float(u_com), common_standard_uncertainty=float(uc),
-                           independent_cov=cov_ind, warnings=tuple(ws))
+                           independent_cov=cov_ind, warnings=tuple(ws), dof_reason=dof_reason)
 
 
 def _split_common(f: Fit, days: np.ndarray, u: np.ndarray | None, uc: float,
@@ -315,7 +341,12 @@ def drift_quantity(ctx: InputContext, hist: History, pred: DriftPrediction, *, n
     f = pred.fit
     u_row = pred.u_independent
     kind = "straight line" if f.model == "line" else "constant (weighted mean)"
-    if math.isinf(pred.dof):
+    if pred.dof_reason:
+        dist = Distribution.student_t(pred.value, u_row, pred.dof)
+        dist_reason = ("scaled and shifted Student t with the ν the certificates' coverage "
+                       "factors imply (JCGM 101 §6.4.9.7)")
+        dof_reason = pred.dof_reason
+    elif math.isinf(pred.dof):
         dist = Distribution.normal(pred.value, u_row)
         dist_reason = ("normal: the certificates state normal expanded uncertainties and the "
                        "prediction is a linear combination of them")
