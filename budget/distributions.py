@@ -12,6 +12,13 @@ Standard deviations (JCGM 101 Table 1 / §6.4):
 * arcsine (U-shaped) on [a, b]: (b − a)/√8
 * trapezoidal on [a, b] with top-to-base ratio β: (b − a)·√((1 + β²)/24)
 * scaled and shifted Student t with ν > 2 and scale s: s·√(ν/(ν − 2))
+* sampled: the distribution of a sample (e.g. a quantity propagated from a fit's parameter
+  samples), kept as its quantile function at :data:`SAMPLED_POINTS` equally spaced
+  probabilities 0, 1/M, …, 1 (the sample's quantiles; the two end points chosen so that each
+  outer segment has the mean of the samples in its tail), linear in between, standardised and then scaled so that its expectation and standard deviation are
+  the sample's mean and standard deviation exactly. Drawn by inversion, x = F⁻¹(r) with r
+  uniform (JCGM 101 §6.4.1 / C.2, sampling from a distribution function); its shape — the
+  asymmetry of the sample — reaches the Monte Carlo method.
 """
 
 from __future__ import annotations
@@ -25,9 +32,12 @@ from scipy import special
 
 from .errors import BudgetError
 
-__all__ = ["Distribution", "KINDS"]
+__all__ = ["Distribution", "KINDS", "SAMPLED_POINTS"]
 
+#: kinds a spec may name (``sampled`` is made only by input modules, from their samples)
 KINDS = ("normal", "rectangular", "triangular", "arcsine", "trapezoidal", "student-t")
+#: number of quantiles kept for a ``sampled`` distribution (M + 1 with M = 256)
+SAMPLED_POINTS = 257
 
 
 @dataclass(frozen=True)
@@ -50,6 +60,10 @@ class Distribution:
         Trapezoid top-to-base ratio, 0 ≤ β ≤ 1 (NaN otherwise).
     dof : float
         Degrees of freedom of the Student t (NaN otherwise).
+    quantiles : tuple of float
+        ``sampled`` only: the standardised quantile function (mean 0, standard deviation 1)
+        at probabilities j/M, j = 0..M; ``loc`` and ``scale`` are then the mean and the
+        standard deviation.
     """
 
     kind: str
@@ -59,6 +73,7 @@ class Distribution:
     high: float = math.nan
     beta: float = math.nan
     dof: float = math.nan
+    quantiles: tuple[float, ...] = ()
 
     # ----------------------------------------------------------------- constructors
     @classmethod
@@ -108,6 +123,38 @@ class Distribution:
             raise BudgetError(f"a Student t needs finite dof > 0; got {dof!r}", field="dof")
         return cls("student-t", loc=float(loc), scale=float(scale), dof=float(dof))
 
+    @classmethod
+    def sampled(cls, samples: np.ndarray, mean: float | None = None, sd: float | None = None,
+                points: int = SAMPLED_POINTS) -> Distribution:
+        """The distribution of ``samples`` kept as a quantile table (module docstring).
+
+        Parameters
+        ----------
+        samples : array-like
+            The sample (same unit as the quantity), at least ``points`` finite values.
+        mean, sd : float, optional
+            Expectation and standard deviation to give it (default: the sample's, ddof = 1).
+        points : int
+            Quantiles kept (default :data:`SAMPLED_POINTS`).
+        """
+        x = np.asarray(samples, dtype=float)
+        if x.size < points or not np.all(np.isfinite(x)):
+            raise BudgetError(f"a sampled distribution needs at least {points} finite "
+                              "samples", field="distribution")
+        m = float(np.mean(x)) if mean is None else float(mean)
+        s = float(np.std(x, ddof=1)) if sd is None else float(sd)
+        x = np.sort(x)
+        q = np.quantile(x, np.linspace(0.0, 1.0, points))
+        # end points: each outer segment (probability 1/M) gets the mean of the samples in its
+        # tail, so a long tail is neither cut off nor stretched to the sample's extreme
+        tail = max(1, int(round(x.size / (points - 1))))
+        q[0] = min(q[1], 2 * float(np.mean(x[:tail])) - q[1])
+        q[-1] = max(q[-2], 2 * float(np.mean(x[-tail:])) - q[-2])
+        z = _standardise(q)
+        if z is None or not s > 0:
+            return cls.normal(m, max(s, 0.0))
+        return cls("sampled", loc=m, scale=s, quantiles=tuple(float(v) for v in z))
+
     @staticmethod
     def _check_bounds(low: float, high: float) -> None:
         if not (math.isfinite(low) and math.isfinite(high)):
@@ -145,6 +192,8 @@ class Distribution:
             if self.dof <= 2:
                 return math.inf
             return self.scale * math.sqrt(self.dof / (self.dof - 2))
+        if self.kind == "sampled":
+            return self.scale
         raise BudgetError(f"unknown distribution {self.kind!r}", field="distribution")
 
     @property
@@ -154,6 +203,8 @@ class Distribution:
         Triangular on [a, b] with mode c: γ = √2 (a + b − 2c)(2a − b − c)(a − 2b + c) /
         (5 (a² + b² + c² − ab − ac − bc)^{3/2}) (common practice; scipy.stats.triang agrees).
         """
+        if self.kind == "sampled":
+            return _table_moment(np.asarray(self.quantiles), 3)
         if self.kind != "triangular":
             return 0.0
         a, b, c = self.low, self.high, self.loc
@@ -183,6 +234,8 @@ class Distribution:
             return 3 - 1.2 * (v1 ** 2 + v2 ** 2) / (v1 + v2) ** 2
         if self.kind == "student-t":
             return 3 + 6 / (self.dof - 4) if self.dof > 4 else math.inf
+        if self.kind == "sampled":
+            return _table_moment(np.asarray(self.quantiles), 4)
         raise BudgetError(f"unknown distribution {self.kind!r}", field="distribution")
 
     @property
@@ -211,6 +264,8 @@ class Distribution:
             return a + (b - a) / 2 * ((1 + self.beta) * r1 + (1 - self.beta) * r2)
         if self.kind == "student-t":
             return self.loc + self.scale * rng.standard_t(self.dof, n)
+        if self.kind == "sampled":
+            return self.ppf(rng.random(n))
         raise BudgetError(f"unknown distribution {self.kind!r}", field="distribution")
 
     def ppf(self, p: np.ndarray) -> np.ndarray:
@@ -232,6 +287,9 @@ class Distribution:
             return self.loc + self.scale * special.stdtrit(self.dof, p)
         if self.kind == "trapezoidal":
             return self._trapezoid_ppf(np.asarray(p, dtype=float))
+        if self.kind == "sampled":
+            z = np.asarray(self.quantiles)
+            return self.loc + self.scale * np.interp(p, np.linspace(0.0, 1.0, z.size), z)
         raise BudgetError(f"unknown distribution {self.kind!r}", field="distribution")
 
     def _trapezoid_ppf(self, p: np.ndarray) -> np.ndarray:
@@ -260,12 +318,16 @@ class Distribution:
             return f"Student t (ν = {self.dof:g})"
         if self.kind == "trapezoidal":
             return f"trapezoidal (β = {self.beta:g})"
+        if self.kind == "sampled":
+            return f"sampled (skewness {self.skewness:.2g})"
         return self.kind
 
     def to_dict(self) -> dict[str, Any]:
         """JSON-ready form: the kind plus only the parameters it uses."""
         d: dict[str, Any] = {"kind": self.kind}
-        if self.kind in ("normal", "student-t"):
+        if self.kind == "sampled":
+            d.update(loc=self.loc, scale=self.scale, quantiles=list(self.quantiles))
+        elif self.kind in ("normal", "student-t"):
             d.update(loc=self.loc, scale=self.scale)
             if self.kind == "student-t":
                 d["dof"] = self.dof
@@ -292,4 +354,39 @@ class Distribution:
             return cls.arcsine(d["low"], d["high"])
         if kind == "trapezoidal":
             return cls.trapezoidal(d["low"], d["high"], d["beta"])
+        if kind == "sampled":
+            z = np.asarray(d["quantiles"], dtype=float)
+            if (z.ndim != 1 or z.size < 3 or not np.all(np.isfinite(z))
+                    or np.any(np.diff(z) < 0) or not float(d["scale"]) >= 0):
+                raise BudgetError("a sampled distribution needs at least 3 finite, "
+                                  "non-decreasing quantiles and a scale >= 0",
+                                  field="distribution")
+            return cls("sampled", loc=float(d["loc"]), scale=float(d["scale"]),
+                       quantiles=tuple(float(v) for v in z))
         raise BudgetError(f"unknown distribution {kind!r}", field="distribution")
+
+
+def _segment_moments(q: np.ndarray, k: int) -> float:
+    """∫₀¹ Q(p)^k dp for Q linear between the table values q_j at p = j/M (exact: 3-point
+    Gauss–Legendre on each segment integrates polynomials up to degree 5)."""
+    nodes, weights = np.polynomial.legendre.leggauss(3)
+    t = (nodes + 1) / 2                      # on [0, 1]
+    a, b = q[:-1, None], q[1:, None]
+    vals = (a + (b - a) * t[None, :]) ** k
+    return float(np.sum(vals @ (weights / 2)) / (q.size - 1))
+
+
+def _standardise(q: np.ndarray) -> np.ndarray | None:
+    """The quantile table shifted and scaled to mean 0 and standard deviation 1 (None when
+    it has no spread)."""
+    m = _segment_moments(q, 1)
+    var = _segment_moments(q - m, 2)
+    if not var > 0:
+        return None
+    return (q - m) / math.sqrt(var)
+
+
+def _table_moment(z: np.ndarray, k: int) -> float:
+    """Standardised k-th moment of a standardised quantile table (skewness k = 3, kurtosis
+    k = 4)."""
+    return _segment_moments(z, k)

@@ -47,7 +47,13 @@ def test_single_quantity_with_provenance(tmp_path):
     assert r.expression is None and len(r.quantities) == 1
     q = r.quantities[0]
     assert q.name == "delta_pump" and q.unit == "1" and q.evaluation == "A"
-    assert q.distribution.kind == "normal"
+    assert q.distribution.kind == "sampled"      # issue 11 item 12: the sampled shape is kept
+    assert q.distribution.mean == q.value and q.distribution.std == q.standard_uncertainty
+    # its quantile function is the samples': the 2.5 % and 97.5 % points match the sampled
+    # interval (numpy.quantile of the same draws, the oracle) to the table's resolution
+    lo, hi = r.diagnostics["prediction"]["interval_95"]
+    got = q.distribution.ppf(np.array([0.025, 0.975]))
+    assert got[0] == near(lo, abs=0.02 * (hi - lo)) and got[1] == near(hi, abs=0.02 * (hi - lo))
     assert q.provenance.origin == "module:pump"
     assert q.provenance.notes[0].startswith("model extrapolation, not a measurement")
     assert q.provenance.files[0].path == "scan.csv" and q.provenance.files[0].rows == "1-181"

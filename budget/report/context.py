@@ -74,6 +74,9 @@ def _distribution_text(q) -> str:
         return "normal"
     if d.kind == "student-t":
         return f"scaled and shifted t, ν = {fmt_dof(d.dof)}, scale {sci(fmt_u(d.scale))}{unit}"
+    if d.kind == "sampled":
+        return (f"sampled (quantile function of the module's samples), skewness "
+                f"{fmt_num(d.skewness, 2)}")
     bounds = f"[{value_u(d.low, u)}, {value_u(d.high, u)}]{unit}"
     if d.kind == "triangular":
         return f"triangular on {bounds}, mode {value_u(d.loc, u)}"

@@ -80,6 +80,10 @@ def distribution_words(d: dict, unit: str) -> str:
     if kind in ("normal", "student-t"):
         extra = f", ν = {fmt_dof(d.get('dof'))}" if kind == "student-t" else ""
         return f"{kind} (centre {d.get('loc', 0):.10g}, scale {d.get('scale', 0):.6g}{extra})"
+    if kind == "sampled":
+        n = len(d.get("quantiles", []))
+        return (f"sampled (mean {d.get('loc', 0):.10g}, standard deviation "
+                f"{d.get('scale', 0):.6g}; quantile function kept at {n} points)")
     if "low" in d:
         return f"{kind} on [{d['low']:.10g}, {d['high']:.10g}]{_unit(unit)}"
     return kind

@@ -59,7 +59,7 @@ from typing import Any
 
 import numpy as np
 
-from ...distributions import Distribution
+from ...distributions import SAMPLED_POINTS, Distribution
 from ...quantity import ModuleResult, Provenance, Quantity
 from ...warnings import warn
 from ..context import InputContext
@@ -210,16 +210,26 @@ def quantities_of(analysis: PumpAnalysis, name: str, half_width: float | None,
     else:
         dof_reason = (f"ν = {rec.dof:g}: degrees of freedom of the fit residuals (points − "
                       "parameters), which set the covariance scale")
+    if p.draws is not None and p.std > 0:
+        dist = Distribution.sampled(p.draws, mean=p.mean, sd=p.std)
+        dist_reason = (f"the sampled distribution of δ itself, kept as its quantile function "
+                       f"({SAMPLED_POINTS} quantiles of the {p.samples} samples) so that the "
+                       f"Monte Carlo method draws its shape (skewness {p.skewness:.2g}; 95 % of "
+                       f"samples in [{p.low_95:.3g}, {p.high_95:.3g}]); mean and standard "
+                       "deviation as sampled (JCGM 101 §6.4.1, sampling by inversion)")
+    else:
+        dist = Distribution.normal(p.mean, p.std)
+        dist_reason = (f"normal with the mean and standard deviation of the sampled δ "
+                       f"(skewness {p.skewness:.2g}; 95 % of samples in "
+                       f"[{p.low_95:.3g}, {p.high_95:.3g}])")
     q = Quantity(
         name=fit_name, value=p.mean, standard_uncertainty=p.std,
-        distribution=Distribution.normal(p.mean, p.std), unit="1", dof=rec.dof, evaluation="A",
+        distribution=dist, unit="1", dof=rec.dof, evaluation="A",
         description=(f"pump error δ = ⟨n⟩/n − 1 on plateau {n} at {at}, predicted by the "
                      f"{a.model} model (model extrapolation, not a measurement)"),
         provenance=Provenance(
             origin="module:pump", method=method,
-            distribution_reason=(f"normal with the mean and standard deviation of the sampled δ "
-                                 f"(skewness {p.skewness:.2g}; 95 % of samples in "
-                                 f"[{p.low_95:.3g}, {p.high_95:.3g}])"),
+            distribution_reason=dist_reason,
             dof_reason=dof_reason, files=tuple(files), notes=a.notes,
             warnings=_warnings_of_notes(a.notes)))
     if half_width is None:

@@ -248,6 +248,8 @@ class Prediction:
     seed: int
     differs: bool
     details: dict = field(default_factory=dict)
+    draws: Any = field(default=None, repr=False, compare=False)   # the sampled δ (ndarray),
+    #                                 for the budget row's sampled distribution
 
     def to_dict(self) -> dict[str, Any]:
         return {"delta_at_fit": self.best, "mean": self.mean, "standard_uncertainty": self.std,
@@ -312,4 +314,4 @@ def predict_delta(model: Any, theta: np.ndarray, cov: np.ndarray, point: dict, p
         bool(std == 0 and lin > 0)
     return Prediction(best=best, mean=mean, std=std, linear_std=lin, low_95=lo, high_95=hi,
                       median=med, skewness=skew, samples=int(samples), seed=int(seed),
-                      differs=differs)
+                      differs=differs, draws=d)
