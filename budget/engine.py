@@ -16,7 +16,7 @@ from .inputs import InputContext, run_module
 from .inputs.direct import evaluate_direct, observations_of
 from .model import Model, build_model
 from .propagate import McmSettings, compare_lpu_mcm, monte_carlo, propagate_linear
-from .propagate.lpu import correlation_groups
+from .propagate.lpu import correlation_groups, coverage_factor
 from .propagate.mcm import adaptive_batch_size
 from .quantity import Quantity
 from .result import Budget, Measurand, MonteCarlo, Term
@@ -251,6 +251,7 @@ def evaluate(spec: Spec, *, trials: int | None | str = "spec", seed: int | None 
             warnings.append(warn("model.zero_sensitivity", notes[-1],
                                  severity="warning" if spec.propagation_order == 1 else "note"))
     notes.extend(_propagation_notes(spec, qs, resolved))
+    notes.extend(_dof_rounding_notes(spec, measurands))
     sd = np.sqrt(np.clip(np.diag(cov), 0, None))
     with np.errstate(divide="ignore", invalid="ignore"):
         cm = np.where(np.outer(sd, sd) > 0, cov / np.outer(sd, sd), 0.0)
@@ -404,6 +405,36 @@ def _at_spec(exc: BudgetError, spec: Spec) -> BudgetError:
     elif exc.field and exc.field.startswith("budget."):
         line = spec.line_of(("budget",), exc.field.split(".", 1)[1])
     return exc.located(file=spec.path, line=line)
+
+
+def _dof_rounding_notes(spec: Spec, measurands) -> list[str]:
+    """Say what the other reading of a fractional ν_eff would give when it matters.
+
+    JCGM 100 G.6.4 (and G.4.1 note 1) lets a fractional ν_eff be truncated to the next lower
+    integer or interpolated in Table G.2; both conform. Where the two k differ by more than
+    1 % (small ν_eff), the note states both, so that an auditor sees the choice."""
+    if spec.coverage_factor is not None:
+        return []
+    out = []
+    other = "interpolate" if spec.dof_rounding == "floor" else "floor"
+    for m in measurands:
+        nu = m.effective_dof
+        if not (math.isfinite(nu) and nu > 0) or abs(nu - round(nu)) < 1e-9:
+            continue
+        k_other = coverage_factor(m.coverage_probability, nu, other)
+        if abs(k_other / m.coverage_factor - 1) <= 0.01:
+            continue
+        p = f"{100 * m.coverage_probability:g} %"
+        if spec.dof_rounding == "floor":
+            out.append(f"{m.name}: ν_eff = {nu:.1f} truncated to {max(1, math.floor(nu))} "
+                       f"(JCGM 100 G.6.4 allows truncating or interpolating): k = "
+                       f"{m.coverage_factor:.3g} at {p}; the fractional ν gives k = "
+                       f"{k_other:.3g} (dof_rounding = \"interpolate\")")
+        else:
+            out.append(f"{m.name}: ν_eff = {nu:.1f} used as it is (dof_rounding = "
+                       f"\"interpolate\", JCGM 100 G.6.4): k = {m.coverage_factor:.3g} at "
+                       f"{p}; truncating to {max(1, math.floor(nu))} gives k = {k_other:.3g}")
+    return out
 
 
 def _measurand(spec: Spec, model: Model, lr, qs: list[Quantity]) -> Measurand:

@@ -208,3 +208,28 @@ def test_fixed_k_states_the_probability_it_gives():
     free = evaluate(spec_of(FIXED_K.replace("coverage_factor = 2", "")),
                     monte_carlo_enabled=False).measurand("Y")
     assert free.coverage_probability_of_k == near(0.95, rel=1e-12)
+
+
+@pytest.mark.parametrize("rounding,k", [("floor", 3.182), ("interpolate", 2.87)])
+def test_fractional_nu_truncated_or_interpolated_as_g64_allows(rounding, k):
+    # Issue 11 item 2: U = 0.287 with k = 2.87 stated for 95 % implies ν = 3.7. JCGM 100 G.6.4
+    # (and G.4.1 note 1; wording from memory) allows truncating a fractional ν_eff to the next
+    # lower integer or interpolating in Table G.2. Truncated: k = t_0.975(3) = 3.182 (t tables,
+    # NIST TN 1297 Table B.1: 3.18); the fractional ν gives the certificate's own 2.87 back.
+    # Either way the note states the other reading, since they differ by more than 1 %.
+    b = evaluate(spec_of(f"""
+        [budget]
+        title = "g64"
+        dof_rounding = "{rounding}"
+        [model]
+        Y = "X"
+        [inputs.X]
+        value = 1.0
+        expanded_uncertainty = 0.287
+        coverage_factor = 2.87
+        """), monte_carlo_enabled=False)
+    m = b.measurands[0]
+    assert m.effective_dof == near(3.7, abs=0.05)
+    assert m.coverage_factor == near(k, abs=0.0005)
+    note = next(n for n in b.run["notes"] if n.startswith("Y: ν_eff = 3.7"))
+    assert "G.6.4" in note and ("2.87" in note if rounding == "floor" else "3.18" in note)
