@@ -42,21 +42,24 @@ ROOT = Path(__file__).resolve().parent.parent
 
 # module → the test files that check it (run with -x against each mutant)
 MODULES: dict[str, list[str]] = {
-    "budget.coverage": ["test_coverage.py", "test_coverage_factor_grid.py"],
-    "budget.propagate.lpu": ["test_lpu.py", "test_coverage_factor_grid.py",
+    "budget.coverage": ["test_core_gaps.py", "test_coverage.py", "test_coverage_factor_grid.py"],
+    "budget.propagate.lpu": ["test_core_gaps.py", "test_lpu.py", "test_coverage_factor_grid.py",
                              "test_second_order.py", "test_dof_correlated.py"],
     "budget.propagate.validate": ["test_mcm.py", "test_mcm_adaptive_stop.py"],
-    "budget.propagate.mcm": ["test_mcm_adaptive_stop.py", "test_mcm.py", "test_second_order.py"],
-    "budget.distributions": ["test_distributions.py", "test_mcm.py"],
-    "budget.stats.allan": ["test_allan.py", "test_allan_blocks.py"],
-    "budget.stats.autocorr": ["test_autocorr.py"],
+    "budget.propagate.mcm": ["test_mcm_adaptive_stop.py", "test_mcm.py", "test_mcm_rqmc.py",
+                             "test_second_order.py"],
+    "budget.distributions": ["test_distribution_ppf.py", "test_distributions.py",
+                             "test_second_order.py", "test_mcm.py"],
+    "budget.stats.allan": ["test_core_gaps.py", "test_allan.py", "test_allan_blocks.py"],
+    "budget.stats.autocorr": ["test_autocorr_bounds.py", "test_autocorr.py"],
     "budget.stats.regression": ["test_regression.py", "test_history_common.py"],
     "budget.stats.onoff": ["test_cycles.py"],
     "budget.stats.typea": ["test_cycles.py", "test_autocorr.py"],
-    "budget.compare": ["test_compare_unequal.py", "test_compare.py",
+    "budget.compare": ["test_core_gaps.py", "test_compare_unequal.py", "test_compare.py",
                        "test_compare_covariance.py"],
-    "budget.inputs.pump.cascade": ["test_pump_cascade_scale.py", "test_pump_cascade.py"],
-    "budget.inputs.pump.escape": ["test_pump_escape.py"],
+    "budget.inputs.pump.cascade": ["test_core_gaps.py", "test_pump_cascade_scale.py",
+                                   "test_pump_cascade.py"],
+    "budget.inputs.pump.escape": ["test_core_gaps.py", "test_pump_escape.py"],
 }
 
 # the bugs of issue 18 that once passed the whole suite: (module, old text, new text, tests)
