@@ -187,6 +187,8 @@ def test_allan_white_fm_held_beyond_range_with_range_in_notes(tmp_path):
     assert q.standard_uncertainty / F0 / 1e-13 == near(1.0, rel=1e-12)
     notes = " ".join(q.provenance.notes)
     assert "1 s … 100 s" in notes and "held" in notes and "360 times" in notes
+    # a number that rests on an assumption beyond the stated range is a warning (issue 12)
+    assert [w.code for w in q.provenance.warnings] == ["frequency.extrapolation"]
 
 
 def test_allan_rising_law_extrapolated_with_note(tmp_path):
@@ -195,6 +197,7 @@ def test_allan_rising_law_extrapolated_with_note(tmp_path):
     # random-walk FM, μ = +1: σ_y(T) = σ_y(τ)·√(T/τ) = 1e-13·20 (NIST SP 1065, memory)
     assert q.standard_uncertainty / F0 / 1e-13 == near(20.0, rel=1e-12)
     assert any("extrapolated beyond" in n for n in q.provenance.notes)
+    assert [w.code for w in q.provenance.warnings] == ["frequency.extrapolation"]
 
 
 def test_allan_range_end_below_tau_refused(tmp_path):

@@ -189,3 +189,22 @@ def test_no_transient_gives_the_floor(tmp_path, capsys):
     assert rc == 0
     s = cycles_diag(rec)["settling"][0]
     assert s["settle_s"] == 2.0 and s["choice"]["by"] == "floor"
+
+
+def test_half_test_is_welch_t_as_scipy_computes_it(record):
+    # reference: scipy.stats.ttest_ind(equal_var=False) on the same e values
+    from scipy import stats
+    t, y, on = record
+    h = settling.half_test(t, y, on, 30.0)
+    seg = settling.onoff.segment(t, y, on, 30.0)
+    e = []
+    for j in range(1, seg.count - 1):
+        v = y[seg.start[j]:seg.stop[j]][seg.keep[seg.start[j]:seg.stop[j]]]
+        k = len(v) // 2
+        e.append((seg.on[j], v[:k].mean() - v[len(v) - k:].mean()))
+    a = [x for s, x in e if s]
+    b = [x for s, x in e if not s]
+    r = stats.ttest_ind(a, b, equal_var=False)
+    assert h.statistic == near(float(r.statistic), rel=1e-9)
+    assert h.p_value == near(float(r.pvalue), rel=1e-6)
+    assert h.dof == near(float(r.df), rel=1e-9)

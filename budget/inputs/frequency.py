@@ -78,6 +78,7 @@ import pandas as pd
 from ..distributions import Distribution
 from ..errors import DataError
 from ..quantity import ModuleResult, Provenance, Quantity
+from ..warnings import warn
 from .context import InputContext
 from .corrections import bounded_or_standard, relative_term
 from .history import History, common_quantity, parse_when, predict_drift
@@ -275,8 +276,10 @@ def _stability(ctx: InputContext, name: str) -> tuple[Quantity | None, dict]:
         reason=("the mean of many fluctuations over T (central limit); for white frequency "
                 "noise the Allan variance at τ equals the variance of τ-averages"),
         notes=tuple(notes))
+    ws = tuple(warn("frequency.extrapolation", n) for n in notes[1:])
     q = dataclasses.replace(q, provenance=dataclasses.replace(q.provenance,
-                                                              across_runs="independent"))
+                                                              across_runs="independent",
+                                                              warnings=ws))
     return q, {"stability": {"allan_deviation": sigma, "allan_tau_s": tau,
                              "allan_tau_max_s": tau_max, "measurement_time_s": t_meas,
                              "averaging_time_used_s": t_used, "held_at_range_end":

@@ -293,12 +293,14 @@ def predict_drift(ctx: InputContext, hist: History, values: np.ndarray, at: pd.T
         ws.append(warn("history.inflated", notes[-1] + "; the covariance was scaled up"))
     elif f.weighted and f.nu > 0 and f.birge_ratio > 1:
         notes.append(f"Birge ratio {f.birge_ratio:.3g} > 1 but not inflated: {f.verdict}")
+        ws.append(warn("history.not_inflated", notes[-1], severity="note"))
     if f.nu == 0:
         notes.append(f"{f.n} {event}(s) for {len(f.params)} parameter(s): the scatter "
                      "cannot be checked against the stated uncertainties")
         ws.append(warn("history.degenerate_fit", notes[-1]))
     if hist.excluded:
         notes.append(f"rows excluded by the spec (exclude_rows): {row_ranges(hist.excluded)}")
+        ws.append(warn("history.excluded_rows", notes[-1], severity="note"))
     if share is not None:
         groups = "one reference for all rows" if hist.references is None else (
             f"{len(set(r for r in hist.references if r))} reference(s) in the 'reference' "
