@@ -15,6 +15,7 @@ from .errors import BudgetError, ComputationError, SpecError, did_you_mean
 from .inputs import InputContext, run_module
 from .inputs.direct import evaluate_direct, observations_of
 from .model import Model, build_model
+from .model_units import apply_units
 from .propagate import McmSettings, compare_lpu_mcm, monte_carlo, propagate_linear
 from .propagate.lpu import correlation_groups, coverage_factor
 from .propagate.mcm import adaptive_batch_size
@@ -56,6 +57,8 @@ def resolve_inputs(spec: Spec) -> ResolvedInputs:
     owner: dict[str, str] = {}
     dof_groups: list[list[str]] = []   # estimation groups for ν_eff (propagate.lpu)
     found: list[Warning] = []
+    unstated: set[str] = set()   # typed-in inputs without a unit: dimension not checked
+    module_units: dict[str, str] = {}   # module input -> unit of its combining expression
     for name, table in spec.inputs.items():
         ctx = InputContext(name=name, table=table, folder=spec.folder, spec_file=spec.path,
                            lines=spec.lines.get(("inputs", name), {}))
@@ -73,6 +76,8 @@ def resolve_inputs(spec: Spec) -> ResolvedInputs:
                     raise SpecError(f"module expression uses unknown {sorted(missing)}",
                                     file=spec.path, field=f"inputs.{name}")
                 inlined[name] = tree
+                if res.unit is not None:
+                    module_units[name] = res.unit
             module_pairs.extend(res.correlations)
             dof_groups.extend(_module_dof_groups(qs, res.correlations))
             found.extend(with_input(res.warnings, name))
@@ -81,6 +86,8 @@ def resolve_inputs(spec: Spec) -> ResolvedInputs:
                              "diagnostics": res.diagnostics}
         else:
             qs = [evaluate_direct(ctx)]
+            if "unit" not in table:
+                unstated.add(name)
         for q in qs:
             if q.name in owner or q.name in spec.constants or q.name in spec.outputs:
                 raise SpecError(f"the name '{q.name}' is defined twice (by [inputs.{name}] and "
@@ -149,8 +156,10 @@ def resolve_inputs(spec: Spec) -> ResolvedInputs:
     _check_psd(corr, [q.name for q in quantities], spec)
     # simultaneous observations are one sample: their joint variance has ν = n − 1 exactly
     dof_groups.extend(list(g) for g in spec.from_observations)
-    return ResolvedInputs(quantities, corr, inlined, modules, pairs, [], dof_groups,
-                          unique(found))
+    out = ResolvedInputs(quantities, corr, inlined, modules, pairs, [], dof_groups,
+                         unique(found))
+    out.unstated, out.module_units = unstated, module_units
+    return out
 
 
 def _module_dof_groups(qs: list[Quantity], correlations) -> list[list[str]]:
@@ -217,6 +226,9 @@ def evaluate(spec: Spec, *, trials: int | None | str = "spec", seed: int | None 
     model = build_model(spec.outputs, quantities=qnames, constants=spec.constants,
                         inlined=resolved.inlined, file=spec.path,
                         lines=spec.lines.get(("model",), {}))
+    # dimensions checked and display units applied once, on the trees (budget.model_units)
+    model, labels = apply_units(spec, model, qs, resolved.unstated, resolved.inlined,
+                                resolved.module_units)
     notes = list(resolved.notes)
     warnings = list(resolved.warnings)
     used = set().union(*(model.uses(o) for o in model.outputs))
@@ -231,7 +243,7 @@ def evaluate(spec: Spec, *, trials: int | None | str = "spec", seed: int | None 
                                     dof_groups=resolved.dof_groups)
     except BudgetError as exc:
         raise _at_spec(exc, spec) from None
-    measurands = tuple(_measurand(spec, model, lin[o], qs) for o in model.outputs)
+    measurands = tuple(_measurand(spec, model, lin[o], qs, labels) for o in model.outputs)
     long = [m.name for m in measurands if m.terms and not any(t.derivative for t in m.terms)]
     if long:
         notes.append(f"{', '.join(long)}: the model is too large for every ∂f/∂x to be written "
@@ -437,7 +449,8 @@ def _dof_rounding_notes(spec: Spec, measurands) -> list[str]:
     return out
 
 
-def _measurand(spec: Spec, model: Model, lr, qs: list[Quantity]) -> Measurand:
+def _measurand(spec: Spec, model: Model, lr, qs: list[Quantity],
+               labels: dict[str, str]) -> Measurand:
     tree = model.trees[lr.name]
     used = ex.names(tree)
     by_name = {q.name: q for q in qs}
@@ -461,7 +474,7 @@ def _measurand(spec: Spec, model: Model, lr, qs: list[Quantity]) -> Measurand:
     if not math.isfinite(lr.standard_uncertainty):  # pragma: no cover - guarded upstream
         raise ComputationError("combined standard uncertainty is not finite",
                                field=f"model.{lr.name}")
-    return Measurand(name=lr.name, unit=spec.units.get(lr.name, ""), value=lr.value,
+    return Measurand(name=lr.name, unit=labels.get(lr.name, ""), value=lr.value,
                      standard_uncertainty=lr.standard_uncertainty,
                      effective_dof=lr.effective_dof, coverage_factor=lr.coverage_factor,
                      coverage_probability=lr.coverage_probability,

@@ -212,5 +212,8 @@ class ModuleResult:
     quantities: tuple[Quantity, ...]
     expression: str | None = None
     correlations: tuple[tuple[str, str, float], ...] = ()
+    #: unit of the value ``expression`` gives, when its numbers carry one (frequency: a
+    #: nominal in Hz times relative factors); None: inferred from the quantities' units
+    unit: str | None = None
     diagnostics: dict[str, Any] = field(default_factory=dict)
     warnings: tuple[Warning, ...] = ()

@@ -98,6 +98,10 @@ class Spec:
     # procedure, "random" for a fixed number of trials (resolved by the engine, which knows
     # whether --trials overrides the spec)
     sampling: str | None = None
+    #: output -> the unit its expression gives numbers in, when not coherent SI (a chain's)
+    working_units: dict[str, str] = field(default_factory=dict)
+    #: constant -> its unit as stated in ``[constants]`` ({value = 600, unit = "MHz"})
+    constant_units: dict[str, str] = field(default_factory=dict)
     lines: dict[tuple[str, ...], dict[str, int]] = field(default_factory=dict, repr=False)
 
     def line_of(self, section: tuple[str, ...], key: str = "") -> int | None:
@@ -236,10 +240,7 @@ def parse_spec(text: str, *, file: str = "<string>", folder: Path | None = None,
                                            f"{did_you_mean(k, outputs)}")
         units[k] = chk.string(("units",), data["units"], k, "")
 
-    constants = {}
-    for k in data.get("constants", {}):
-        chk.ident(("constants",), k)
-        constants[k] = chk.number(("constants",), data["constants"], k, None)
+    constants, constant_units = _constants(chk, data.get("constants", {}))
     for k, v in chain_constants.items():
         if k in constants and constants[k] != v:
             raise chk.error(("constants",), k, f"conflicts with {k} = {v:g} in [model]")
@@ -319,7 +320,40 @@ def parse_spec(text: str, *, file: str = "<string>", folder: Path | None = None,
                 correlation_pairs=tuple(pairs), from_observations=tuple(groups), trials=trials,
                 seed=seed, interval=interval, significant_digits=ndig, max_trials=max_trials,
                 monte_carlo_enabled=enabled, report=report, t_for_finite_dof=t_dof, chain=chain,
-                sampling=sampling, lines=lines)
+                sampling=sampling, working_units=units_from_chain,
+                constant_units=constant_units, lines=lines)
+
+
+
+def _constants(chk, table: dict[str, Any]) -> tuple[dict[str, float], dict[str, str]]:
+    """``[constants]``: plain numbers (dimensionless) or ``{value = ..., unit = "..."}``
+    tables, converted to coherent SI once (budget.units)."""
+    constants: dict[str, float] = {}
+    units: dict[str, str] = {}
+    for k, v in table.items():
+        chk.ident(("constants",), k)
+        if not isinstance(v, dict):
+            constants[k] = chk.number(("constants",), table, k, None)
+            continue
+        sect = ("constants", k)
+        extra = sorted(set(v) - {"value", "unit"})
+        if extra or "value" not in v:
+            raise chk.error(("constants",), k, "a constant with a unit is a table "
+                            "{value = NUMBER, unit = \"UNIT\"}" + (f"; unknown key {extra[0]!r}"
+                                                                  if extra else ""))
+        value = chk.number(sect, v, "value", None)
+        text = chk.string(sect, v, "unit", "1")
+        from .units import UnitError, parse_unit
+        try:
+            unit = parse_unit(text)
+        except UnitError as exc:
+            raise chk.error(("constants",), k, str(exc)) from None
+        if k == "n" and not (unit.dimensionless and unit.scale == 1):
+            raise chk.error(("constants",), k, f"n counts electrons per cycle and carries no "
+                            f"unit; got {text!r}")
+        constants[k] = unit.to_si(value)
+        units[k] = unit.si
+    return constants, units
 
 
 def check_trials(n: int, *, file: str | None = None, line: int | None = None,

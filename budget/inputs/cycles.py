@@ -19,7 +19,10 @@ files : list of str
     Several records, pooled: each is cut into cycles on its own (no cycle spans two files) and
     the differences of all files are analysed together.
 unit : str
-    Unit of ``reading`` and of the result. Default ``"V"``.
+    Unit of ``reading``, e.g. ``"µV"`` or ``"nA"`` (:mod:`budget.units`). The result is
+    converted to the coherent SI unit (V, A) before propagation; an offset scale (°C) is
+    refused, the result being a difference. The diagnostics and figures stay in this unit.
+    Default ``"V"``.
 settle_s : float
     Readings closer than this to the first reading of their segment (the switch) are discarded,
     s. Default: derived from the record (:mod:`budget.inputs.settling`): the shortest time
@@ -75,7 +78,7 @@ less than the nominal probability (about 92 % instead of 95 % in the tests' flic
 from __future__ import annotations
 
 import math
-from dataclasses import dataclass
+from dataclasses import dataclass, replace
 from pathlib import Path
 from typing import Any
 
@@ -290,6 +293,7 @@ def _glitch_findings(records: list[_Record], names: list[str], pooled: onoff.Dif
 def evaluate(ctx: InputContext) -> ModuleResult:
     """Evaluate the ``cycles`` input (see the module docstring for options and method)."""
     o = _options(ctx)
+    _unit(ctx, o["unit"])   # an unknown unit is refused before any file is read
     paths = ctx.files()
     raws = [_read(ctx, p, o) for p in paths]
     records, assess = _settled_records(raws, o)
@@ -437,9 +441,28 @@ def _quantity(ctx: InputContext, res: typea.TypeA, o: dict[str, Any], records: l
         distribution_reason=("scaled and shifted Student t (JCGM 101 §6.4.9): a mean of many "
                              "cycle differences with a scale estimated from their scatter"),
         dof_reason=dof_reason, files=tuple(files), notes=tuple(notes), warnings=tuple(ws))
-    return Quantity(name=ctx.name, value=res.mean, standard_uncertainty=res.u,
-                    distribution=Distribution.student_t(res.mean, res.u, res.dof),
-                    unit=o["unit"], dof=res.dof, evaluation="A",
+    unit = _unit(ctx, o["unit"])
+    mean, u = res.mean * unit.scale, res.u * unit.scale
+    if unit.scale != 1.0:
+        notes.append(f"readings in {o['unit']}; the result converted to {unit.si} "
+                     f"(× {unit.scale:.17g}) before propagation")
+        prov = replace(prov, notes=tuple(notes))
+    return Quantity(name=ctx.name, value=mean, standard_uncertainty=u,
+                    distribution=Distribution.student_t(mean, u, res.dof),
+                    unit=unit.si, dof=res.dof, evaluation="A",
                     description=o["description"] or "mean pump-on minus pump-off difference of "
                                                     "the reading, from the on/off record",
                     provenance=prov)
+
+
+def _unit(ctx: InputContext, text: str):
+    """The reading's unit, parsed once; offset scales refused (the result is a difference)."""
+    from ..units import UnitError, parse_unit
+    try:
+        unit = parse_unit(text)
+    except UnitError as exc:
+        raise ctx.spec_error("unit", str(exc)) from None
+    if unit.is_offset:
+        raise ctx.spec_error("unit", f"{text!r} is an offset scale; an on − off difference "
+                                     f"needs a unit of differences ({unit.si})")
+    return unit

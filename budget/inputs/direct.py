@@ -27,6 +27,7 @@ A zero standard uncertainty makes the input a constant (it appears in the model,
 from __future__ import annotations
 
 import math
+from dataclasses import replace
 from typing import Any
 
 import numpy as np
@@ -91,7 +92,8 @@ def evaluate_direct(ctx: InputContext) -> Quantity:
     for key in t:
         if key not in KEYS:
             raise ctx.spec_error(key, f"unknown key{did_you_mean(key, KEYS | {'module', 'file'})}")
-    unit = ctx.option("unit", str, "1")
+    ctx, unit, conv_note = in_si(ctx)
+    t = ctx.table
     description = ctx.option("description", str, "")
     source = ctx.option("source", str, "")
     reason = ctx.option("reason", str, "")
@@ -122,7 +124,7 @@ def evaluate_direct(ctx: InputContext) -> Quantity:
                 "normal: the mean of repeated observations (central limit theorem, "
                 "JCGM 100 §4.2 and G.2)" if kind == "normal" else _REASONS[kind]),
             dof_reason=f"ν = n − 1 = {n - 1} (JCGM 100 §4.2.6)",
-            notes=(source,) if source else ())
+            notes=((source,) if source else ()) + conv_note)
         return _quantity(ctx, mean, u, dist, unit, dof, evaluation or "A", description, prov)
 
     kind = ctx.option("distribution", str, "normal")
@@ -160,8 +162,52 @@ def evaluate_direct(ctx: InputContext) -> Quantity:
                       method=f"{how}; u from the {kind} distribution's standard deviation"
                       if kind != "normal" else how,
                       distribution_reason=reason or _REASONS[kind], dof_reason=dof_reason,
-                      notes=notes)
+                      notes=notes + conv_note)
     return _quantity(ctx, value, u, dist, unit, dof, evaluation or "B", description, prov)
+
+
+#: Keys holding a value of the quantity (converted with scale and offset) and keys holding a
+#: difference of values (scale only: an uncertainty in °C is one in K).
+_ABSOLUTE = ("value", "low", "high", "mode")
+_DIFFERENCE = ("standard_uncertainty", "expanded_uncertainty", "half_width")
+
+
+def in_si(ctx: InputContext) -> tuple[InputContext, str, tuple[str, ...]]:
+    """The input's table with its numbers in coherent SI, the SI unit and a provenance note.
+
+    ``unit`` (default "1", dimensionless) is parsed once by :func:`budget.units.parse_unit`;
+    values, bounds and observations convert as ``x * scale + offset``, uncertainties and half
+    widths as ``x * scale``. An unknown unit is a SpecError at ``unit`` with a did-you-mean.
+    """
+    if "unit" not in ctx.table:
+        return ctx, "1", ()
+    text = ctx.option("unit", str)
+    from ..units import UnitError, parse_unit
+    try:
+        unit = parse_unit(text)
+    except UnitError as exc:
+        raise ctx.spec_error("unit", str(exc)) from None
+    shown = text.strip() if unit.dimensionless and unit.scale == 1 else unit.si
+    if unit.scale == 1 and unit.offset == 0:
+        return ctx, shown or "1", ()
+    t = dict(ctx.table)
+
+    def conv(v, absolute: bool):
+        try:
+            x = checked(v)
+        except NumberError:
+            return v  # left for the usual check, which names the key
+        return x * unit.scale + (unit.offset if absolute else 0.0)
+
+    for k in _ABSOLUTE + _DIFFERENCE:
+        if k in t:
+            t[k] = conv(t[k], k in _ABSOLUTE)
+    if isinstance(t.get("observations"), list):
+        t["observations"] = [conv(v, True) for v in t["observations"]]
+    how = f"× {unit.scale:.17g}" + (f" + {unit.offset:.17g}" if unit.offset else "")
+    note = (f"stated in {text.strip()}; converted to {shown} ({how}; uncertainties × "
+            f"{unit.scale:.17g}) before propagation",)
+    return replace(ctx, table=t), shown, note
 
 
 def _dof_from_k(ctx: InputContext) -> tuple[float, str] | None:

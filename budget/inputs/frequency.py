@@ -338,4 +338,5 @@ def evaluate(ctx: InputContext) -> ModuleResult:
         return ModuleResult(quantities=(_absolute(terms[0], ctx.name, nominal),),
                             diagnostics=diagnostics)
     expr = " * ".join([repr(float(nominal))] + [f"(1 + {q.name})" for q in terms])
-    return ModuleResult(quantities=tuple(terms), expression=expr, diagnostics=diagnostics)
+    return ModuleResult(quantities=tuple(terms), expression=expr, diagnostics=diagnostics,
+                        unit="Hz")
