@@ -81,6 +81,9 @@ def resolve_inputs(spec: Spec) -> ResolvedInputs:
             module_pairs.extend(res.correlations)
             dof_groups.extend(_module_dof_groups(qs, res.correlations))
             found.extend(with_input(res.warnings, name))
+            if table["module"] == "cycles" and "unit" not in table:
+                # the reading's unit defaults to V without being stated: not checked
+                unstated.update(q.name for q in qs)
             modules[name] = {"module": table["module"], "expression": res.expression,
                              "quantities": [q.name for q in qs],
                              "diagnostics": res.diagnostics}
