@@ -255,7 +255,7 @@ def monte_carlo(model: Model, quantities: Sequence[Quantity], corr: np.ndarray,
         raise ComputationError(f"with sampling = \"sobol\" the number of trials must be a power "
                                f"of two; got {settings.trials:,}", field="monte_carlo.trials")
     if sobol:
-        from scipy.stats import qmc    # scipy.stats costs most of a second: only when used
+        from scipy.stats import qmc  # scipy.stats costs most of a second: only when used
     if sobol and sampler.dim > qmc.Sobol.MAXDIM:
         raise ComputationError(f"sampling = \"sobol\" supports at most {qmc.Sobol.MAXDIM:,} "
                                f"uncertain inputs; this model has {sampler.dim:,} (use "
