@@ -23,8 +23,11 @@ def fmt_u(u: float, sig: int = 2) -> str:
         return "0"
     e = _exp10(u)
     if -3 <= e <= 5:
-        decimals = max(sig - 1 - e, 0)
-        return f"{round(u, decimals):.{decimals}f}"
+        places = sig - 1 - e                       # negative: round to tens, hundreds, ...
+        if places < 0:
+            # JCGM 100 §7.2.6: at most two significant digits, also when u >= 100 (161 -> 160)
+            return f"{round(u, places):.0f}"
+        return f"{round(u, places):.{places}f}"
     return f"{u:.{sig - 1}e}"
 
 
