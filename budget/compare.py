@@ -55,14 +55,15 @@ from typing import Any
 import numpy as np
 from scipy import special
 
-from .compare_basis import SharedTerm, TermBasis, cross_correlation, identity, term_bases
+from .compare_basis import (SharedTerm, TermBasis, cross_correlation, identity, lookalike_notes,
+                            term_bases)
 from .errors import DataError, UsageError, did_you_mean
 from .explain import correlation_matrix
 from .numbers import overflow_checked
 from .result import Budget, Measurand, Term
 
 __all__ = ["ReferenceValue", "RunEntry", "SharedTerm", "MeanResult", "NormalisedError",
-           "Comparison", "TermBasis", "choose_measurand", "en_basis_text", "term_key", "compare_runs", "K_EN",
+           "Comparison", "TermBasis", "choose_measurand", "en_basis_text", "used_k_text", "term_key", "compare_runs", "K_EN",
            "EN_BASES"]
 
 K_EN = 2.0                 # coverage factor of E_n with en_basis = "2u" (ISO 13528, ISO/IEC 17043)
@@ -201,6 +202,12 @@ def choose_measurand(records: Sequence[Budget], name: str | None = None,
                             f"(measurands: {', '.join(names)}); choose one with --measurand",
                             file=f, field="measurands")
     return name
+
+
+def used_k_text(entry: RunEntry, en_basis: str) -> str:
+    """The coverage factor of the U used for ``entry``: its stated k, or 2 with ``"2u"``."""
+    k = entry.stated_coverage_factor if en_basis == "stated" else K_EN
+    return f"k = {k:.3g}"
 
 
 def en_basis_text(en_basis: str) -> str:
@@ -365,6 +372,7 @@ def compare_runs(records: Sequence[Budget], *, labels: Sequence[str] | None = No
                 if r_xy != 0 and (x in names_a) != (y in names_a) and {x, y} <= set(idents[a]):
                     ignored[f"r({x}, {y}) for {all_labels[a]} and {all_labels[b]}"] = None
     shared_terms, bases = term_bases(all_recs, all_labels, idents, contrib, pair_r)
+    notes.extend(lookalike_notes(all_recs, all_labels, idents))
     if ignored:
         notes.append("correlations between a shared and a non-shared input are not carried "
                      "into the covariance between runs: " + "; ".join(ignored))
@@ -446,7 +454,7 @@ def compare_runs(records: Sequence[Budget], *, labels: Sequence[str] | None = No
             notes.append(f"{e.a} and {e.b} share every term: u of their difference is 0 and "
                          "E_n is undefined")
     runs = tuple(entries[:n])
-    fig = _figure(name, unit, runs, ref_entry, mean)
+    fig = _figure(name, unit, runs, ref_entry, mean, en_basis)
     return Comparison(name, unit, runs, ref_entry, ref_kind, mean, tuple(ens), tuple(pairs),
                       tuple(shared_terms), tuple(notes), fig, en_basis, tuple(bases))
 
@@ -458,20 +466,24 @@ def _union(order: dict[str, Any], groups: list[tuple[str, ...]]) -> tuple[str, .
 
 
 def _figure(name: str, unit: str, runs: tuple[RunEntry, ...], ref: RunEntry | None,
-            mean: MeanResult | None) -> dict[str, Any]:
-    """Figure data (the format of ``diagnostics["figures"]``): runs ± U (k = 2) and a band."""
+            mean: MeanResult | None, en_basis: str = "stated") -> dict[str, Any]:
+    """Figure data (the format of ``diagnostics["figures"]``): runs ± U and a band.
+
+    The legend names the U drawn: each record's stated U (``en_basis = "stated"``) or 2u.
+    """
+    k_txt = "its stated k" if en_basis == "stated" else "k = 2"
     n = len(runs)
     xs = [float(i + 1) for i in range(n)]
     series = []
     if ref is not None:
-        c, half, label = ref.value, ref.expanded_uncertainty, f"{ref.label} ± U (k = 2)"
+        c, half, label = ref.value, ref.expanded_uncertainty, f"{ref.label} ± U ({k_txt})"
     else:
         c, half = mean.value, K_EN * mean.uncertainty_with_shared
         label = "weighted mean ± 2·u (k = 2)"
     series.append({"label": label, "style": "band", "x": [0.5, n + 0.5],
                    "y_low": [c - half] * 2, "y_high": [c + half] * 2})
     series.append({"label": "", "style": "line", "x": [0.5, n + 0.5], "y": [c, c]})
-    series.append({"label": "runs ± U (k = 2)", "style": "points", "x": xs,
+    series.append({"label": "runs ± U (each run's stated k)" if en_basis == "stated" else "runs ± 2u", "style": "points", "x": xs,
                    "y": [r.value for r in runs], "yerr": [r.expanded_uncertainty for r in runs]})
     unit_txt = f" ({unit})" if unit not in ("", "1") else ""
     return {"id": "compare", "title": f"{name}: runs compared", "xlabel": "run",

@@ -33,7 +33,8 @@ import pandas as pd
 
 from .result import Budget, Term
 
-__all__ = ["Identity", "SharedTerm", "TermBasis", "identity", "cross_correlation", "term_bases"]
+__all__ = ["Identity", "SharedTerm", "TermBasis", "identity", "cross_correlation", "term_bases",
+           "lookalike_notes"]
 
 _TYPED = ("spec", "observations", "constant")
 
@@ -199,3 +200,35 @@ def term_bases(recs: list[Budget], labels: list[str], idents: list[dict[str, Ide
                     f"not shared: no other record has {idn.reason}"
                 bases[nm] = TermBasis(nm, runs, False, text)
     return shared, list(bases.values())
+
+
+def lookalike_notes(recs: list[Budget], labels: list[str],
+                    idents: list[dict[str, Identity]]) -> list[str]:
+    """Notes for typed-in terms that look like one certificate but are treated as independent.
+
+    Two records whose term of the same name is typed in with the same value, standard
+    uncertainty and method text (which holds the ``source``) but no ``shared_as`` are probably
+    the same calibration. They stay independent (equal numbers are no evidence of one error),
+    but the user is told: if they are one error, treating them as independent understates the
+    uncertainty of the weighted mean.
+    """
+    seen: dict[tuple, list[str]] = {}
+    for r, lab, d in zip(recs, labels, idents):
+        for nm, idn in d.items():
+            if idn.key is not None:
+                continue
+            try:
+                q = r.input(nm)
+            except KeyError:
+                continue
+            if q.provenance.origin not in _TYPED or q.provenance.origin == "constant" \
+                    or not q.standard_uncertainty:
+                continue
+            k = (nm, repr(float(q.value)), repr(float(q.standard_uncertainty)),
+                 q.provenance.method)
+            seen.setdefault(k, []).append(lab)
+    return [f"{k[0]} is typed in with the same value, u and source in {', '.join(runs)} but "
+            "is not declared shared (shared_as): it is treated as independent in each run; if "
+            "it is the same certificate or calibration, declare shared_as = \"label\" in each "
+            "spec — treated as independent, it makes u of the weighted mean too small"
+            for k, runs in seen.items() if len(runs) > 1]

@@ -359,3 +359,34 @@ def test_cli_compare_bad_input(tmp_path, capsys):
     assert main(["compare", good, good, "--pdf", str(out_pdf)]) == 2
     _one_error_line(capsys)
     assert not out_pdf.exists()
+
+
+def test_lookalike_typed_in_terms_get_a_note_but_stay_independent():
+    # review finding: the same typed-in certificate in two specs without shared_as.  Kept
+    # independent (issue 11 item 9) but said on screen: for two runs with u_x = 0.4, u_r = 0.3,
+    # u(x̄)² = 0.4²/2 + 0.3²·(1 + r)/2 (equal weights, by hand) -> 0.354 with r = 0 but 0.412
+    # with r = 1, so an undeclared common certificate understates u(x̄)
+    r1 = record_from_dict(record(1 * S, 0.4 * S, 0.3 * S, title="run A"))
+    r2 = record_from_dict(record(2 * S, 0.4 * S, 0.3 * S, title="run B"))
+    c = compare_runs([r1, r2])
+    assert c.shared == ()
+    (note,) = [n for n in c.notes if "not declared shared" in n]
+    assert note.startswith("r is typed in") and "run 1, run 2" in note
+    # a different u: no note (not the same numbers)
+    r3 = record_from_dict(record(2 * S, 0.4 * S, 0.31 * S))
+    assert not [n for n in compare_runs([r1, r3]).notes if "not declared shared" in n]
+    # declared: shared, no note
+    d1 = record_from_dict(_declare(record(1 * S, 0.4 * S, 0.3 * S), "r", "cert"))
+    d2 = record_from_dict(_declare(record(2 * S, 0.4 * S, 0.3 * S), "r", "cert"))
+    assert not [n for n in compare_runs([d1, d2]).notes if "not declared shared" in n]
+
+
+def test_figure_legend_names_the_u_drawn(three):
+    # default en_basis "stated": the bars are each record's stated U (k = 1.96 here), not 2u
+    stated = compare_runs(three).figure
+    assert [s["label"] for s in stated["series"] if s["style"] == "points"] == [
+        "runs ± U (each run's stated k)"]
+    assert [r.expanded_uncertainty for r in compare_runs(three).runs] == near(
+        [1.959963984540054 * u for _, u in RUNS], rel=1e-9)   # z_0.975, JCGM 100 Table G.2
+    two = compare_runs(three, en_basis="2u").figure
+    assert [s["label"] for s in two["series"] if s["style"] == "points"] == ["runs ± 2u"]

@@ -11,7 +11,7 @@ from __future__ import annotations
 import math
 from collections.abc import Sequence
 
-from ..compare import Comparison, NormalisedError, en_basis_text
+from ..compare import Comparison, NormalisedError, en_basis_text, used_k_text
 from ..fmt import fmt_num, fmt_u, fmt_value
 from .figures import compare_figure, svg_data_uri
 
@@ -103,7 +103,7 @@ def compare_html(c: Comparison, *, files: Sequence[str] = (), software: str = "q
     if c.reference is not None:
         r = c.reference
         ref = (f"{fmt_value(r.value, r.expanded_uncertainty)} ± "
-               f"{fmt_u(r.expanded_uncertainty)}{' ' + unit if unit else ''} (k = 2)"
+               f"{fmt_u(r.expanded_uncertainty)}{' ' + unit if unit else ''} ({used_k_text(r, c.en_basis)})"
                + (f", from the record “{r.title}”" if c.reference_kind == "record" else ""))
     mean = []
     if c.mean is not None:
@@ -111,6 +111,8 @@ def compare_html(c: Comparison, *, files: Sequence[str] = (), software: str = "q
         mean = [("weighted mean x̄", fmt_value(m.value, m.internal_uncertainty)),
                 ("internal u(x̄) = (1ᵀV⁻¹1)^(−1/2)", fmt_u(m.internal_uncertainty)),
                 ("external u(x̄) = R_B × internal", fmt_u(m.external_uncertainty)),
+                ("u(x̄) to quote: the larger (common practice)",
+                 fmt_u(max(m.internal_uncertainty, m.external_uncertainty))),
                 ("Birge ratio R_B", fmt_num(m.birge_ratio, 3)),
                 (f"χ² (ν = {m.dof})", fmt_num(m.chi2, 4)),
                 ("p-value", fmt_num(m.p_value, 3))]

@@ -18,6 +18,11 @@ __all__ = ["compare_text", "en_rows"]
 _EN_HEADERS = ["result", "against", "difference", "U(diff)", "E_n", "", "shared terms"]
 
 
+def _larger(m) -> str:
+    """Which of the mean's internal and external u is the larger (the one to quote)."""
+    return "external" if m.external_uncertainty > m.internal_uncertainty else "internal"
+
+
 def en_rows(rows: Sequence[NormalisedError]) -> list[list[str]]:
     """Table cells of normalised errors: verdict ``pass`` for |E_n| ≤ 1 (ISO 13528), ``FAIL``
     above, ``–`` when E_n is undefined; the shared terms' names cut to 30 characters."""
@@ -48,7 +53,7 @@ def compare_text(c: Comparison, files: Sequence[str]) -> str:
         The text, lines without trailing spaces. Expanded uncertainties are shown as stated
         (with their k) and as used (k = 2).
     """
-    from ..compare import en_basis_text  # deferred: budget.text stays free of numpy at import
+    from ..compare import en_basis_text, used_k_text  # deferred: budget.text stays free of numpy at import
     unit = _unit(c.unit)
     head = f"Comparison of runs — {c.measurand}" + (f" ({c.unit})" if unit else "")
     out = [head, "=" * len(head)]
@@ -69,12 +74,13 @@ def compare_text(c: Comparison, files: Sequence[str]) -> str:
         r = c.reference
         src = f", from the record “{r.title}”" if c.reference_kind == "record" else ""
         out += ["", f"reference: {fmt_value(r.value, r.expanded_uncertainty)} ± "
-                    f"{fmt_u(r.expanded_uncertainty)}{unit} (k = 2){src}"]
+                    f"{fmt_u(r.expanded_uncertainty)}{unit} ({used_k_text(r, c.en_basis)}){src}"]
     if c.mean is not None:
         m = c.mean
         out += ["", f"weighted mean x̄ = {fmt_value(m.value, m.internal_uncertainty)}{unit}, "
                     f"internal u = {fmt_u(m.internal_uncertainty)}, external u = "
                     f"{fmt_u(m.external_uncertainty)} (= R_B × internal)",
+                f"(common practice: quote the larger of the two, here the {_larger(m)} u)",
                 "(generalised least squares with the runs' covariance)",
                 f"Birge ratio R_B = {fmt_num(m.birge_ratio, 3)}, χ² = {fmt_num(m.chi2, 4)} "
                 f"with ν = {m.dof}, p = {fmt_num(m.p_value, 3)}"]
