@@ -55,8 +55,14 @@ from typing import Any
 import numpy as np
 from scipy import special
 
-from .compare_basis import (SharedTerm, TermBasis, cross_correlation, identity, lookalike_notes,
-                            term_bases)
+from .compare_basis import (
+    SharedTerm,
+    TermBasis,
+    cross_correlation,
+    identity,
+    lookalike_notes,
+    term_bases,
+)
 from .errors import DataError, UsageError, did_you_mean
 from .explain import correlation_matrix
 from .numbers import overflow_checked

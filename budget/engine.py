@@ -18,7 +18,7 @@ from .model import Model, build_model
 from .model_units import apply_units
 from .propagate import McmSettings, compare_lpu_mcm, monte_carlo, propagate_linear
 from .propagate.lpu import correlation_groups, coverage_factor
-from .propagate.mcm import adaptive_batch_size
+from .propagate.mcm import adaptive_batch_size, infinite_variance_inputs
 from .quantity import Quantity
 from .result import Budget, Measurand, MonteCarlo, Term
 from .spec import Spec, check_trials
@@ -317,6 +317,7 @@ def evaluate(spec: Spec, *, trials: int | None | str = "spec", seed: int | None 
         except BudgetError as exc:
             raise _at_spec(exc, spec) from None
         out = []
+        infinite = infinite_variance_inputs(qs, spec.t_for_finite_dof)
         for m in measurands:
             r = mres[m.name]
             lo, hi = r.symmetric if spec.interval == "symmetric" else r.shortest
@@ -333,6 +334,17 @@ def evaluate(spec: Spec, *, trials: int | None | str = "spec", seed: int | None 
                                   stabilised=r.stabilised,
                                   linear_interval_probability=r.interval_probabilities.get(
                                       m.name)))
+            heavy = [t.name for t in m.terms if t.sensitivity != 0.0 and t.name in infinite]
+            if heavy:
+                # a t distribution with ν ≤ 2 has no finite variance (JCGM 101 §6.4.9, memory):
+                # the trials' standard deviation estimates nothing and never settles
+                warnings.append(warn(
+                    "monte_carlo.u_undefined",
+                    f"{m.name}: the Monte Carlo standard uncertainty is not defined: "
+                    f"{', '.join(heavy)} is sampled from a t distribution with ν ≤ 2, which has "
+                    "no finite variance; the printed u is only the spread of these trials (and the "
+                    "adaptive procedure cannot stabilise it) — "
+                    "the coverage interval is meaningful, u is not", input=heavy[0]))
             if not r.stabilised:
                 notes.append(f"{m.name}: the adaptive Monte Carlo procedure stopped at "
                              f"max_trials = {spec.max_trials:,} before stabilising")
@@ -485,5 +497,4 @@ def _measurand(spec: Spec, model: Model, lr, qs: list[Quantity],
                      expression=spec.outputs[lr.name],
                      second_order_variance=lr.second_order_variance,
                      coverage_probability_of_k=lr.coverage_probability_of_k)
-
 

@@ -84,6 +84,19 @@ def test_discrepancy_allowance_is_its_own_row(tmp_path):
     assert allow.evaluation == "B" and math.isinf(allow.dof)
 
 
+def test_a_model_prediction_without_allowance_is_warned(tmp_path):
+    # review finding: δ from a fit alone carries only the fit's u (common practice: a model's
+    # prediction needs an allowance for model discrepancy); the warning names the missing key
+    scan(tmp_path)
+    (q,) = run_module(ctx(tmp_path, **BASE)).quantities
+    codes = [w.code for w in q.provenance.warnings]
+    assert "pump.no_discrepancy_allowance" in codes
+    (w,) = [w for w in q.provenance.warnings if w.code == "pump.no_discrepancy_allowance"]
+    assert "discrepancy_half_width" in w.message and w.severity == "warning"
+    fit, _ = run_module(ctx(tmp_path, discrepancy_half_width=2e-8, **BASE)).quantities
+    assert "pump.no_discrepancy_allowance" not in [w.code for w in fit.provenance.warnings]
+
+
 def test_escape_model_through_the_spec(tmp_path):
     rng = np.random.default_rng(41)
     v = np.repeat(np.linspace(-0.34, -0.26, 3), 16)

@@ -135,3 +135,20 @@ def test_sign_refuses_error_warning_unless_accepted(tmp_path, capsys, monkeypatc
     sig = r.get_fields()
     reasons = [str(f.get("/V", {}).get("/Reason", "")) for f in sig.values()]
     assert any("accepted warnings: cycles.transient (dV)" in x for x in reasons), reasons
+
+
+def test_monte_carlo_u_of_a_t_input_with_two_dof_is_undefined(tmp_path):
+    # review finding: three readings give ν = 2; JCGM 101 §6.4.9 draws the input from a scaled
+    # t_2, whose variance ν/(ν − 2) is infinite (handbook property of Student's t, common
+    # knowledge), so the trials' standard deviation estimates nothing
+    from budget.spec import parse_spec
+    spec = parse_spec('[budget]\ntitle = "t2 (invented)"\n[model]\nY = "X"\n'
+                      '[monte_carlo]\ntrials = 20000\nseed = 3\n'
+                      '[inputs.X]\nobservations = [10.01, 10.02, 10.0235]\n')
+    codes = [w.code for w in evaluate(spec).warnings]
+    assert "monte_carlo.u_undefined" in codes
+    # four readings: ν = 3, the variance 3 s² is finite: no such warning
+    spec4 = parse_spec('[budget]\ntitle = "t3 (invented)"\n[model]\nY = "X"\n'
+                       '[monte_carlo]\ntrials = 20000\nseed = 3\n'
+                       '[inputs.X]\nobservations = [10.01, 10.02, 10.0235, 10.015]\n')
+    assert "monte_carlo.u_undefined" not in [w.code for w in evaluate(spec4).warnings]

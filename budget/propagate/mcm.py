@@ -225,6 +225,18 @@ def _as_t(q: Quantity) -> Quantity:
     return replace(q, distribution=Distribution.student_t(q.value, q.standard_uncertainty, q.dof))
 
 
+def infinite_variance_inputs(quantities: Sequence[Quantity],
+                             t_for_finite_dof: bool = True) -> frozenset[str]:
+    """Names of the inputs the sampler draws from a t distribution with ν ≤ 2.
+
+    Such a distribution has no finite variance, so the Monte Carlo standard uncertainty of an
+    output that depends on one is not defined (the coverage interval still is).
+    """
+    qs = [_as_t(q) for q in quantities] if t_for_finite_dof else list(quantities)
+    return frozenset(q.name for q in qs if not q.is_constant
+                     and q.distribution.kind == "student-t" and q.distribution.dof <= 2)
+
+
 def monte_carlo(model: Model, quantities: Sequence[Quantity], corr: np.ndarray,
                 settings: McmSettings, *,
                 progress: Callable[[int, int], None] | None = None,

@@ -53,7 +53,10 @@ def compare_text(c: Comparison, files: Sequence[str]) -> str:
         The text, lines without trailing spaces. Expanded uncertainties are shown as stated
         (with their k) and as used (k = 2).
     """
-    from ..compare import en_basis_text, used_k_text  # deferred: budget.text stays free of numpy at import
+    from ..compare import (  # deferred: budget.text stays free of numpy at import
+        en_basis_text,
+        used_k_text,
+    )
     unit = _unit(c.unit)
     head = f"Comparison of runs — {c.measurand}" + (f" ({c.unit})" if unit else "")
     out = [head, "=" * len(head)]

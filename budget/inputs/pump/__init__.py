@@ -169,6 +169,17 @@ _NOTE_WARNINGS = (("extrapolated", "pump.extrapolation", "warning"),
                   ("successive escape times", "pump.degenerate_fit", "warning"))
 
 
+def _no_allowance(half_width: float | None, model: str, name: str) -> tuple:
+    """A warning when δ rests on the model alone: its u is the fit's, not the model's error."""
+    if half_width is not None:
+        return ()
+    return (warn("pump.no_discrepancy_allowance",
+                 f"{name}: δ is the {model} model's prediction and its u covers only the fit "
+                 "parameters, not how far the pump departs from the model; state "
+                 "discrepancy_half_width (a model-discrepancy allowance) or justify its absence",
+                 input=name),)
+
+
 def _warnings_of_notes(notes) -> tuple:
     out = []
     for n in notes:
@@ -231,7 +242,7 @@ def quantities_of(analysis: PumpAnalysis, name: str, half_width: float | None,
             origin="module:pump", method=method,
             distribution_reason=dist_reason,
             dof_reason=dof_reason, files=tuple(files), notes=a.notes,
-            warnings=_warnings_of_notes(a.notes)))
+            warnings=_warnings_of_notes(a.notes) + _no_allowance(half_width, a.model, name)))
     if half_width is None:
         return (q,), None
     allowance = Quantity(
