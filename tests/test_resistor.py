@@ -345,3 +345,19 @@ def test_at_accepts_toml_datetime(tmp_path):
     a = run_module(ctx(tmp_path, at=datetime.datetime(2026, 2, 1, 14, 0))).quantities[0]
     b = run_module(ctx(tmp_path, at=AT)).quantities[0]
     assert a.value == b.value and a.standard_uncertainty == b.standard_uncertainty
+
+
+def test_stability_bound_row_as_the_amplifier_has(tmp_path):
+    # issue 12 item 5: the resistor gets the long-term stability / transport term; a bound a
+    # gives a rectangular row about 0 with u = a/√3 (JCGM 100 4.3.7)
+    write_history(tmp_path)
+    r = run_module(ctx(tmp_path, at=AT, stability_bound=2e-8))
+    assert [q.name for q in r.quantities] == ["R_cal", "R_stab"]
+    assert r.expression == "R_cal * (1 + R_stab)"
+    q = r.quantities[1]
+    assert q.value == 0.0 and q.distribution.kind == "rectangular"
+    assert q.standard_uncertainty == near(2e-8 / math.sqrt(3), rel=1e-12)
+    assert r.diagnostics["stability"] == {"relative_half_width": near(2e-8, rel=1e-12)}
+    with pytest.raises(SpecError) as e:
+        run_module(ctx(tmp_path, at=AT, stability_bound=1.5))
+    assert e.value.field == "inputs.R.stability_bound"

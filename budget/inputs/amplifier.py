@@ -51,6 +51,7 @@ from .corrections import (
     bounded_or_standard,
     drift_result,
     relative_term,
+    stability_term,
     temperature_term,
 )
 from .history import HISTORY_KEYS, parse_when, read_history
@@ -64,18 +65,7 @@ KEYS = (HISTORY_KEYS | TEMPERATURE_KEYS | OFFSET_KEYS
 
 
 def _stability(ctx: InputContext, name: str) -> Quantity | None:
-    if "stability_bound" not in ctx.table:
-        return None
-    bound = ctx.number("stability_bound", positive=True)
-    if bound >= 1:
-        # a relative change of 100 % or more is no stability bound (and 1 + δ could reach 0)
-        raise ctx.spec_error("stability_bound", f"is relative and must be < 1; got {bound!r}")
-    return relative_term(
-        ctx, name=name, value=0.0, half_width=bound,
-        description="relative change of the amplifier between calibrations (stability bound)",
-        method=f"stated bound ±{bound:g} (relative) on the change since calibration",
-        reason=("only a bound is known, with no reason to prefer any value inside it "
-                "(JCGM 100 4.3.7)"))
+    return stability_term(ctx, name=name, what="amplifier")
 
 
 def _offset(ctx: InputContext, name: str) -> tuple[Quantity | None, dict]:

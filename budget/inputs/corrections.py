@@ -28,7 +28,7 @@ from .history import (
     predict_drift,
 )
 
-__all__ = ["assemble", "drift_result", "TEMPERATURE_KEYS", "bounded_or_standard",
+__all__ = ["assemble", "drift_result", "stability_term", "TEMPERATURE_KEYS", "bounded_or_standard",
            "reference_level", "relative_term", "temperature_term"]
 
 #: Option keys of the temperature correction δ_T = α·ΔT + β·ΔT², ΔT = T − T_ref.
@@ -188,6 +188,23 @@ def temperature_term(ctx: InputContext, *, name: str, what: str,
                             "delta_T_K": dt, "correction": value, "standard_uncertainty": u,
                             "reference_from": ref_reason}}
     return q, factors, diag
+
+
+def stability_term(ctx: InputContext, *, name: str, what: str) -> Quantity | None:
+    """The relative long-term stability / transport term ``stability_bound`` (rectangular about
+    0, relative half-width < 1), or None when the key is not given."""
+    if "stability_bound" not in ctx.table:
+        return None
+    bound = ctx.number("stability_bound", positive=True)
+    if bound >= 1:
+        # a relative change of 100 % or more is no stability bound (and 1 + δ could reach 0)
+        raise ctx.spec_error("stability_bound", f"is relative and must be < 1; got {bound!r}")
+    return relative_term(
+        ctx, name=name, value=0.0, half_width=bound,
+        description=f"relative change of the {what} between calibrations (stability bound)",
+        method=f"stated bound ±{bound:g} (relative) on the change since calibration",
+        reason=("only a bound is known, with no reason to prefer any value inside it "
+                "(JCGM 100 4.3.7)"))
 
 
 def assemble(ctx: InputContext, main: Quantity, terms: list[tuple[str, Quantity]],

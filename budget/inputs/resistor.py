@@ -51,12 +51,16 @@ calibration_voltage_V : float
 working_voltage_V : float
     Voltage across the resistor during the pump measurement, V_work (V); required with a
     voltage correction.
+stability_bound : float
+    Relative half-width of the change allowed since the last calibration that the drift line
+    does not capture (transport to the laboratory, instability), e.g. 2e-8, as for the
+    amplifier. Adds ``NAME_stab``: rectangular about 0.
 
 Quantities
 ----------
 Without corrections a single quantity NAME (Ω). With corrections ``NAME_cal`` (Ω, the drift
-prediction), ``NAME_temp`` and/or ``NAME_volt`` (dimensionless) and the expression
-``NAME_cal * (1 + NAME_temp) * (1 + NAME_volt)``.
+prediction), ``NAME_temp``, ``NAME_volt`` and/or ``NAME_stab`` (dimensionless) and the
+expression ``NAME_cal * (1 + NAME_temp) * (1 + NAME_volt) * (1 + NAME_stab)``.
 
 When the history has ``temperature_C`` or ``voltage_V`` values and the matching correction is
 configured, each calibration value is first referred to T_ref and V_cal with the nominal
@@ -75,6 +79,7 @@ from .corrections import (
     drift_result,
     reference_level,
     relative_term,
+    stability_term,
     temperature_term,
 )
 from .history import HISTORY_KEYS, History, parse_when, read_history
@@ -85,7 +90,7 @@ VOLTAGE_KEYS = frozenset({"voltage_coefficient", "voltage_coefficient_uncertaint
                           "voltage_coefficient_bound", "calibration_voltage_V",
                           "working_voltage_V"})
 
-KEYS = HISTORY_KEYS | TEMPERATURE_KEYS | VOLTAGE_KEYS
+KEYS = HISTORY_KEYS | TEMPERATURE_KEYS | VOLTAGE_KEYS | frozenset({"stability_bound"})
 
 UNIT = "Ω"
 
@@ -139,7 +144,12 @@ def evaluate(ctx: InputContext) -> ModuleResult:
     q_temp, f_temp, d_temp = temperature_term(ctx, name=f"{ctx.name}_temp", what="resistor",
                                               history_temperature=hist.temperature)
     q_volt, f_volt, d_volt = voltage_term(ctx, hist, f"{ctx.name}_volt")
+    q_stab = stability_term(ctx, name=f"{ctx.name}_stab", what="resistor")
+    stability = (None if q_stab is None else
+                 {"relative_half_width": q_stab.distribution.half_width})
     return drift_result(ctx, hist, at, [("temp", q_temp, f_temp, d_temp),
-                                        ("volt", q_volt, f_volt, d_volt)], unit=UNIT,
+                                        ("volt", q_volt, f_volt, d_volt),
+                                        ("stab", q_stab, None, {})], unit=UNIT,
                         what="resistance at reference conditions" if (q_temp or q_volt)
-                        else "resistance", figure_what="reference resistor")
+                        else "resistance", figure_what="reference resistor",
+                        extra_diagnostics={"stability": stability})
