@@ -52,8 +52,9 @@ def dof_from_coverage_factor(k: float, p: float = DEFAULT_CERTIFICATE_PROBABILIT
     Returns
     -------
     float
-        ν with t_p(ν) = k (fractional in general); ``math.inf`` when k is the normal quantile
-        z_p to within :data:`K_ROUNDING`.
+        ν with t_p(ν) = k (fractional in general); the nearest integer n when t_p(n) equals k
+        to within :data:`K_ROUNDING` (k stated rounded from an integer ν); ``math.inf`` when k
+        is the normal quantile z_p to within :data:`K_ROUNDING`.
 
     Raises
     ------
@@ -79,7 +80,14 @@ def dof_from_coverage_factor(k: float, p: float = DEFAULT_CERTIFICATE_PROBABILIT
                 f"for k = {k:g} (a normal gives {coverage_probability_of(k, math.inf):.4g})",
                 field="coverage_factor")
         return math.inf
-    return float(special.stdtridf(q, k))
+    nu = float(special.stdtridf(q, k))
+    # A certificate states k rounded (to K_ROUNDING) from t_p of an integer ν, e.g. 2.87 for
+    # t_95.45(4) = 2.869: the exact inverse (3.998) then truncates a whole degree of freedom
+    # away (JCGM 100 G.6.4). The nearest integer is taken when its t_p lies within k's rounding.
+    n = round(nu)
+    if n >= 1 and abs(float(special.stdtrit(n, q)) - k) <= K_ROUNDING:
+        return float(n)
+    return nu
 
 
 def coverage_probability_of(k: float, dof: float) -> float:
@@ -109,6 +117,10 @@ def describe_inference(k: float, p: float, dof: float) -> str:
     if math.isinf(dof):
         return (f"ν = ∞ inferred from k = {k:g} at {pct}: k is the normal quantile to the "
                 "digits stated (JCGM 100 G.4–G.6)")
+    if dof == int(dof):
+        t = float(special.stdtrit(dof, (1 + p) / 2))
+        return (f"ν = {dof:.0f} inferred from k = {k:g} at {pct}: t_p({dof:.0f}) = {t:.4f}, "
+                "which k states to its digits (JCGM 100 G.4–G.6, Table G.2)")
     shown = f"{dof:.1f}" if dof < 100 else f"{dof:.0f}"
     return (f"ν = {shown} inferred from k = {k:g} at {pct}: the ν for which t_p(ν) = k "
             "(JCGM 100 G.4–G.6, Table G.2)")

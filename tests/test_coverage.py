@@ -38,9 +38,36 @@ def test_round_trip_with_scipy_t(nu):
 @pytest.mark.parametrize("nu,k", [(1, 13.97), (2, 4.53), (3, 3.31), (4, 2.87), (5, 2.65),
                                   (6, 2.52), (7, 2.43), (8, 2.37), (9, 2.32), (10, 2.28)])
 def test_table_g2_factors_give_their_dof(nu, k):
-    # JCGM 100 Table G.2, p = 95.45 %: the published (rounded) k gives back its ν to ±0.2
-    # (rounding k to two decimals moves ν by at most that much for ν ≤ 10, derived)
-    assert dof_from_coverage_factor(k, 0.9545) == near(nu, abs=0.2)
+    # JCGM 100 Table G.2, p = 95.45 %: the published (rounded) k gives back its integer ν
+    # exactly (review finding: 2.87 used to give 3.998, truncated to 3 by G.6.4)
+    assert dof_from_coverage_factor(k, 0.9545) == nu
+
+
+def test_table_g2_k_at_95_percent_gives_its_integer_dof():
+    # JCGM 100 Table G.2, p = 95 %: t = 2.78 for ν = 4, 2.57 for ν = 5, 2.23 for ν = 10
+    assert [dof_from_coverage_factor(k, 0.95) for k in (2.78, 2.57, 2.23)] == [4.0, 5.0, 10.0]
+
+
+def test_passed_through_certificate_keeps_its_u(tmp_path):
+    # Y = X with U = 0.287, k = 2.87 at 95.45 %: ν = 4 (Table G.2), so k_95(4) = 2.776 and
+    # U(Y) = 2.776·0.1 = 0.278 (JCGM 100 Table G.2 at 95 %, t_0.975(4) = 2.7764)
+    from budget.engine import evaluate
+    spec = spec_of("""
+        [budget]
+        title = "passed through (invented)"
+        [model]
+        Y = "X"
+        [monte_carlo]
+        enabled = false
+        [inputs.X]
+        value = 10.0
+        expanded_uncertainty = 0.287
+        coverage_factor = 2.87
+        coverage_probability = 0.9545
+        """)
+    (m,) = evaluate(spec).measurands
+    assert m.effective_dof == 4.0
+    assert m.expanded_uncertainty == near(0.27764, abs=5e-5)
 
 
 def test_issue_case_k_287_at_95_percent():
@@ -54,8 +81,10 @@ def test_normal_quantiles_give_infinite_dof_and_small_k_is_refused():
     # k = 2 for 95.45 % and k = 1.96 for 95 % are the normal quantiles (JCGM 100 Table G.2, ν = ∞)
     assert math.isinf(dof_from_coverage_factor(2.0, 0.9545))
     assert math.isinf(dof_from_coverage_factor(1.96, 0.95))
-    # k = 2 stated for 95 %: t_0.975(ν) = 2 at ν = 60.4 (scipy.stats.t.ppf(0.975, 60.4) = 2.000)
-    assert stats.t.ppf(0.975, dof_from_coverage_factor(2.0, 0.95)) == near(2.0)
+    # k = 2 stated for 95 %: t_0.975(ν) = 2 at ν = 60.4; t_0.975(60) = 2.0003 (scipy.stats.t.ppf)
+    # states 2.00 to its digits, so the integer 60 is taken
+    assert dof_from_coverage_factor(2.0, 0.95) == 60.0
+    assert stats.t.ppf(0.975, 60) == near(2.0003, abs=5e-5)
     with pytest.raises(BudgetError, match="normal quantile"):
         dof_from_coverage_factor(1.65, 0.95)          # 1.65 is a 90 % normal factor
     with pytest.raises(BudgetError, match="below 1"):

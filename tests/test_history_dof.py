@@ -47,7 +47,7 @@ def test_table_g2_k_287_gives_nu_4_per_row_and_4n_for_the_mean(tmp_path):
     # a_i = 1/10, and G.2b gives ν = (10·u²/100)² / (10·(u²/100)²/ν_i) = 10·ν_i = 40.
     _write(tmp_path, 10, 287.0, [2.87] * 10)
     q = _cal(tmp_path, drift="constant", coverage_probability=0.9545)
-    assert q.dof == near(40.0, rel=0.02)
+    assert q.dof == near(40.0, rel=1e-9)            # ν_i = 4 exactly (k states t_95.45(4))
     assert q.distribution.kind == "student-t"          # JCGM 101 §6.4.9.7
     assert "Welch–Satterthwaite" in q.provenance.dof_reason
     assert "k = 2.87" in q.provenance.dof_reason and "95.45 %" in q.provenance.dof_reason
@@ -64,12 +64,10 @@ def test_unequal_nu_follow_the_weights(tmp_path):
     wt = [1 / x ** 2 for x in u]
     a = [x / sum(wt) for x in wt]
     w = [ai ** 2 * ui ** 2 for ai, ui in zip(a, u)]
-    from scipy import special
-    nu4 = float(special.stdtridf((1 + 0.9545) / 2, 2.87))   # ≈ 4 (Table G.2)
+    nu4 = 4.0          # JCGM 100 Table G.2: t_95.45(4) = 2.87 to the digits stated
     expected = sum(w) ** 2 / sum(wi ** 2 / nu4 for wi in w[:5])
     q = _cal(tmp_path, drift="constant", coverage_probability=0.9545)
     assert q.dof == near(expected, rel=1e-9)
-    assert nu4 == near(4.0, rel=0.02)
 
 
 def test_k2_at_9545_keeps_infinite_nu(tmp_path):
@@ -84,10 +82,8 @@ def test_k2_at_95_default_gives_nu_60_per_row(tmp_path):
     # 2.000); six equal rows, constant model: ν = 6·ν_i (G.2b, as above).
     _write(tmp_path, 6, 200.0, [2.0] * 6)
     q = _cal(tmp_path, drift="constant")
-    from scipy import special
-    nu_i = float(special.stdtridf(0.975, 2.0))
-    assert nu_i == near(60.4, abs=0.1)
-    assert q.dof == near(6 * nu_i, rel=1e-9)
+    # t_0.975(60) = 2.0003 states 2.00 to its digits, so ν_i = 60 (the integer, not 60.4)
+    assert q.dof == near(6 * 60.0, rel=1e-9)
     assert "p = 95 % assumed" in q.provenance.dof_reason
 
 
