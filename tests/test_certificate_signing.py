@@ -46,6 +46,10 @@ def test_draft_signed_as_final_certificate(signed_setup, capsys):
     text = _text(d / "signed.pdf")
     assert "DRAFT" not in text
     assert "10000.178" in text      # the same result (EA-4/02 S3: R_X = 10 000.178 Ω)
+    # the Authorisation block's Date row is filled with the signing day (UTC) (issue 13)
+    import datetime as dt
+    today = dt.datetime.now(dt.UTC).date().isoformat()
+    assert f"Date {today}" in " ".join(text.split())
     capsys.readouterr()
     assert main(["verify", str(d / "signed.pdf"), "--trust", str(d / "id" / "identity.pem")]) == 0
 

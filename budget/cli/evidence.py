@@ -145,7 +145,17 @@ def _cmd_sign(args) -> int:
         # shown in the visible block and the signature dictionary
         listed = "; ".join(f"{w.code} ({w.input})" if w.input else w.code for w in errors)
         reason = (f"{reason} - " if reason else "") + f"accepted warnings: {listed}"
-    pdf, final = final_from_draft(pdf, budget, record_file=record_file)
+    # ISO/IEC 17025 §7.8.2.1 i, j: the dates the certificate states against the signing day
+    import datetime as _dt
+
+    from ..report.dates import check_dates
+    today = _dt.datetime.now(_dt.UTC).date()
+    dates = check_dates(budget.run.get("report") or {}, today)
+    if dates.errors:
+        raise UsageError("; ".join(dates.errors) + "; correct the spec and render again",
+                         file=record_file, field="report")
+    pdf, final = final_from_draft(pdf, budget, record_file=record_file,
+                                  signing_date=today.isoformat())
     note = (" (the final certificate, rendered from the reviewed draft's record without the "
             "DRAFT watermark)") if final else ""
     manifest = input_manifest(record, spec, spec_name=args.spec)
@@ -159,6 +169,8 @@ def _cmd_sign(args) -> int:
         del pw
     write_outputs((args.output, signed), force=args.force)
     print(f"signed {args.report} -> {shown_output(args.output)}{note}")
+    for w in dates.warnings:
+        print(f"warning [report.dates]: {w}", file=sys.stderr)
     print_warnings(budget)
     return EXIT_OK
 

@@ -81,7 +81,7 @@ def _environment():
 
 
 def render_html(budget: Budget, *, certificate: bool = False, draft: bool = True,
-                figures: bool = True) -> str:
+                figures: bool = True, signing_date: str = "") -> str:
     """The report (or, with ``certificate=True``, the certificate draft) as one HTML page.
 
     Parameters
@@ -94,6 +94,9 @@ def render_html(budget: Budget, *, certificate: bool = False, draft: bool = True
         Watermark a certificate DRAFT on every page. Default True.
     figures : bool
         Draw the figures (matplotlib SVG as data URIs). Default True.
+    signing_date : str
+        The date the approver signs (``YYYY-MM-DD``), written into the Authorisation block's
+        Date row. Default "": the row stays a blank line (drafts, unsigned reports).
 
     Returns
     -------
@@ -106,6 +109,7 @@ def render_html(budget: Budget, *, certificate: bool = False, draft: bool = True
         A figure or module table in the budget's record is malformed (names the field).
     """
     ctx = build_context(budget, certificate=certificate, draft=draft, figures=figures)
+    ctx["signing_date"] = signing_date
     name = "certificate.html.j2" if certificate else "report.html.j2"
     return _environment().get_template(name).render(**ctx)
 
@@ -245,14 +249,15 @@ def read_document_info(pdf: bytes) -> dict[str, str]:
             if "/" + k in info}
 
 
-def final_from_draft(pdf: bytes, budget: Budget, *, record_file: str | None = None
-                     ) -> tuple[bytes, bool]:
+def final_from_draft(pdf: bytes, budget: Budget, *, record_file: str | None = None,
+                     signing_date: str = "") -> tuple[bytes, bool]:
     """The PDF to sign: a certificate *draft* becomes the final certificate rendered again from
     the same record; anything else is returned unchanged.
 
     The draft carries the SHA-256 of the record it shows (:func:`document_info`); ``budget``
     must have that digest, so the approver signs exactly the numbers they reviewed, and the DRAFT
-    watermark disappears only in the signed file.
+    watermark disappears only in the signed file. ``signing_date`` (``YYYY-MM-DD``) fills the
+    Authorisation block's Date row of the final certificate.
 
     Returns
     -------
@@ -276,7 +281,8 @@ def final_from_draft(pdf: bytes, budget: Budget, *, record_file: str | None = No
         raise DataError("this record is not the one the certificate draft was rendered from "
                         "(its SHA-256 differs from the draft's)", file=record_file,
                         field="record")
-    rendered = render_pdf_layout(render_html(budget, certificate=True, draft=False),
+    rendered = render_pdf_layout(render_html(budget, certificate=True, draft=False,
+                                             signing_date=signing_date),
                                  info=document_info(budget, certificate=True, draft=False))
     return rendered.pdf, True
 
