@@ -13,6 +13,7 @@ from typing import Any
 
 from ..budget_rows import distribution_name, grouped_rows
 from ..errors import DataError
+from ..nominal import nominal_point, nominal_text
 from ..fmt import fmt_dof, fmt_num, fmt_rows, fmt_share, fmt_u
 from ..result import Budget, Measurand
 from . import figures as figs
@@ -360,6 +361,7 @@ def build_context(b: Budget, *, certificate: bool = False, draft: bool = True,
         "doc_kind": "Calibration certificate" if certificate else "Uncertainty report",
         "doc_number": (rep.get("certificate_number", "").strip() if certificate
                        else rep.get("report_number", "").strip()),
+        "nominal": sci(nominal_text(point)) if (point := nominal_point(b)) else "",
         "mc_ran": bool(b.monte_carlo),
         "mc_all_validated": bool(b.monte_carlo) and all(x.validated for x in b.monte_carlo),
     }

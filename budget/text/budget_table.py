@@ -61,6 +61,10 @@ def budget_text(b: Budget) -> str:
         significant digits of uncertainties).
     """
     out = [b.title, "=" * len(b.title)]
+    from ..nominal import nominal_point, nominal_text
+    point = nominal_point(b)
+    if point is not None:
+        out += ["", nominal_text(point)]
     for m in b.measurands:
         unit = f" {m.unit}" if m.unit else ""   # unlike the estimate column, shows a unit "1"
         out.append("")
