@@ -29,7 +29,7 @@ class NominalPoint:
     frequency_hz : float
         Drive frequency f in Hz (nominal where the budget states one).
     frequency_source : str
-        Where f was read (``"frequency module f, nominal_Hz"``, ``"constant f0"``, ...).
+        Where f was read (``"nominal value of the input f"``, ``"constant f0"``, ...).
     current_a : float
         n·e·f in A.
     operating_point : dict
@@ -77,7 +77,7 @@ def nominal_point(b: Budget) -> NominalPoint | None:
             continue
         diag = mod.get("diagnostics") if isinstance(mod.get("diagnostics"), dict) else {}
         if mod.get("module") == "frequency" and _number(diag.get("nominal_Hz")) is not None:
-            f, source = _number(diag["nominal_Hz"]), f"input {name} (frequency module), nominal"
+            f, source = _number(diag["nominal_Hz"]), f"nominal value of the input {name}"
         if mod.get("module") == "pump":
             plateau = _number(diag.get("plateau"))
             if plateau is not None:
@@ -91,7 +91,7 @@ def nominal_point(b: Budget) -> NominalPoint | None:
     if f is None:
         for q in b.inputs:
             if q.name == "f" and q.unit == "Hz":
-                f, source = q.value, "input f, estimate"
+                f, source = q.value, "estimate of the input f"
     if f is None:
         return None
     return NominalPoint(n=n, frequency_hz=f, frequency_source=source or "",
