@@ -390,3 +390,33 @@ def test_figure_legend_names_the_u_drawn(three):
         [1.959963984540054 * u for _, u in RUNS], rel=1e-9)   # z_0.975, JCGM 100 Table G.2
     two = compare_runs(three, en_basis="2u").figure
     assert [s["label"] for s in two["series"] if s["style"] == "points"] == ["runs ± 2u"]
+
+
+def test_comparison_pdf_has_header_and_approval(tmp_path):
+    # issue 13 item 6: laboratory header, comparison identifier, date and an approval block
+    from budget.report.compare_render import compare_html
+    runs = [record_from_dict(record(x, u)) for x, u in RUNS]
+    c = compare_runs(runs, en_basis="2u")
+    html = compare_html(c, laboratory="Invented Lab <b>", identifier="CMP-TEST",
+                        date="2026-12-03")
+    assert "Invented Lab &lt;b&gt;" in html and "CMP-TEST" in html and "2026-12-03" in html
+    assert "Approval" in html and "Approved by" in html
+    assert "quality procedures" in html
+    bare = compare_html(c)
+    assert "Laboratory not stated" in bare
+
+
+def test_compare_cli_pdf_names_laboratory_and_identifier(tmp_path, capsys):
+    from pypdf import PdfReader
+
+    from budget.cli import main
+    files = []
+    for i, (x, u) in enumerate(RUNS):
+        d = record(x, u)
+        d.setdefault("run", {})["report"] = {"laboratory": "Invented Lab (invented)"}
+        p = tmp_path / f"r{i}.json"
+        p.write_text(json.dumps(d), encoding="utf-8")
+        files.append(str(p))
+    assert main(["compare", *files, "--pdf", str(tmp_path / "c.pdf")]) == 0
+    text = " ".join(pg.extract_text() for pg in PdfReader(tmp_path / "c.pdf").pages)
+    assert "Invented Lab (invented)" in text and "CMP-" in text

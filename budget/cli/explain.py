@@ -133,9 +133,20 @@ def _cmd_compare(args) -> int:
     print(compare_text(c, records))
     outputs = []
     if args.pdf:
+        import datetime as _dt
+        import hashlib
+
         from ..report.compare_render import compare_pdf
-        outputs.append((args.pdf, compare_pdf(c, files=[Path(f).name for f in records],
-                                              software=f"qcs-budget {__version__}")))
+        labs = list(dict.fromkeys(str((r.run.get("report") or {}).get("laboratory", "")).strip()
+                                  for r in runs))
+        digest = hashlib.sha256()
+        for f in records + ([ref_file] if ref_file else []):
+            digest.update(hashlib.sha256(Path(f).read_bytes()).digest())
+        outputs.append((args.pdf, compare_pdf(
+            c, files=[Path(f).name for f in records], software=f"qcs-budget {__version__}",
+            laboratory="; ".join(x for x in labs if x),
+            identifier=f"CMP-{digest.hexdigest()[:12].upper()} (from the records' SHA-256)",
+            date=_dt.datetime.now(_dt.UTC).date().isoformat())))
     if args.json:
         d = {"records": records, "reference_record": ref_file, **c.to_dict()}
         outputs.append((args.json, json.dumps(d, indent=2, ensure_ascii=False,

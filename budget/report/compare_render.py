@@ -33,8 +33,18 @@ td.k { white-space: nowrap; }
 td.n { text-align: right; font-variant-numeric: tabular-nums; white-space: nowrap; }
 .fail { color: #a01010; font-weight: bold; } .note { color: #333; }
 img { width: 100%; }
+.lab { color: #3b6ea5; font-size: 8pt; letter-spacing: 0.5pt; text-transform: uppercase; }
+table.head td { border-bottom: 0.3pt solid #ddd; } table.head td.k { width: 30%; color: #444; }
+.sig { border: 0.6pt solid #999; padding: 4pt 8pt; margin-top: 10pt; break-inside: avoid; }
+.sig td { border: none; } .line { border-bottom: 0.5pt solid #333; height: 14pt; }
 </style></head><body>
+<div class="lab">{{ laboratory or "Laboratory not stated" }} · comparison of runs</div>
 <h1>{{ title }}</h1>
+<table class="head">
+<tr><td class="k">Laboratory</td><td>{{ laboratory or "not stated" }}</td></tr>
+<tr><td class="k">Comparison identifier</td><td>{{ identifier or "not stated" }}</td></tr>
+<tr><td class="k">Date of the comparison</td><td>{{ date or "not stated" }}</td></tr>
+</table>
 <p>Measurand <b>{{ c.measurand }}</b>{% if unit %} in {{ unit }}{% endif %};
 {{ c.runs|length }} result{{ 's' if c.runs|length != 1 }} compared. {{ basis_sentence }}.</p>
 <h2>Runs</h2>
@@ -63,6 +73,15 @@ correlated.</p>
 </tr>{% endfor %}</table>
 {% if notes %}<h2>Notes</h2><ul>{% for n in notes %}<li class="note">{{ n }}</li>{% endfor %}
 </ul>{% endif %}
+<p class="note">The comparison follows from the records listed and nothing else; whether the
+runs are comparable is for the laboratory to judge under its quality procedures.</p>
+<div class="sig"><h2>Approval</h2><table>
+<tr><td style="width:28%">Compared by</td><td><div class="line"></div></td></tr>
+<tr><td>Approved by</td><td><div class="line"></div></td></tr>
+<tr><td>Role</td><td><div class="line"></div></td></tr>
+<tr><td>Date</td><td><div class="line"></div></td></tr>
+<tr><td>Signature</td><td><div class="line"></div></td></tr>
+</table></div>
 </body></html>
 """
 
@@ -90,9 +109,13 @@ def _en_rows(rows: Sequence[NormalisedError]) -> list[dict]:
     return out
 
 
-def compare_html(c: Comparison, *, files: Sequence[str] = (), software: str = "qcs-budget"
-                 ) -> str:
-    """The comparison as a standalone HTML page (autoescaped; the figure as a data: URI)."""
+def compare_html(c: Comparison, *, files: Sequence[str] = (), software: str = "qcs-budget",
+                 laboratory: str = "", identifier: str = "", date: str = "") -> str:
+    """The comparison as a standalone HTML page (autoescaped; the figure as a data: URI).
+
+    ``laboratory``, ``identifier`` and ``date`` fill the header (each "not stated" when
+    empty); an approval block with blank lines ends the page.
+    """
     files = list(files) + [""] * (len(c.runs) - len(files))
     unit = c.unit if c.unit not in ("", "1") else ""
     runs = [{"label": r.label, "title": r.title, "date": r.date, "file": f,
@@ -131,7 +154,8 @@ def compare_html(c: Comparison, *, files: Sequence[str] = (), software: str = "q
                       basis_sentence=en_basis_text(c.en_basis),
                       used_k="(stated)" if c.en_basis == "stated" else "(k = 2)",
                       figure=svg_data_uri(compare_figure(c.figure, [r.label for r in c.runs])),
-                      software=software)
+                      software=software, laboratory=laboratory, identifier=identifier,
+                      date=date)
 
 
 def _fetcher():
@@ -148,9 +172,10 @@ def _fetcher():
     return DataOnly(allowed_protocols={"data"}, timeout=1)
 
 
-def compare_pdf(c: Comparison, *, files: Sequence[str] = (), software: str = "qcs-budget"
-                ) -> bytes:
-    """The comparison as an A4 PDF (bytes)."""
+def compare_pdf(c: Comparison, *, files: Sequence[str] = (), software: str = "qcs-budget",
+                laboratory: str = "", identifier: str = "", date: str = "") -> bytes:
+    """The comparison as an A4 PDF (bytes); the header fields as in :func:`compare_html`."""
     import weasyprint  # deferred: costs about a second to import
-    html = compare_html(c, files=files, software=software)
+    html = compare_html(c, files=files, software=software, laboratory=laboratory,
+                        identifier=identifier, date=date)
     return weasyprint.HTML(string=html, url_fetcher=_fetcher()).write_pdf()
