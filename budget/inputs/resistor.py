@@ -71,6 +71,7 @@ from __future__ import annotations
 
 import numpy as np
 
+from ..numbers import overflow_checked
 from ..quantity import ModuleResult, Quantity
 from .context import InputContext
 from .corrections import (
@@ -111,11 +112,19 @@ def voltage_term(ctx: InputContext, hist: History, name: str
     v_work = ctx.number("working_voltage_V")
     v_cal, v_from, dv_i = reference_level(ctx, "calibration_voltage_V", hist.voltage,
                                           what="voltage", column_name="voltage_V")
-    dv = v_work - v_cal
+    # γ·(V_work − V_cal), its uncertainties and the per-calibration factors can overflow a
+    # float for absurd inputs: a located error naming the voltage key, never an inf downstream
+    dv, _ = overflow_checked(
+        lambda: (v_work - v_cal, (gamma * (v_work - v_cal), abs(v_work - v_cal) * u_g,
+                                  abs(v_work - v_cal) * hw_g)),
+        "the voltage-coefficient correction γ·(V_work − V_cal)",
+        lambda msg: ctx.spec_error("working_voltage_V", msg))
     notes = []
     factors = None
     if dv_i is not None:
-        factors = 1.0 + gamma * dv_i
+        factors = overflow_checked(lambda: 1.0 + gamma * dv_i,
+                                   "the voltage-coefficient factors 1 + γ·(V_i − V_cal)",
+                                   lambda msg: ctx.spec_error("voltage_coefficient", msg))
         if gamma != 0:
             notes.append("history values referred to V_cal with the nominal voltage coefficient "
                          "before the fit")
