@@ -305,3 +305,50 @@ def test_fast_path_symbols_agree_with_pint():
         q = registry().Quantity(1.0, units._pint_text(text))
         assert units._dims_of(q.dimensionality) == dims, text
         assert q.to_base_units().magnitude == near(1.0, rel=1e-15), text
+
+
+CHAIN = """
+[model]
+chain = "resistor-voltmeter"
+n = 1
+{units}
+[monte_carlo]
+enabled = false
+[inputs.g]
+value = 1.00000012
+standard_uncertainty = 2e-8
+[inputs.dV]
+value = {dv}
+standard_uncertainty = {udv}
+{dvu}
+[inputs.R]
+value = {r}
+standard_uncertainty = {ur}
+{ru}
+[inputs.f]
+value = {f}
+standard_uncertainty = {uf}
+{fu}
+"""
+
+
+def test_the_same_chain_budget_written_three_ways():
+    # issue 10 "Done when", typed-in form: the numbers are one budget in three spellings
+    # (prefix factors from SI Brochure 9th ed. Table 7); SI values agree to 1e-12, same U
+    si = CHAIN.format(units="", dv=0.0961306, udv=2e-9, dvu='unit = "V"', r=1.0000021e9,
+                      ur=5.0, ru='unit = "Ω"', f=600e6, uf=1e-3, fu='unit = "Hz"')
+    micro = CHAIN.format(units='[units]\nI = "pA"', dv=96130.6, udv=0.002, dvu='unit = "µV"',
+                         r=1.0000021, ur=5e-9, ru='unit = "GΩ"', f=600e6, uf=1e-3,
+                         fu='unit = "Hz"')
+    mega = CHAIN.format(units="", dv=0.0961306, udv=2e-9, dvu='unit = "V"', r=1.0000021e9,
+                        ur=5.0, ru='unit = "Ω"', f=600.0, uf=1e-9, fu='unit = "MHz"')
+    a, b, c = (evaluate(parse_spec(t), monte_carlo_enabled=False) for t in (si, micro, mega))
+    scale = {"A": 1.0, "pA": 1e-12}
+    for name in ("I", "dev_ppm"):
+        ma, mb, mc = a.measurand(name), b.measurand(name), c.measurand(name)
+        f = scale.get(mb.unit, 1.0)
+        assert mb.value * f == near(ma.value, rel=1e-12, abs=1e-12 * ma.standard_uncertainty)
+        assert mc.value == near(ma.value, rel=1e-12, abs=1e-12 * ma.standard_uncertainty)
+        assert mb.expanded_uncertainty * f == near(ma.expanded_uncertainty, rel=1e-12)
+        assert mc.expanded_uncertainty == near(ma.expanded_uncertainty, rel=1e-12)
+    assert (a.measurand("I").unit, b.measurand("I").unit) == ("A", "pA")
