@@ -361,3 +361,18 @@ def test_stability_bound_row_as_the_amplifier_has(tmp_path):
     with pytest.raises(SpecError) as e:
         run_module(ctx(tmp_path, at=AT, stability_bound=1.5))
     assert e.value.field == "inputs.R.stability_bound"
+
+
+def test_prediction_past_the_calibration_interval(tmp_path):
+    # issue 12 item 4: write_history's 12 calibrations lie 91 days apart from 2023-01-15, so the
+    # last is on 2025-10-13 (11·91 = 1001 days on) and AT is 111.6 days after it (calendar
+    # arithmetic): beyond the inferred interval of 91 days, within a stated one of 365
+    write_history(tmp_path)
+    (q,) = run_module(ctx(tmp_path, at=AT)).quantities
+    (w,) = [w for w in q.provenance.warnings if w.code == "history.past_interval"]
+    assert "interval of 91.0 days" in w.message and "calibration_interval_days" in w.message
+    (q,) = run_module(ctx(tmp_path, at=AT, calibration_interval_days=365)).quantities
+    assert "history.past_interval" not in {w.code for w in q.provenance.warnings}
+    (q,) = run_module(ctx(tmp_path, at=AT, calibration_interval_days=100)).quantities
+    (w,) = [w for w in q.provenance.warnings if w.code == "history.past_interval"]
+    assert "100.0 days (calibration_interval_days)" in w.message

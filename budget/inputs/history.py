@@ -66,6 +66,7 @@ from ..quantity import Provenance, Quantity
 from ..stats.regression import INFLATE_POLICIES, Fit, fit
 from ..warnings import Warning, warn
 from .context import InputContext
+from .history_checks import INTERVAL_KEYS, past_interval
 from .history_dof import dof_from_certificates, row_dofs
 from .tables import date_column, numeric_column, parse_iso, read_table, row_ranges
 
@@ -85,7 +86,8 @@ __all__ = [
 
 #: Option keys every history module accepts.
 HISTORY_KEYS = frozenset({"file", "at", "drift", "inflate", "consistency_level", "exclude_rows",
-                          "nominal", "common_standard_uncertainty", "coverage_probability"})
+                          "nominal", "common_standard_uncertainty", "coverage_probability"}
+                         ) | INTERVAL_KEYS
 
 #: Lowest coverage factor accepted on a certificate: k < 1 would state U < u (common practice).
 MIN_COVERAGE_FACTOR = 1.0
@@ -288,19 +290,18 @@ def predict_drift(ctx: InputContext, hist: History, values: np.ndarray, at: pd.T
         notes.append(f"prediction at {at.isoformat()} extrapolates the drift line {past:.1f} "
                      f"days past the last {event} ({last.date().isoformat()})")
         ws.append(warn("history.extrapolation", notes[-1]))
+        past_interval(ctx, hist.dates, past, event, notes, ws)
     if f.inflated:
         notes.append(f"scatter of the {event}s exceeds their stated uncertainties: {f.verdict}")
         ws.append(warn("history.inflated", notes[-1] + "; the covariance was scaled up"))
     elif f.weighted and f.nu > 0 and f.birge_ratio > 1:
         notes.append(f"Birge ratio {f.birge_ratio:.3g} > 1 but not inflated: {f.verdict}")
-        ws.append(warn("history.not_inflated", notes[-1], severity="note"))
     if f.nu == 0:
         notes.append(f"{f.n} {event}(s) for {len(f.params)} parameter(s): the scatter "
                      "cannot be checked against the stated uncertainties")
         ws.append(warn("history.degenerate_fit", notes[-1]))
     if hist.excluded:
         notes.append(f"rows excluded by the spec (exclude_rows): {row_ranges(hist.excluded)}")
-        ws.append(warn("history.excluded_rows", notes[-1], severity="note"))
     if share is not None:
         groups = "one reference for all rows" if hist.references is None else (
             f"{len(set(r for r in hist.references if r))} reference(s) in the 'reference' "
