@@ -7,11 +7,11 @@ below are derived by hand from the ranges given.
 
 from __future__ import annotations
 
+import io
 import re
 from pathlib import Path
 
 import pypdf
-import io
 
 from budget import evaluate, load_spec
 from budget.fmt import fmt_rows

@@ -13,8 +13,8 @@ from typing import Any
 
 from ..budget_rows import distribution_name, grouped_rows
 from ..errors import DataError
-from ..nominal import nominal_point, nominal_text
 from ..fmt import fmt_dof, fmt_num, fmt_rows, fmt_share, fmt_u
+from ..nominal import nominal_point, nominal_text
 from ..result import Budget, Measurand
 from . import figures as figs
 from .statement import (

@@ -5,8 +5,8 @@ from __future__ import annotations
 import math
 from typing import TYPE_CHECKING
 
-from ..fmt import fmt_dof, fmt_num, fmt_share, fmt_u, fmt_value
 from ..budget_rows import column_headings, distribution_name, grouped_rows, text_bar
+from ..fmt import fmt_dof, fmt_num, fmt_share, fmt_u, fmt_value
 from .tables import grouped_table, unit_suffix
 
 if TYPE_CHECKING:  # pragma: no cover - annotations only
