@@ -274,12 +274,17 @@ def stage_file(target: Target, raw: bytes, mode: int | None) -> Path:
             fh.flush()
             os.fsync(fh.fileno())
     except BaseException:
-        try:
-            os.unlink(tmp)
-        except FileNotFoundError:
-            pass
+        _discard(tmp)
         raise
     return Path(tmp)
+
+
+def _discard(tmp: str | Path) -> None:
+    """Remove a temporary file of ours that may already be gone (an error path)."""
+    try:
+        os.unlink(tmp)
+    except FileNotFoundError:
+        pass
 
 
 def write_atomic(path: str | Path, data: bytes | str, *, force: bool = False,
@@ -296,9 +301,6 @@ def write_atomic(path: str | Path, data: bytes | str, *, force: bool = False,
     try:
         os.replace(tmp, target.path)
     except BaseException:
-        try:
-            os.unlink(tmp)
-        except FileNotFoundError:
-            pass
+        _discard(tmp)
         raise
     return target.path
