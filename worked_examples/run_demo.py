@@ -95,8 +95,9 @@ def main() -> None:
           ("sign", OUT / "report.pdf", "--identity", OUT / "approver" / "identity.p12",
            "--record", OUT / "result.json", "--spec", rc / "spec.toml",
            "--reason", "budget report approved", "-o", OUT / "report-signed.pdf"),
+          # the draft carries its record (made with --record): only the spec is given
           ("sign", OUT / "certificate-draft.pdf", "--identity", OUT / "approver" / "identity.p12",
-           "--record", OUT / "result.json", "--spec", rc / "spec.toml",
+           "--spec", rc / "spec.toml",
            "--reason", "certificate approved", "-o", OUT / "certificate-signed.pdf")], False),
         ("verify the signed report and re-check it against its input files",
          [("verify", OUT / "report-signed.pdf", "--trust", OUT / "approver" / "identity.pem",

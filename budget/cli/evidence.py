@@ -81,9 +81,11 @@ def add_sign(sub) -> None:
     p = sub.add_parser("sign", help="sign a report (PAdES) with the evidence embedded",
                        description="Embed the result record, the spec and the input-file "
                                    "manifest in the PDF and sign it (PAdES baseline) with a "
-                                   "visible block naming the signer, role and date. The record "
-                                   "and spec come from --record and --spec, or from the PDF "
-                                   "itself when it carries them already (e.g. a co-signature). "
+                                   "visible block naming the signer, role and date. A report "
+                                   "or draft made by 'budget report' carries its record (and, "
+                                   "when made from a spec, the spec), so the PDF is all that is "
+                                   "needed; --record and --spec give them for a document made "
+                                   "elsewhere. "
                                    "A certificate draft is signed as the final certificate: it "
                                    "is rendered again from the same record (whose digest the "
                                    "draft carries) without the DRAFT watermark. "
@@ -125,8 +127,10 @@ def _cmd_sign(args) -> int:
     if record is None or spec is None:
         missing = " and ".join(o for o, v in (("--record", record), ("--spec", spec))
                                if v is None)
-        raise UsageError(f"the report carries no result record and spec; give {missing}",
-                         field=missing.split(" ")[0])
+        what = " and ".join(w for w, v in (("result record", record), ("spec", spec))
+                            if v is None)
+        raise UsageError(f"the report carries no {what} (it was not made by 'budget report' "
+                         f"from a spec); give {missing}", field=missing.split(" ")[0])
     # check the evidence before asking for the passphrase; errors name the file it came from
     record_file = args.record or f"{args.report} (embedded record)"
     from ..report import final_from_draft

@@ -30,7 +30,8 @@ def add_report(sub) -> None:
                     "writes the calibration-certificate draft (ISO/IEC 17025:2017 7.8) instead, "
                     "watermarked DRAFT. Give SPEC to evaluate it now, or --record RESULT.json "
                     "(from 'budget run --json') to render a stored result without recomputing; "
-                    "SPEC is then left out.",
+                    "SPEC is then left out. The PDF carries the record (and the spec, when "
+                    "made from one) as attachments, so 'budget sign' needs nothing else.",
         epilog="An existing output file is replaced, except a signed PDF, which needs --force "
                "(README \"Output files\").")
     p.add_argument("spec", nargs="?", metavar="SPEC",
@@ -82,6 +83,19 @@ def _check_report_args(args) -> list[str]:
     return outs
 
 
+def _spec_bytes(path: str, b) -> bytes:
+    """The spec's bytes for the PDF to carry (``budget sign`` then needs nothing else); refused
+    when the file changed after it was evaluated (its digest is no longer the record's)."""
+    import hashlib
+
+    from ..errors import DataError
+    raw = read_input(path, "SPEC")
+    if hashlib.sha256(raw).hexdigest() != b.run.get("spec_sha256"):
+        raise DataError("the spec file changed while the report was made; run again",
+                        file=path, field="spec_sha256")
+    return raw
+
+
 def _cmd_report(args) -> int:
     from ..outputs import check_writable
     from ..report import document_info, looks_signed, render_html, render_pdf_layout
@@ -99,10 +113,13 @@ def _cmd_report(args) -> int:
     if args.record:
         from ..record import load_record
         b = load_record(args.record)
+        evidence = {"record": read_input(args.record, "--record")}
     else:
         b = evaluate_spec(args)
+        evidence = {"record": b.to_json().encode("utf-8"), "spec": _spec_bytes(args.spec, b)}
     html = render_html(b, certificate=args.certificate)
-    rendered = (render_pdf_layout(html, info=document_info(b, certificate=args.certificate))
+    rendered = (render_pdf_layout(html, info=document_info(b, certificate=args.certificate),
+                                  evidence=evidence)
                 if args.output else None)
     with OutputSet() as out:  # HTML, PDF and archive: all or none
         if args.html:

@@ -287,8 +287,8 @@ def final_from_draft(pdf: bytes, budget: Budget, *, record_file: str | None = No
     return rendered.pdf, True
 
 
-def render_pdf_layout(html: str, *, fetcher=None, info: dict[str, str] | None = None
-                      ) -> RenderedPdf:
+def render_pdf_layout(html: str, *, fetcher=None, info: dict[str, str] | None = None,
+                      evidence: dict[str, bytes] | None = None) -> RenderedPdf:
     """Lay out ``html`` on A4 pages and write the PDF; locate the signature field.
 
     Parameters
@@ -299,8 +299,16 @@ def render_pdf_layout(html: str, *, fetcher=None, info: dict[str, str] | None = 
         A URL fetcher; default a fresh :func:`DataOnlyFetcher`.
     info : dict, optional
         Extra document-information entries (see :func:`document_info`).
+    evidence : dict, optional
+        Role (``"record"``, ``"spec"``; :data:`budget.pdf_evidence.ATTACHMENTS`) -> the bytes
+        to embed as a PDF attachment under that role's file name, so that ``budget sign``
+        needs nothing but the document. Default none.
     """
+    import io
+
     import weasyprint
+
+    from ..pdf_evidence import ATTACHMENTS
     fetcher = fetcher if fetcher is not None else DataOnlyFetcher()
     doc = weasyprint.HTML(string=html, base_url=None, url_fetcher=fetcher).render()
     sig = None
@@ -324,7 +332,12 @@ def render_pdf_layout(html: str, *, fetcher=None, info: dict[str, str] | None = 
                                    "not on the last page", field="signature-block")
         doc.metadata.custom[SIGNATURE_INFO_KEY] = sig.to_info()
     doc.metadata.custom.update(info or {})
-    pdf = doc.write_pdf(custom_metadata=True)
+    what = {"record": "result record (JSON) the document was rendered from",
+            "spec": "budget spec (TOML) the record was computed from"}
+    attachments = [weasyprint.Attachment(file_obj=io.BytesIO(data), name=ATTACHMENTS[role],
+                                         description=what.get(role, role))
+                   for role, data in (evidence or {}).items()]
+    pdf = doc.write_pdf(custom_metadata=True, attachments=attachments or None)
     return RenderedPdf(pdf=pdf, pages=n, signature=sig,
                        refused=tuple(getattr(fetcher, "refused", ())))
 
