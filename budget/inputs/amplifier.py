@@ -15,8 +15,12 @@ file, at, drift, inflate, consistency_level, exclude_rows, nominal
 quantity : {"transresistance", "gain"}
     What the history holds. Default ``"transresistance"``.
 unit : str
-    Unit of the values. Default ``"Ω"`` for a transresistance (``"V/A"`` is the same unit),
-    ``"1"`` for a gain.
+    Unit the history's ``value`` and ``expanded_uncertainty`` (and the keys
+    ``common_standard_uncertainty``, ``nominal``) are stated in, when the CSV header does not
+    say (``value [MΩ]``); converted to coherent SI when read. It must be a resistance (``"MΩ"``,
+    ``"V/nA"``) for a transresistance and dimensionless (``"1"``, ``"V/mV"``) for a gain;
+    another dimension is refused. Default coherent SI: ``"Ω"`` (= V/A) or ``"1"``. The
+    quantity is always in coherent SI.
 alpha, beta, alpha_uncertainty, beta_uncertainty, reference_temperature_C, temperature_C,
 temperature_uncertainty_C, temperature_half_width_C
     Temperature coefficient of the transresistance, as for the resistor: adds ``NAME_temp``.
@@ -45,6 +49,7 @@ seen by the current I is A·(1 + δ_os).
 from __future__ import annotations
 
 from ..quantity import ModuleResult, Quantity
+from ..units import Unit, UnitError, dim_text, parse_unit
 from .context import InputContext
 from .corrections import (
     TEMPERATURE_KEYS,
@@ -90,14 +95,32 @@ def _offset(ctx: InputContext, name: str) -> tuple[Quantity | None, dict]:
                           "standard_uncertainty": q.standard_uncertainty}}
 
 
+def _stated_unit(ctx: InputContext, si: str, kind: str) -> Unit | None:
+    """The ``unit`` key parsed, of the dimension ``kind`` needs (None when absent or SI)."""
+    if "unit" not in ctx.table:
+        return None
+    text = ctx.option("unit", str)
+    try:
+        unit = parse_unit(text)
+    except UnitError as exc:
+        raise ctx.spec_error("unit", str(exc)) from None
+    need = parse_unit(si)
+    if unit.dims != need.dims:
+        raise ctx.spec_error("unit", f"{text!r} is {dim_text(unit.dims)} but a {kind} is "
+                                     f"{dim_text(need.dims)}")
+    return None if unit.scale == 1.0 else unit
+
+
 def evaluate(ctx: InputContext) -> ModuleResult:
     """Evaluate an ``amplifier`` input (see the module docstring for the keys)."""
     kind = ctx.choice("quantity", ("transresistance", "gain"), "transresistance")
-    unit = ctx.option("unit", str, "Ω" if kind == "transresistance" else "1")
+    si = "Ω" if kind == "transresistance" else "1"
+    stated = _stated_unit(ctx, si, kind)
     what = f"amplifier {kind}"
     at = parse_when(ctx, "at")
     hist = read_history(ctx, voltage=True, positive=kind == "transresistance",
-                        what=kind)
+                        what=kind, si=si, stated=stated)
+    unit = si
     q_temp, f_temp, d_temp = temperature_term(ctx, name=f"{ctx.name}_temp", what=what,
                                               history_temperature=hist.temperature)
     q_stab = _stability(ctx, f"{ctx.name}_stab")

@@ -19,14 +19,8 @@ from ..errors import DataError
 from ..numbers import overflow_checked
 from ..quantity import FileRef, ModuleResult, Provenance, Quantity
 from .context import InputContext
-from .history import (
-    History,
-    common_quantity,
-    drift_figure,
-    drift_quantity,
-    history_diagnostics,
-    predict_drift,
-)
+from .history import History, common_quantity, drift_quantity, predict_drift
+from .history_report import drift_figure, history_diagnostics
 
 __all__ = ["assemble", "drift_result", "stability_term", "TEMPERATURE_KEYS", "bounded_or_standard",
            "reference_level", "relative_term", "temperature_term"]
@@ -258,7 +252,7 @@ def drift_result(ctx: InputContext, hist: History, at, corrections: list[tuple],
                         file=hist.shown, field="value")
     main = drift_quantity(ctx, hist, pred, name=f"{ctx.name}_cal", unit=unit, what=what,
                           extra_notes=extra_notes)
-    reference = ctx.number("nominal", pred.value, positive=True)
+    reference = ctx.number("nominal", pred.value / hist.scale, positive=True) * hist.scale
     diagnostics = history_diagnostics(hist, values, pred, unit=unit)
     for *_, diag in corrections:
         diagnostics.update(diag)

@@ -27,7 +27,10 @@ offset_dof : float
     Degrees of freedom of ``offset_uncertainty``. Default infinite.
 file : str
     Comparison CSV with columns ``date`` (ISO 8601), ``fractional_offset`` and optional
-    ``uncertainty`` (standard uncertainty of each offset) and ``reference``. Without ``uncertainty`` the fit is
+    ``uncertainty`` (standard uncertainty of each offset) and ``reference``. The header may
+    give a dimensionless scale, ``fractional_offset [10⁻¹²]`` (``uncertainty`` then in the same
+    scale unless its header gives its own; ``common_standard_uncertainty`` too); any other
+    dimension is refused naming the file and column. Without ``uncertainty`` the fit is
     unweighted with ν = n − p (Type A). Not together with ``offset`` keys.
 at : str or TOML date-time
     Measurement date (ISO 8601); required with ``file`` or ``comparison_date``.
@@ -79,6 +82,7 @@ from ..distributions import Distribution
 from ..errors import DataError
 from ..quantity import ModuleResult, Provenance, Quantity
 from ..warnings import warn
+from .column_units import ColumnUnit, column_unit, to_si
 from .context import InputContext
 from .corrections import bounded_or_standard, relative_term
 from .history import History, common_quantity, parse_when, predict_drift
@@ -104,22 +108,28 @@ def _offset_from_file(ctx: InputContext, name: str
                       ) -> tuple[Quantity, pd.Timestamp, dict, Quantity | None]:
     path = ctx.path_of(ctx.option("file", str), "file")
     shown = ctx.display(path)
-    df = read_table(path, ("date", "fractional_offset"), ("uncertainty", "reference"), shown=shown)
+    rules = {"fractional_offset": ColumnUnit("1", "a fractional frequency offset"),
+             "uncertainty": ColumnUnit("1", "a fractional frequency offset", difference=True)}
+    df = read_table(path, ("date", "fractional_offset"), ("uncertainty", "reference"),
+                    shown=shown, units=rules)
     dates = date_column(df, "date", shown=shown)
-    y = numeric_column(df, "fractional_offset", shown=shown)
+    y_unit = column_unit(df, "fractional_offset")
+    y = to_si(numeric_column(df, "fractional_offset", shown=shown), y_unit)
     # a fractional offset f/f_nom − 1 of ±1 or more means f ≤ 0 or a value typed in Hz
     far = np.flatnonzero(np.abs(y) >= 1)
     if far.size:
         raise DataError(f"a fractional offset (f/f_nom − 1) must lie in (−1, 1); got "
                         f"{df['fractional_offset'].iloc[far[0]]!r}", file=shown,
                         row=int(far[0]) + 1, field="fractional_offset")
-    u = (numeric_column(df, "uncertainty", shown=shown, positive=True)
+    u = (to_si(numeric_column(df, "uncertainty", shown=shown, positive=True),
+               column_unit(df, "uncertainty") or y_unit, difference=True)
          if "uncertainty" in df else None)
     rows = np.arange(1, len(df) + 1)
     refs = tuple(df["reference"].str.strip()) if "reference" in df else None
     hist = History(path=path, shown=shown, rows=rows, dates=dates, values=y, u=u,
                    temperature=None, voltage=None, certificates=("",) * len(df), excluded=(),
-                   references=refs)
+                   references=refs,
+                   unit=None if y_unit is None or y_unit.scale == 1.0 else y_unit)
     at = parse_when(ctx, "at")
     pred = predict_drift(ctx, hist, y, at, default_drift="constant", event="comparison")
     f = pred.fit

@@ -7,17 +7,28 @@ A calibration history is a CSV file with one row per calibration:
 column                 meaning
 =====================  =========================================================================
 date                   ISO 8601 date or date-time of the calibration (required)
-value                  calibrated value in the quantity's unit (required)
-expanded_uncertainty   U of the certificate, same unit (required, > 0)
+value                  calibrated value (required); coherent SI (Ω) unless the header
+                       gives a unit, ``value [GΩ]``
+expanded_uncertainty   U of the certificate, in the value's unit unless its header gives
+                       its own (required, > 0)
 coverage_factor        k of the certificate (required, >= 1); u_i = U_i / k_i, and ν_i from k_i
 coverage_probability   the p the certificate states k for (optional; blank: the spec's
                        ``coverage_probability``, default 0.95); k = 1 rows need 0.6827
 reference              the calibrating laboratory's reference behind this calibration, free text
                        (optional; see ``common_standard_uncertainty``)
 temperature_C          temperature at which the value was obtained, °C (optional)
-voltage_V              voltage applied during the calibration, V (optional, resistors)
+voltage_V              voltage applied during the calibration, V unless the header gives a
+                       unit, ``voltage_V [mV]`` (optional, resistors)
 certificate            certificate identifier, free text (optional)
 =====================  =========================================================================
+
+Units (:mod:`budget.inputs.column_units`): the module states the dimension of ``value`` (a
+resistance for ``resistor``; for ``amplifier`` a transresistance or a gain); a header unit of
+another dimension, an unreadable one, an offset scale on ``expanded_uncertainty`` or a unit on
+any other column is refused naming the file and the column. The numbers are converted to
+coherent SI when read. The spec keys ``common_standard_uncertainty`` and ``nominal`` are in the
+unit of the values as the file states them (the header's, else the module's ``unit`` key, else
+coherent SI).
 
 The values are fitted against time by weighted least squares (:mod:`budget.stats.regression`,
 the mathematics of JCGM 100 H.3) with the time axis in days relative to the measurement date
@@ -64,7 +75,9 @@ from ..distributions import Distribution
 from ..errors import BudgetError, DataError
 from ..quantity import Provenance, Quantity
 from ..stats.regression import INFLATE_POLICIES, Fit, fit
+from ..units import Unit
 from ..warnings import Warning, warn
+from .column_units import ColumnUnit, column_unit, to_si
 from .context import InputContext
 from .history_checks import INTERVAL_KEYS, past_interval
 from .history_dof import dof_from_certificates, row_dofs
@@ -74,11 +87,8 @@ __all__ = [
     "HISTORY_KEYS",
     "DriftPrediction",
     "History",
-    "decimal_year",
     "common_quantity",
-    "drift_figure",
     "drift_quantity",
-    "history_diagnostics",
     "parse_when",
     "predict_drift",
     "read_history",
@@ -117,6 +127,12 @@ class History:
     coverage_probability: float = DEFAULT_CERTIFICATE_PROBABILITY   # p the k are stated for
     probability_stated: bool = False   # coverage_probability given in the spec or file
     probabilities: np.ndarray | None = None   # p of each row used
+    unit: Unit | None = None     # unit the values were stated in (None: coherent SI)
+
+    @property
+    def scale(self) -> float:
+        """Factor from the unit the file's values are stated in to coherent SI."""
+        return 1.0 if self.unit is None else self.unit.scale
 
 
 @dataclass(frozen=True)
@@ -163,18 +179,32 @@ def parse_when(ctx: InputContext, key: str = "at", default=None) -> pd.Timestamp
 
 
 def read_history(ctx: InputContext, *, voltage: bool = True, positive: bool = False,
-                 what: str = "value") -> History:
+                 what: str = "value", si: str = "Ω", stated: Unit | None = None,
+                 stated_key: str = "unit") -> History:
     """Read and check the calibration history named by ``file``; apply ``exclude_rows``.
 
     ``positive`` refuses values ≤ 0 (a resistance or a transresistance), naming ``what``.
-    A coverage factor below 1 is refused (it would state U < u)."""
+    A coverage factor below 1 is refused (it would state U < u). ``si`` is the coherent SI
+    unit the values are used in (its dimension is the one a header unit must have);
+    ``stated`` the unit the spec key ``stated_key`` gives the values in (None: coherent SI),
+    refused when the header states another. The returned values and u are in ``si``."""
     path = ctx.path_of(ctx.option("file", str), "file")
     shown = ctx.display(path)
     optional = OPTIONAL if voltage else tuple(c for c in OPTIONAL if c != "voltage_V")
-    df = read_table(path, REQUIRED, optional, shown=shown)
+    rules = {"value": ColumnUnit(si, f"a {what}"),
+             "expanded_uncertainty": ColumnUnit(si, f"a {what}", difference=True),
+             "voltage_V": ColumnUnit("V", "a voltage")}
+    df = read_table(path, REQUIRED, optional, shown=shown, units=rules)
+    unit = column_unit(df, "value")
+    if unit is not None and stated is not None and unit.scale != stated.scale:
+        raise ctx.spec_error(stated_key, f"is {stated.text!r} but the header of {shown} gives "
+                                         f"value [{unit.text}]; state the unit once")
+    unit = unit or stated
+    u_unit = column_unit(df, "expanded_uncertainty") or unit
     dates = date_column(df, "date", shown=shown)
-    values = numeric_column(df, "value", shown=shown)
-    big_u = numeric_column(df, "expanded_uncertainty", shown=shown, positive=True)
+    values = to_si(numeric_column(df, "value", shown=shown), unit)
+    big_u = to_si(numeric_column(df, "expanded_uncertainty", shown=shown, positive=True),
+                  u_unit, difference=True)
     k = numeric_column(df, "coverage_factor", shown=shown, positive=True)
     low_k = np.flatnonzero(k < MIN_COVERAGE_FACTOR)
     if low_k.size:
@@ -188,11 +218,11 @@ def read_history(ctx: InputContext, *, voltage: bool = True, positive: bool = Fa
             i = int(neg[0])
             raise DataError(f"a {what} must be > 0; got {df['value'].iloc[i]!r} (give the "
                             "magnitude)", file=shown, row=i + 1, field="value")
-    dof, probs, p, stated = row_dofs(ctx, df, k, shown)
+    dof, probs, p, p_stated = row_dofs(ctx, df, k, shown)
     temp = (numeric_column(df, "temperature_C", shown=shown, allow_blank=True)
             if "temperature_C" in df else None)
-    volt = (numeric_column(df, "voltage_V", shown=shown, allow_blank=True)
-            if "voltage_V" in df else None)
+    volt = (to_si(numeric_column(df, "voltage_V", shown=shown, allow_blank=True),
+                  column_unit(df, "voltage_V")) if "voltage_V" in df else None)
     certs = tuple(df["certificate"].str.strip()) if "certificate" in df else ("",) * len(df)
     refs = tuple(df["reference"].str.strip()) if "reference" in df else None
 
@@ -214,7 +244,8 @@ def read_history(ctx: InputContext, *, voltage: bool = True, positive: bool = Fa
                    references=None if refs is None else tuple(
                        c for c, m in zip(refs, keep) if m),
                    dof=dof[keep], k=k[keep], coverage_probability=p,
-                   probability_stated=stated, probabilities=probs[keep])
+                   probability_stated=p_stated, probabilities=probs[keep],
+                   unit=None if unit is None or unit.scale == 1.0 else unit)
 
 
 def common_covariance(ctx: InputContext, hist: History) -> tuple[float, np.ndarray | None]:
@@ -222,7 +253,7 @@ def common_covariance(ctx: InputContext, hist: History) -> tuple[float, np.ndarr
     u_c = 0). Refuses u_c ≥ u_i for any row, and u_c without stated uncertainties."""
     if "common_standard_uncertainty" not in ctx.table:
         return 0.0, None
-    uc = ctx.number("common_standard_uncertainty", nonnegative=True)
+    uc = ctx.number("common_standard_uncertainty", nonnegative=True) * hist.scale
     if uc == 0:
         return 0.0, None
     if hist.u is None:
@@ -286,6 +317,9 @@ def predict_drift(ctx: InputContext, hist: History, values: np.ndarray, at: pd.T
     past = float((at - last) / _DAY)
     notes = []
     ws = []
+    if hist.unit is not None:
+        notes.append(f"history values stated in {hist.unit.text}; converted to {hist.unit.si} "
+                     f"(× {hist.unit.scale:.17g}) when read")
     if past > 0:
         notes.append(f"prediction at {at.isoformat()} extrapolates the drift line {past:.1f} "
                      f"days past the last {event} ({last.date().isoformat()})")
@@ -405,96 +439,3 @@ def common_quantity(ctx: InputContext, hist: History, pred: DriftPrediction, *, 
             distribution_reason="normal: a part of the certificates' normal uncertainties",
             dof_reason="infinite: a stated certificate uncertainty (JCGM 100 G.4.2)",
             files=(ref,), across_runs="shared"))
-
-
-
-
-
-def decimal_year(ts: pd.Timestamp | pd.DatetimeIndex) -> float | list[float]:
-    """Calendar year with the fraction elapsed, e.g. 2026.5 (for figure axes); a list for an
-    index of dates."""
-    idx = pd.DatetimeIndex([ts]) if isinstance(ts, pd.Timestamp) else pd.DatetimeIndex(ts)
-    start = pd.to_datetime({"year": idx.year, "month": 1, "day": 1})
-    end = pd.to_datetime({"year": idx.year + 1, "month": 1, "day": 1})
-    frac = ((idx - pd.DatetimeIndex(start)) / (pd.DatetimeIndex(end) - pd.DatetimeIndex(start)))
-    out = [float(v) for v in np.asarray(idx.year, dtype=float) + np.asarray(frac, dtype=float)]
-    return out[0] if isinstance(ts, pd.Timestamp) else out
-
-
-def drift_figure(ctx: InputContext, hist: History, values: np.ndarray, pred: DriftPrediction,
-                 *, unit: str, what: str, reference: float) -> dict:
-    """Figure data: calibrations with error bars, the drift line with its ±u band (k = 1) and
-    the prediction, as relative deviations from ``reference`` in parts in 10^6."""
-    scale = 1e6 / reference
-    f = pred.fit
-    t_first = hist.dates.min()
-    t_end = max(pred.at, hist.dates.max())
-    grid = pd.date_range(t_first, t_end, periods=200)
-    y, u = f.predict(np.asarray((grid - pred.at) / _DAY, dtype=float))
-    xs = decimal_year(grid)
-    order = np.argsort(hist.dates.asi8)
-    step = max(1, math.ceil(order.size / 400))  # at most ~400 points per series
-    order = order[::step]
-    return {
-        "id": f"{ctx.name}-drift",
-        "title": f"{what}: calibration history and drift {f.model}",
-        "xlabel": "date (year)",
-        "ylabel": f"({ctx.name} - {reference:.10g} {unit}) / {reference:.10g} {unit} (10^-6)",
-        "xscale": "linear", "yscale": "linear",
-        "series": [
-            {"label": "calibrations (±u, k = 1)", "style": "points",
-             "x": decimal_year(hist.dates[order]),
-             "y": [float((values[i] - reference) * scale) for i in order],
-             "yerr": [float(hist.u[i] * abs(scale)) for i in order]},
-            {"label": "fitted line ± u (k = 1)", "style": "band", "x": xs,
-             "y": [float((v - reference) * scale) for v in y],
-             "y_low": [float((v - w - reference) * scale) for v, w in zip(y, u)],
-             "y_high": [float((v + w - reference) * scale) for v, w in zip(y, u)]},
-            {"label": "fitted line", "style": "line", "x": xs,
-             "y": [float((v - reference) * scale) for v in y]},
-            {"label": f"prediction at {pred.at.date().isoformat()} (±u, k = 1)",
-             "style": "points", "x": [decimal_year(pred.at)],
-             "y": [float((pred.value - reference) * scale)],
-             "yerr": [float(pred.u * abs(scale))]},
-        ],
-    }
-
-
-def history_diagnostics(hist: History, values: np.ndarray, pred: DriftPrediction, *,
-                        unit: str) -> dict:
-    """JSON-ready facts about the fit: parameters, drift per year, Birge ratio, dates."""
-    f = pred.fit
-    slope = f.params[1] if f.model == "line" else 0.0
-    u_slope = f.std_errors[1] if f.model == "line" else 0.0
-    last = hist.dates.max()
-
-    def clean(v: float) -> float | None:
-        return float(v) if math.isfinite(v) else None
-    return {
-        "fit": f.to_dict(),
-        "x_axis": f"days relative to the measurement date {pred.at.isoformat()}",
-        "at": pred.at.isoformat(),
-        "predicted_value": pred.value, "predicted_standard_uncertainty": pred.u,
-        "predicted_standard_uncertainty_independent": pred.u_independent,
-        "predicted_standard_uncertainty_common": pred.u_common,
-        "common_standard_uncertainty": pred.common_standard_uncertainty,
-        "independent_cov": [list(r) for r in pred.independent_cov],
-        "predicted_dof": clean(pred.dof), "unit": unit,
-        "drift_per_year": slope * 365.25, "drift_per_year_uncertainty": u_slope * 365.25,
-        "relative_drift_per_year": slope * 365.25 / pred.value if pred.value else None,
-        "birge_ratio": clean(f.birge_ratio), "p_value": clean(f.p_value),
-        "inflated": f.inflated, "verdict": f.verdict,
-        "calibrations_used": int(f.n), "rows_used": row_ranges(hist.rows),
-        "rows_excluded": list(hist.excluded),
-        "first_calibration": hist.dates.min().isoformat(),
-        "last_calibration": last.isoformat(),
-        "days_since_last_calibration": pred.days_past_last,
-        "extrapolated": pred.days_past_last > 0,
-        "calibrations": [
-            {"row": int(r), "date": d.isoformat(), "value": float(v),
-             "value_at_reference_conditions": float(vc), "standard_uncertainty": float(w),
-             "residual": float(res), "certificate": c}
-            for r, d, v, vc, w, res, c in list(zip(hist.rows, hist.dates, hist.values, values,
-                                                   hist.u, f.residuals,
-                                                   hist.certificates))[:400]],
-    }

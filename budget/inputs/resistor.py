@@ -9,9 +9,12 @@ working voltage become their own budget rows.
 Spec keys (``[inputs.NAME]``, besides ``module = "resistor"``)
 --------------------------------------------------------------
 file : str
-    Calibration history CSV (required). Columns: ``date``, ``value`` (Ω),
-    ``expanded_uncertainty`` (Ω), ``coverage_factor``; optional ``temperature_C`` (°C),
-    ``voltage_V`` (V), ``certificate``.
+    Calibration history CSV (required). Columns: ``date``, ``value`` (Ω unless the header
+    gives a resistance unit, ``value [GΩ]``), ``expanded_uncertainty`` (the value's unit unless
+    its header gives one), ``coverage_factor``; optional ``temperature_C`` (°C), ``voltage_V``
+    (V, or ``voltage_V [mV]``), ``certificate``. A header unit that is not a resistance, or
+    that pint cannot read, is refused naming the file and column; the values are converted to
+    Ω when read, and ``common_standard_uncertainty`` and ``nominal`` are in the header's unit.
 at : str or TOML date-time
     When the pump was measured, ISO 8601 (required). Before the first calibration is refused;
     after the last one the prediction is an extrapolation and is flagged in the notes.
@@ -149,7 +152,7 @@ def voltage_term(ctx: InputContext, hist: History, name: str
 def evaluate(ctx: InputContext) -> ModuleResult:
     """Evaluate a ``resistor`` input (see the module docstring for the keys)."""
     at = parse_when(ctx, "at")
-    hist = read_history(ctx, voltage=True, positive=True, what="resistance")
+    hist = read_history(ctx, voltage=True, positive=True, what="resistance", si=UNIT)
     q_temp, f_temp, d_temp = temperature_term(ctx, name=f"{ctx.name}_temp", what="resistor",
                                               history_temperature=hist.temperature)
     q_volt, f_volt, d_volt = voltage_term(ctx, hist, f"{ctx.name}_volt")

@@ -9,13 +9,14 @@ from __future__ import annotations
 import csv
 import io
 import re
-from collections.abc import Iterable
+from collections.abc import Iterable, Mapping
 from pathlib import Path
 
 import numpy as np
 import pandas as pd
 
 from ..errors import DataError, did_you_mean
+from .column_units import ColumnUnit, resolve_units, split_header
 
 __all__ = ["read_text", "decode_text", "read_table", "numeric_column", "date_column",
            "row_ranges"]
@@ -47,8 +48,13 @@ def read_text(path: Path, shown: str | None = None) -> str:
 
 
 def read_table(path: Path, required: Iterable[str], optional: Iterable[str] = (), *,
-               shown: str | None = None, min_rows: int = 1) -> pd.DataFrame:
+               shown: str | None = None, min_rows: int = 1,
+               units: Mapping[str, ColumnUnit] | None = None) -> pd.DataFrame:
     """Read a UTF-8 CSV file with a header row into a DataFrame of strings.
+
+    A header cell may carry a unit in brackets, ``value [GΩ]``
+    (:mod:`budget.inputs.column_units`): the column is then ``value`` and its parsed unit is
+    in ``df.attrs["units"]`` (read it with :func:`~budget.inputs.column_units.column_unit`).
 
     Parameters
     ----------
@@ -61,6 +67,10 @@ def read_table(path: Path, required: Iterable[str], optional: Iterable[str] = ()
         File name for messages (default ``str(path)``).
     min_rows : int
         Fewest data rows accepted. Default 1.
+    units : mapping, optional
+        Column -> :class:`~budget.inputs.column_units.ColumnUnit` for the columns that may
+        carry a unit in the header (its dimension is checked); a unit on any other column is
+        refused. Default: none may.
     """
     shown = shown or str(path)
     text = read_text(path, shown)
@@ -83,7 +93,8 @@ def read_table(path: Path, required: Iterable[str], optional: Iterable[str] = ()
     except (pd.errors.ParserError, ValueError) as exc:
         msg = " ".join(str(exc).split())
         raise DataError(f"cannot read as CSV: {msg}", file=shown) from None
-    df.columns = [str(c).strip() for c in df.columns]
+    names, header_units = split_header(df.columns)
+    df.columns = names
     required, optional = list(required), list(optional)
     known = required + optional
     seen = set()
@@ -99,6 +110,7 @@ def read_table(path: Path, required: Iterable[str], optional: Iterable[str] = ()
             raise DataError(f"missing column{did_you_mean(c, df.columns)}", file=shown, field=c)
     if len(df) < min_rows:
         raise DataError(f"has {len(df)} data rows; at least {min_rows} needed", file=shown)
+    df.attrs["units"] = resolve_units(header_units, units, shown=shown)
     return df
 
 

@@ -4,7 +4,10 @@ Josephson voltage standard, with its specification terms.
 g multiplies the reading: a true voltage difference is g·ΔV_read. Two ways to obtain it:
 
 * **calibration table** (``file``): CSV with ``reference_V`` (the Josephson voltage) and
-  ``reading_V``, optionally ``reading_uncertainty_V`` (standard uncertainty of each reading).
+  ``reading_V``, optionally ``reading_uncertainty_V`` (standard uncertainty of each reading),
+  in V unless the header gives a voltage unit (``reading_V [mV]``; the uncertainty then in the
+  reading's unit unless its header gives its own); converted to V when read, another
+  dimension refused naming the file and column.
   The readings are fitted against the reference by least squares — ``fit = "offset"``
   (default; reading = G·V_ref + b, so a zero offset of the voltmeter does not bias the gain,
   and it cancels in the on/off difference anyway) or ``fit = "origin"`` (reading = G·V_ref).
@@ -78,6 +81,7 @@ from ..errors import BudgetError, DataError
 from ..quantity import ModuleResult, Provenance, Quantity
 from ..stats.regression import INFLATE_POLICIES, fit
 from ..warnings import warn
+from .column_units import ColumnUnit, column_unit, to_si
 from .context import InputContext
 from .corrections import assemble, relative_term
 from .history import parse_when
@@ -103,10 +107,16 @@ def _from_table(ctx: InputContext, name: str) -> tuple[Quantity, float, dict]:
                                     "values ('gain' ...), not both")
     path = ctx.path_of(ctx.option("file", str), "file")
     shown = ctx.display(path)
-    df = read_table(path, ("reference_V", "reading_V"), ("reading_uncertainty_V",), shown=shown)
-    ref = numeric_column(df, "reference_V", shown=shown)
-    rd = numeric_column(df, "reading_V", shown=shown)
-    u = (numeric_column(df, "reading_uncertainty_V", shown=shown, positive=True)
+    volt = ColumnUnit("V", "a voltage")
+    rules = {"reference_V": volt, "reading_V": volt,
+             "reading_uncertainty_V": ColumnUnit("V", "a voltage", difference=True)}
+    df = read_table(path, ("reference_V", "reading_V"), ("reading_uncertainty_V",), shown=shown,
+                    units=rules)
+    ref = to_si(numeric_column(df, "reference_V", shown=shown), column_unit(df, "reference_V"))
+    rd_unit = column_unit(df, "reading_V")
+    rd = to_si(numeric_column(df, "reading_V", shown=shown), rd_unit)
+    u = (to_si(numeric_column(df, "reading_uncertainty_V", shown=shown, positive=True),
+               column_unit(df, "reading_uncertainty_V") or rd_unit, difference=True)
          if "reading_uncertainty_V" in df else None)
     mode = ctx.choice("fit", ("offset", "origin"), "offset")
     policy = ctx.choice("inflate", INFLATE_POLICIES, "chi2-test")
