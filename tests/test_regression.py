@@ -231,3 +231,33 @@ def test_covariance_beyond_float64_is_refused(scale):
 def test_bad_input_raises_project_error(args, kwargs, words):
     with pytest.raises(ComputationError, match=words):
         fit(*args, **kwargs)
+
+
+# ---------------------------------------------------------------- few points, by hand
+def test_three_point_weighted_line_by_hand():
+    # x = 0, 1, 2; y = 0, 1, 3; u = 1 (invented numbers, solved by hand with the normal
+    # equations): slope Σ(x − x̄)(y − ȳ)/Σ(x − x̄)² = (4/3 + 5/3)/2 = 3/2, intercept
+    # ȳ − 3/2·x̄ = −1/6; residuals 1/6, −1/3, 1/6, Σr² = 1/6 on ν = 1
+    f = fit([0.0, 1.0, 2.0], [0.0, 1.0, 3.0], [1.0, 1.0, 1.0], inflate="never")
+    assert f.params == (near(-1 / 6, rel=1e-12), near(1.5, rel=1e-12))
+    assert f.residuals == near([1 / 6, -1 / 3, 1 / 6], rel=1e-12)
+    assert f.nu == 1
+    assert f.residual_sd == near(math.sqrt(1 / 6), rel=1e-12)
+    assert f.chi2 == near(1 / 6, rel=1e-12)
+    assert f.p_value == near(float(stats.chi2.sf(1 / 6, 1)), rel=1e-12)   # scipy.stats
+    # (XᵀX)⁻¹ with X = [1, x]: [[5/6, −1/2], [−1/2, 1/2]] (by hand)
+    assert f.covariance == near(np.array([[5 / 6, -0.5], [-0.5, 0.5]]), rel=1e-12)
+    # project wording: the "never" policy says the stated uncertainties were kept
+    assert f.verdict.startswith("stated uncertainties kept as they are")
+
+
+def test_as_many_points_as_parameters():
+    # two points, a line: ν = 0, nothing to check the scatter against (JCGM 100 H.3: the
+    # residual variance needs n − 2 > 0); the stated uncertainties stand, ν stays infinite
+    f = fit([0.0, 2.0], [1.0, 5.0], [0.5, 0.5])
+    assert f.params == (near(1.0, rel=1e-12), near(2.0, rel=1e-12))
+    assert f.nu == 0 and math.isnan(f.residual_sd) and math.isnan(f.chi2)
+    assert math.isnan(f.p_value) and not f.inflated and f.dof == math.inf
+    assert "as many parameters as points" in f.verdict
+    # u(p0) = 0.5 at x0 = 0 (the first point alone fixes it); u(slope) = √2·0.5/2
+    assert f.std_errors == (near(0.5, rel=1e-12), near(math.sqrt(2) * 0.25, rel=1e-12))

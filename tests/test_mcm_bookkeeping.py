@@ -1,0 +1,164 @@
+"""Bookkeeping of the Monte Carlo method: interval indices, batch counts, the trial cap, the
+Sobol grid ends, and the inputs whose t distribution has no variance (issue 18, mutation gaps).
+
+Sources: JCGM 101 §7.7.1 (order statistics of the probabilistically symmetric interval),
+§7.9.4 (adaptive batches of M trials), JCGM 100 eq. 16 (variance of a sum of correlated
+inputs); the variance of Student's t, ν/(ν − 2) for ν > 2 and infinite for ν ≤ 2 (any
+statistics handbook; checked against scipy.stats below); scipy's documentation of
+``qmc.Sobol`` (points are k/2^bits). Rules the project chose where no published source exists
+are marked *project convention*.
+"""
+
+from __future__ import annotations
+
+import math
+
+import numpy as np
+import pytest
+from numeric import near
+from scipy import stats
+
+from budget.distributions import Distribution
+from budget.model import build_model
+from budget.propagate import mcm
+from budget.propagate.mcm import McmSettings, coverage_intervals, monte_carlo
+from budget.quantity import Quantity
+
+
+def q(name, dist: Distribution, dof=math.inf) -> Quantity:
+    return Quantity(name=name, value=dist.mean, standard_uncertainty=dist.std,
+                    distribution=dist, dof=dof)
+
+
+def run(outputs, quantities, corr=None, progress=None, **kw):
+    model = build_model(outputs, quantities={x.name for x in quantities}, constants={})
+    corr = np.eye(len(quantities)) if corr is None else corr
+    kw.setdefault("seed", 1)
+    return monte_carlo(model, quantities, corr, McmSettings(**kw), progress=progress)
+
+
+# ------------------------------------------------------------------ JCGM 101 §7.7.1 indices
+def test_symmetric_interval_order_statistics_by_hand():
+    # JCGM 101 §7.7.1: q = ⌊pM + ½⌋; r = (M − q)/2 when M − q is even, else (M − q + 1)/2;
+    # interval [y_(r), y_(r+q)] (1-based). The sorted samples are 1 … M, so y_(i) = i.
+    y = np.arange(1.0, 11.0)                       # M = 10
+    # p = 0.1: q = ⌊1.5⌋ = 1, M − q = 9 odd, r = 5: [y_(5), y_(6)] = [5, 6]
+    sym, short = coverage_intervals(y, 0.1)
+    assert sym == (5.0, 6.0)
+    # shortest: every window of q = 1 has width 1, the first (r* = 1) is taken: [1, 2]
+    assert short == (1.0, 2.0)
+    # p = 0.5: q = ⌊5.5⌋ = 5, M − q = 5 odd, r = 3: [3, 8]
+    assert coverage_intervals(y, 0.5)[0] == (3.0, 8.0)
+    # p = 0.6: q = ⌊6.5⌋ = 6, M − q = 4 even, r = 2: [2, 8]
+    assert coverage_intervals(y, 0.6)[0] == (2.0, 8.0)
+
+
+def test_interval_index_clamped_inside_the_sample():
+    # project convention: q is kept within 1 … M − 1 so that both order statistics exist even
+    # when M < 1/(1 − p) (JCGM 101 §7.2 asks for M ≫ 1/(1 − p); a tiny M is not refused here).
+    # M = 3, p = 0.95: ⌊2.85 + ½⌋ = 3 → q = 2, M − q = 1 odd, r = 1: [y_(1), y_(3)]
+    y = np.array([1.0, 2.0, 4.0])
+    sym, short = coverage_intervals(y, 0.95)
+    assert sym == (1.0, 4.0) and short == (1.0, 4.0)
+    # M = 10, p = 0.01: ⌊0.6⌋ = 0 → q = 1, r = 5: [5, 6]
+    assert coverage_intervals(np.arange(1.0, 11.0), 0.01)[0] == (5.0, 6.0)
+
+
+# ------------------------------------------------------------------ JCGM 101 §7.9.4 batches
+def test_adaptive_cap_runs_exactly_the_whole_batches_that_fit():
+    # M = 10⁴ at p = 0.95 (JCGM 101 §7.9.4). ndig = 4 on u = 1 needs δ/5 = 1e-4 (§7.9.2), i.e.
+    # some 10⁷ trials: far beyond the cap, so the procedure runs every whole batch the cap
+    # allows and stops unstabilised. max_trials = 59 999 holds 5 batches, 60 000 holds 6.
+    x = [q("X", Distribution.normal(0.0, 1.0))]
+    seen = []
+    r = run({"Y": "X"}, x, trials=None, significant_digits=4, max_trials=59_999,
+            progress=lambda done, total: seen.append((done, total)))["Y"]
+    assert not r.stabilised and r.adaptive
+    assert (r.batches, r.trials) == (5, 50_000)
+    # progress: trials done so far, never above the cap's whole batches (project convention)
+    assert seen[-1][0] == 50_000
+    assert [d for d, _ in seen] == sorted(d for d, _ in seen)
+    assert all(d <= t <= 59_999 for d, t in seen), seen
+    r = run({"Y": "X"}, x, trials=None, significant_digits=4, max_trials=60_000)["Y"]
+    assert (r.batches, r.trials) == (6, 60_000)
+
+
+def test_fixed_run_is_one_batch_and_reports_progress():
+    # project convention: a fixed number of trials is one batch, "stabilised" by definition
+    seen = []
+    r = run({"Y": "X"}, [q("X", Distribution.normal(0.0, 1.0))], trials=450_000,
+            progress=lambda done, total: seen.append((done, total)))["Y"]
+    assert (r.batches, r.trials, r.stabilised, r.adaptive) == (1, 450_000, True, False)
+    # chunks of mcm.CHUNK = 200 000 trials: 200 000, 400 000, 450 000 of 450 000
+    assert seen == [(200_000, 450_000), (400_000, 450_000), (450_000, 450_000)]
+
+
+def test_stop_refused_when_batch_means_disagree():
+    # JCGM 101 §7.9.4 e)–h): two batches of M = 10 whose means are −1 and +1 with s = 1 each.
+    # u(y) of the 20 values (pooled): ((M − 1)(1 + 1) + M·(1 + 1))/(2M − 1) = 38/19 = 2, u = √2;
+    # δ = 0.05 at ndig = 2 (√2 = 14 × 10⁻¹), δ/5 = 0.01; the standard deviation of the average
+    # of the two means is 1, so 2·1 > 0.01: not stable. Equal batches are stable.
+    apart = [{"Y": (-1.0, 1.0, -3.0, 1.0)}, {"Y": (1.0, 1.0, -1.0, 3.0)}]
+    assert mcm._stable(10, apart, ["Y"], 2) is False
+    same = [{"Y": (0.0, 1.0, -2.0, 2.0)}, {"Y": (0.0, 1.0, -2.0, 2.0)}]
+    assert mcm._stable(10, same, ["Y"], 2) is True
+
+
+# ------------------------------------------------------------------ Sobol path
+def test_sobol_correlated_gaussian_pair_keeps_its_means():
+    # JCGM 100 eq. 16: Y = X1 + X2, u = 1 and 2, r = 0.5: u²(Y) = 1 + 4 + 2·0.5·2 = 7;
+    # E[Y] = 10 + 5 = 15 exactly for a linear model. RQMC at 2^16 points: the mean's error is
+    # far below the pseudo-random standard error √7/256 = 0.0103, which is the bound used.
+    qs = [q("X1", Distribution.normal(10.0, 1.0)), q("X2", Distribution.normal(5.0, 2.0))]
+    corr = np.array([[1.0, 0.5], [0.5, 1.0]])
+    r = run({"Y": "X1 + X2"}, qs, corr=corr, trials=1 << 16, sampling="sobol")["Y"]
+    assert r.value == near(15.0, abs=0.0103)
+    assert r.standard_uncertainty == near(math.sqrt(7.0), rel=0.01)
+
+
+class _GridEnds:
+    """Stands in for ``scipy.stats.qmc.Sobol``: returns the two extreme points of the 52-bit
+    grid, 0 and (2^52 − 1)/2^52 (scipy's Sobol points are k/2^bits, k = 0 … 2^bits − 1)."""
+
+    MAXDIM = 21201
+
+    def __init__(self, d, **kw):
+        self.d = d
+
+    def random(self, n):
+        u = np.zeros((n, self.d))
+        u[1::2] = (2.0 ** 52 - 1) / 2.0 ** 52
+        return u
+
+
+def test_sobol_grid_ends_stay_inside_the_unit_interval(monkeypatch):
+    # project convention (mcm.py): a point k/2^52 is moved to (k + ½)/2^52, so both grid ends
+    # map to finite normal quantiles, ±Φ⁻¹(1 − 2^-53) = ±8.21 (scipy.stats.norm.isf)
+    from scipy.stats import qmc
+    monkeypatch.setattr(qmc, "Sobol", _GridEnds)
+    r = run({"Y": "X"}, [q("X", Distribution.normal(0.0, 1.0))], trials=4, sampling="sobol")["Y"]
+    end = float(stats.norm.isf(2.0 ** -53))
+    assert end == near(8.21, rel=1e-3)
+    assert r.symmetric == (near(-end, rel=1e-9), near(end, rel=1e-9))
+
+
+# ------------------------------------------------------------------ t inputs without variance
+@pytest.mark.parametrize("dof, infinite", [(1.0, True), (2.0, True), (2.5, False), (3.0, False)])
+def test_inputs_without_finite_variance(dof, infinite):
+    # Student's t has variance ν/(ν − 2) for ν > 2, none (infinite or undefined) for ν ≤ 2
+    # (scipy.stats.t is the reference: inf at ν = 2, nan at ν = 1)
+    assert (not np.isfinite(stats.t(dof).var())) == infinite
+    xs = [q("A", Distribution.normal(1.0, 0.1), dof=dof),
+          q("C", Distribution.normal(2.0, 0.0), dof=dof)]       # a constant is never drawn
+    got = mcm.infinite_variance_inputs(xs)
+    assert got == (frozenset({"A"}) if infinite else frozenset())
+    assert mcm.infinite_variance_inputs(xs, t_for_finite_dof=False) == frozenset()
+
+
+def test_constant_output_histogram_brackets_the_value():
+    # project convention: a constant output (no finite-width bins from its samples) gets one
+    # unit either side of its value, so the figure still shows where the value is
+    r = run({"Y": "X + 3"}, [q("X", Distribution.normal(2.0, 0.0))], trials=1000)["Y"]
+    assert r.value == 5.0
+    assert r.histogram_edges[0] < 5.0 < r.histogram_edges[-1]
+    assert (r.histogram_edges[0], r.histogram_edges[-1]) == (4.5, 5.5)
