@@ -216,3 +216,17 @@ def test_frequency_comparison_in_parts_in_ten_to_the_twelve(tmp_path):
     (tmp_path / "c.csv").write_text("\n".join(lines_12).replace("[10⁻¹²]", "[Hz]") + "\n")
     with pytest.raises(DataError, match="fractional frequency offset"):
         f("c.csv")
+
+
+def test_frequency_nominal_with_its_unit(tmp_path):
+    # 600 MHz = 6e8 Hz (mega = 1e6, SI Brochure Table 7)
+    def f(**t):
+        c = InputContext(name="f", table={"module": "frequency", "offset_bound": 1e-11, **t},
+                         folder=tmp_path, spec_file="spec.toml")
+        return only(run_module(c))
+
+    assert f(nominal_frequency={"value": 600, "unit": "MHz"}).value == 6e8
+    with pytest.raises(SpecError, match="not a frequency"):
+        f(nominal_frequency={"value": 600, "unit": "mV"})
+    with pytest.raises(SpecError, match="not both"):
+        f(nominal_frequency={"value": 600, "unit": "MHz"}, nominal_Hz=6e8)

@@ -17,7 +17,10 @@ No data file is required.
 Spec keys (``[inputs.NAME]``, besides ``module = "frequency"``)
 ---------------------------------------------------------------
 nominal_Hz : float
-    Nominal (set) frequency, Hz (required, > 0).
+    Nominal (set) frequency, Hz (> 0). Required unless ``nominal_frequency`` is given.
+nominal_frequency : table
+    Alternatively the nominal frequency with its unit, ``{value = 600, unit = "MHz"}``; a unit
+    that is not a frequency is refused. Not together with ``nominal_Hz``.
 offset : float
     Fractional offset y from a comparison or specification. Default 0.
 offset_uncertainty, offset_bound : float
@@ -81,6 +84,7 @@ import pandas as pd
 from ..distributions import Distribution
 from ..errors import DataError
 from ..quantity import ModuleResult, Provenance, Quantity
+from ..units import UnitError, dim_text, parse_unit
 from ..warnings import warn
 from .column_units import ColumnUnit, column_unit, to_si
 from .context import InputContext
@@ -99,7 +103,7 @@ TAU_RANGE = 100.0
 
 _OFFSET_KEYS = ("offset", "offset_uncertainty", "offset_bound", "offset_dof")
 _FILE_KEYS = ("file", "drift", "inflate", "consistency_level", "common_standard_uncertainty")
-KEYS = frozenset({"nominal_Hz", "at", "aging_per_day", "days_since_comparison",
+KEYS = frozenset({"nominal_Hz", "nominal_frequency", "at", "aging_per_day", "days_since_comparison",
                   "comparison_date", "allan_deviation", "allan_tau_s", "measurement_time_s",
                   "noise", "allan_tau_max_s", *_OFFSET_KEYS, *_FILE_KEYS})
 
@@ -313,9 +317,34 @@ def _absolute(q: Quantity, name: str, nominal: float) -> Quantity:
             q.provenance, method=q.provenance.method + f"; f = {nominal:g} Hz × (1 + y)"))
 
 
+def _nominal(ctx: InputContext) -> float:
+    """f_nom in Hz from ``nominal_Hz`` or ``nominal_frequency = {value, unit}``."""
+    if "nominal_frequency" not in ctx.table:
+        return ctx.number("nominal_Hz", positive=True)
+    if "nominal_Hz" in ctx.table:
+        raise ctx.spec_error("nominal_frequency", "give nominal_Hz or nominal_frequency, not both")
+    t = ctx.table["nominal_frequency"]
+    if not (isinstance(t, dict) and set(t) == {"value", "unit"}
+            and isinstance(t["value"], (int, float)) and not isinstance(t["value"], bool)
+            and isinstance(t["unit"], str)):
+        raise ctx.spec_error("nominal_frequency", "must be a table {value = NUMBER, unit = "
+                                                  "\"UNIT\"}, e.g. {value = 600, unit = \"MHz\"}")
+    try:
+        unit = parse_unit(t["unit"])
+    except UnitError as exc:
+        raise ctx.spec_error("nominal_frequency", str(exc)) from None
+    if unit.dims != parse_unit("Hz").dims:
+        raise ctx.spec_error("nominal_frequency", f"{t['unit']!r} is {dim_text(unit.dims)}, "
+                                                  "not a frequency (Hz)")
+    f = float(t["value"]) * unit.scale
+    if not (math.isfinite(f) and f > 0):
+        raise ctx.spec_error("nominal_frequency", f"must be > 0 and finite; got {t['value']!r}")
+    return f
+
+
 def evaluate(ctx: InputContext) -> ModuleResult:
     """Evaluate a ``frequency`` input (see the module docstring for the keys)."""
-    nominal = ctx.number("nominal_Hz", positive=True)
+    nominal = _nominal(ctx)
     diagnostics: dict = {"nominal_Hz": nominal}
     last = None
     if "file" in ctx.table:
