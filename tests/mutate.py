@@ -49,7 +49,7 @@ MODULES: dict[str, list[str]] = {
     "budget.propagate.mcm": ["test_mcm_bookkeeping.py", "test_mcm_adaptive_stop.py", "test_mcm.py",
                              "test_mcm_rqmc.py", "test_second_order.py"],
     "budget.distributions": ["test_distribution_ppf.py", "test_distributions.py",
-                             "test_second_order.py", "test_mcm.py"],
+                             "test_sampled_distribution.py", "test_second_order.py", "test_mcm.py"],
     "budget.stats.allan": ["test_core_gaps.py", "test_allan.py", "test_allan_blocks.py"],
     "budget.stats.autocorr": ["test_autocorr_bounds.py", "test_autocorr.py"],
     "budget.stats.regression": ["test_regression.py", "test_history_common.py"],

@@ -91,3 +91,15 @@ def test_monte_carlo_sees_the_asymmetry():
         assert got == near(float(LOGN.ppf(p)), abs=6 * se + 0.01)
     # a normal of the same mean and sd would put the ends at mean ∓ 1.96 sd: visibly wrong
     assert abs((d.mean - 1.96 * d.std) - LOGN.ppf(0.025)) > 0.1
+
+
+def test_tail_rule_with_as_many_samples_as_points():
+    # project convention (distributions.py): the outer table value makes the outer segment's
+    # mean equal the mean of the samples in its tail, tail = round(M/(points − 1)) samples, at
+    # least 1. With the M = 9 samples 0 … 8 and 9 points the table is q_j = j inside, and
+    # with tail = 1: q_0 = min(q_1, 2·0 − q_1) = −1, q_8 = max(q_7, 2·8 − q_7) = 9 (by hand).
+    # The table is then standardised (an affine map), so its spacing ratios are kept: the
+    # outer segments are twice as long as the inner ones.
+    d = Distribution.sampled(np.arange(9.0), points=9)
+    z = np.diff(np.asarray(d.quantiles))
+    assert z / z[1] == near([2.0, 1, 1, 1, 1, 1, 1, 2.0], rel=1e-12)

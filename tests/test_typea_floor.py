@@ -237,3 +237,32 @@ def test_planning_white_by_hand_and_zero_mean():
     zero = typea.planning(SimpleNamespace(mean=0.0, method="white", n=50, u=0.3, fit=None),
                           SimpleNamespace(var_mean=1.0), 0.1, 4.0, 200.0)
     assert zero["cycles_needed"] is None and "undefined" in zero["text"]
+
+
+# ------------------------------------------------------------------ segments and pooling
+def test_a_last_segment_with_one_kept_reading_is_used():
+    # project convention (onoff.usable_on_segments): an end segment cut short by the record's
+    # end is used while the settle cut leaves it at least one reading, dropped when none.
+    # Segments of K = 10 readings every 1 s, settle 5 s: readings 5 … 9 of a segment are kept.
+    def record(last_len):
+        segs = 2 * 4 + 1                                    # off, on, …, off: 4 on segments
+        t = np.arange((segs - 1) * K + last_len) * DT
+        on = (t // (K * DT)).astype(int) % 2 == 1
+        seg = onoff.segment(t, np.zeros_like(t), on, 5.0)
+        return seg, onoff.differences(seg, "linear")
+
+    seg, diff = record(6)                                   # last off segment: 6 readings
+    assert seg.kept[-1] == 1 and diff.n == 4
+    seg, diff = record(5)                                   # 5 readings: none kept
+    assert seg.kept[-1] == 0 and diff.n == 3
+
+
+def test_pooled_records_have_a_block_diagonal_weight_matrix():
+    # by construction: no segment is shared between records, so W of the pooled differences is
+    # block-diagonal and the second record's segment indices follow the first record's
+    from scipy.linalg import block_diag
+    a, b = regular(3), regular(2)
+    pooled = onoff.stack([a, b])
+    assert pooled.matrix().toarray() == near(block_diag(a.matrix().toarray(),
+                                                        b.matrix().toarray()), rel=0, abs=0)
+    assert list(pooled.involved) == list(a.involved) + list(b.involved + len(a.v))
