@@ -1,0 +1,103 @@
+"""Edges of the comparison of runs (issue 18, mutation gaps): undefined E_n, u = 0, the names
+of the shared terms, a correlation that cannot be carried, the reference's legend, and the
+overflow limit of a typed-in reference.
+
+Sources: E_n = (x_a − x_b)/U(x_a − x_b) (ISO 13528 §9.7; ISO/IEC 17043) is undefined when the
+difference has no uncertainty; the variance of a combination of correlated results (JCGM 100
+eq. 13); the largest double, 1.797…e308 (IEEE 754 binary64), whose square root is 1.34e154.
+The runs come from tests/test_compare.py's spec. Rules without a published source are marked
+*project convention*.
+"""
+
+from __future__ import annotations
+
+import json
+
+import pytest
+from test_compare import SPEC, S, _declare, digest_of, record
+
+from budget import evaluate
+from budget.compare import ReferenceValue, compare_runs
+from budget.errors import DataError, UsageError
+from budget.record import record_from_dict
+from budget.spec import parse_spec
+
+
+def test_identical_records_have_an_undefined_en_and_say_so():
+    # the same record twice: every term shared, u(difference) = 0, E_n undefined (ISO 13528
+    # divides by U); project convention: u and U of the difference are reported as 0 and a
+    # note names the pair
+    d = _declare(_declare(record(1 * S, 0.4 * S, 0.3 * S), "r", "cert"), "x", "same-run")
+    r = record_from_dict(d)
+    c = compare_runs([r, r], pairwise=True, labels=["a", "b"])
+    (e,) = c.pairwise
+    assert e.en is None and e.standard_uncertainty == 0.0 and e.expanded_uncertainty == 0.0
+    assert sum("share every term" in n for n in c.notes) == 3, c.notes   # two vs x̄, a vs b
+
+
+def test_no_undefined_note_when_every_en_exists():
+    runs = [record_from_dict(record(x * S, 1 * S, title=f"run {x}")) for x in (10, 12, 14)]
+    c = compare_runs(runs, pairwise=True)
+    assert all(e.en is not None for e in c.en + c.pairwise)
+    assert not any("share every term" in n for n in c.notes), c.notes
+
+
+def test_a_run_with_zero_uncertainty_is_refused():
+    # project convention: a result with u = 0 can be neither weighted (1/u²) nor compared
+    good = record_from_dict(record(1 * S, 1 * S))
+    zero = record_from_dict(record(2 * S, 0.0))
+    with pytest.raises(DataError) as info:
+        compare_runs([good, zero], files=["a.json", "b.json"])
+    assert info.value.field == "standard_uncertainty" and info.value.file == "b.json"
+
+
+def test_en_against_the_mean_names_the_shared_terms():
+    # both runs carry the same resistor history (same digest): the term r is shared, and the
+    # E_n of each run against the weighted mean names it
+    h = digest_of("the same resistor history")
+    r1 = record_from_dict(record(1 * S, 0.45 * S, 0.60 * S, digest=h))
+    r2 = record_from_dict(record(2 * S, 0.80 * S, 0.60 * S, digest=h))
+    c = compare_runs([r1, r2])
+    assert [e.shared for e in c.en] == [("r",), ("r",)]
+    u1 = record_from_dict(record(1 * S, 0.45 * S, 0.60 * S))
+    u2 = record_from_dict(record(2 * S, 0.80 * S, 0.60 * S))       # no file: not shared
+    assert [e.shared for e in compare_runs([u1, u2]).en] == [(), ()]
+
+
+def test_correlation_with_a_non_shared_input_is_named_as_not_carried():
+    # project convention: r(x, r) inside run a links a shared term (r) and one that is not (x);
+    # the between-run covariance carries only the shared terms (JCGM 100 eq. 13 over the
+    # shared r alone) and a note says which correlation was left out
+    h = digest_of("the same resistor history")
+    spec = SPEC + "\n[correlations]\npairs = [[\"x\", \"r\", 0.5]]\n"
+    b = evaluate(parse_spec(spec.format(x=1 * S, ux=0.45 * S, ur=0.60 * S, cr=1, title="run",
+                                        date="2026-11-20")), monte_carlo_enabled=False)
+    d = json.loads(b.to_json())
+    for q in d["inputs"]:
+        if q["name"] == "r":
+            q["source"]["files"] = [{"path": "r1g_history.csv", "sha256": h, "rows": "1-12"}]
+            q["source"]["origin"] = "module:resistor"
+    r1 = record_from_dict(d)
+    r2 = record_from_dict(record(2 * S, 0.80 * S, 0.60 * S, digest=h))
+    notes = compare_runs([r1, r2], labels=["a", "b"]).notes
+    assert any("not carried" in n and "r(x, r) for a and b" in n for n in notes), notes
+    plain = compare_runs([record_from_dict(record(1 * S, 0.45 * S, 0.60 * S, digest=h)), r2])
+    assert not any("not carried" in n for n in plain.notes)
+
+
+def test_reference_record_legend_names_the_u_drawn():
+    # project convention (figure legend): the reference band is its U with the k used
+    runs = [record_from_dict(record(x * S, 1 * S, title=f"run {x}")) for x in (10, 12)]
+    ref = record_from_dict(record(11 * S, 1 * S, title="reference"))
+    for basis, words in (("stated", "its stated k"), ("2u", "k = 2")):
+        fig = compare_runs(runs, reference=ref, en_basis=basis).figure
+        band = [s["label"] for s in fig["series"] if s["style"] == "band"]
+        assert band == [f"reference ± U ({words})"], band
+
+
+def test_typed_reference_near_the_float_limit():
+    # E_n squares u = U/2: U = 2.6e154 gives u² = 1.69e308 < 1.797e308 (accepted); U = 2.8e154
+    # gives 1.96e308, beyond the largest double (refused, IEEE 754 binary64)
+    ReferenceValue(0.0, 2.6e154)
+    with pytest.raises(UsageError):
+        ReferenceValue(0.0, 2.8e154)
