@@ -107,6 +107,9 @@ class ChainModel:
         Expected unit of each input.
     constants : dict
         Constants fixed by the ``[model]`` table (``n`` when given there).
+    renamed : dict
+        The chain's own name of each output and input -> the name used (after
+        ``outputs_map`` and ``inputs_map``); :mod:`budget.measurands` looks meanings up by it.
     """
 
     outputs: dict[str, str]
@@ -116,6 +119,7 @@ class ChainModel:
     inputs: tuple[str, ...] = ()
     input_units: dict[str, str] = field(default_factory=dict)
     constants: dict[str, int] = field(default_factory=dict)
+    renamed: dict[str, str] = field(default_factory=dict)
 
     def to_dict(self) -> dict[str, Any]:
         return {"chain": self.chain, "outputs": dict(self.outputs), "units": dict(self.units),
@@ -209,7 +213,9 @@ def build_chain(table: dict[str, Any], *, file: str, lines: dict[str, int]) -> C
     return ChainModel(outputs=outputs, units=units, description=description, chain=name,
                       inputs=tuple(final_inputs),
                       input_units={in_map.get(v, v): INPUT_UNITS[v] for v in used},
-                      constants=constants)
+                      constants=constants,
+                      renamed={**dict(zip(default_outputs, final_outputs)),
+                               **{v: in_map.get(v, v) for v in used}})
 
 
 def _names(text: str) -> set[str]:

@@ -387,7 +387,7 @@ def evaluate(spec: Spec, *, trials: int | None | str = "spec", seed: int | None 
         "significant_digits": spec.significant_digits,
         "t_for_finite_dof": spec.t_for_finite_dof,
         "sampling": sampling,
-        "chain": spec.chain,
+        "chain": spec.chain, "outputs": spec.output_info, "input_symbols": spec.input_info,
         "model": dict(spec.outputs),
         "constants": dict(model.constants),
         "report": dict(spec.report),

@@ -28,13 +28,14 @@ from pathlib import Path
 from typing import Any
 
 from .errors import SpecError, did_you_mean
+from .measurands import CHAIN_INPUTS, chain_defaults, output_descriptions
 from .numbers import NumberError, checked, shown
 from .schema import SchemaViolation, load_schema, validate
 
 __all__ = ["Spec", "load_spec", "parse_spec", "SECTIONS", "REPORT_KEYS", "MAX_TRIALS"]
 
-SECTIONS = ("budget", "report", "model", "units", "constants", "monte_carlo", "inputs",
-            "correlations")
+SECTIONS = ("budget", "report", "model", "outputs", "units", "constants", "monte_carlo",
+            "inputs", "correlations")
 BUDGET_KEYS = ("title", "description", "coverage_probability", "propagation_order",
                "dof_rounding", "coverage_factor")
 REPORT_KEYS = ("laboratory", "laboratory_address", "accreditation", "report_number",
@@ -103,6 +104,10 @@ class Spec:
     #: constant -> its unit as stated in ``[constants]`` ({value = 600, unit = "MHz"})
     constant_units: dict[str, str] = field(default_factory=dict)
     lines: dict[tuple[str, ...], dict[str, int]] = field(default_factory=dict, repr=False)
+    #: output -> {"symbol", "name", "definition"} (``[outputs.NAME]``; budget.measurands)
+    output_info: dict[str, dict[str, str]] = field(default_factory=dict)
+    #: input -> (symbol, meaning, unit) a chain gives its inputs
+    input_info: dict[str, tuple[str, str, str]] = field(default_factory=dict)
 
     def line_of(self, section: tuple[str, ...], key: str = "") -> int | None:
         """Line number of ``key`` in table ``section`` ("" for the header), when known."""
@@ -217,6 +222,8 @@ def parse_spec(text: str, *, file: str = "<string>", folder: Path | None = None,
     chain = None
     units_from_chain: dict[str, str] = {}
     chain_constants: dict[str, float] = {}
+    described: dict[str, dict[str, str]] = {}
+    input_info: dict[str, tuple[str, str, str]] = {}
     if "chain" in model:
         chain = model["chain"]
         from .chains import build_chain  # a chain spec needs the chain models only
@@ -224,6 +231,9 @@ def parse_spec(text: str, *, file: str = "<string>", folder: Path | None = None,
         outputs = dict(built.outputs)
         units_from_chain = dict(built.units)
         chain_constants = {k: float(v) for k, v in built.constants.items()}
+        described = chain_defaults(chain, built.renamed)
+        input_info = {new: (*CHAIN_INPUTS[old], built.input_units.get(new, ""))
+                      for old, new in built.renamed.items() if old in CHAIN_INPUTS}
     else:
         outputs = {}
         for name, expr in model.items():
@@ -233,6 +243,8 @@ def parse_spec(text: str, *, file: str = "<string>", folder: Path | None = None,
                                 "I = \"g * dV / R\"; got " + repr(expr))
             outputs[name] = expr
 
+    output_info = output_descriptions(data.get("outputs", {}), outputs, described, file=file,
+                                      lines=lines)
     units = dict(units_from_chain)
     for k in data.get("units", {}):
         if k not in outputs:
@@ -321,7 +333,8 @@ def parse_spec(text: str, *, file: str = "<string>", folder: Path | None = None,
                 seed=seed, interval=interval, significant_digits=ndig, max_trials=max_trials,
                 monte_carlo_enabled=enabled, report=report, t_for_finite_dof=t_dof, chain=chain,
                 sampling=sampling, working_units=units_from_chain,
-                constant_units=constant_units, lines=lines)
+                constant_units=constant_units, lines=lines, output_info=output_info,
+                input_info=input_info)
 
 
 

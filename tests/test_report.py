@@ -350,8 +350,9 @@ def test_module_figure_drawn(module_budget):
     assert hashlib.sha256(history.read_bytes()).hexdigest() in text
     ids = [a.get("id") for t, a in parsed.tags if t == "figure"]
     assert "figure-R-drift" in ids
-    # 1 Monte Carlo histogram + 1 module figure (the shares are drawn in the budget rows)
-    imgs = [a["src"] for t, a in parsed.tags if t == "img"]
+    # 1 Monte Carlo histogram + 1 module figure (the shares are drawn in the budget rows);
+    # the typeset model equations (class "eq") are images too
+    imgs = [a["src"] for t, a in parsed.tags if t == "img" and a.get("class") != "eq"]
     assert len(imgs) == 2
     import base64
     svg = base64.b64decode(imgs[1].split(",", 1)[1]).decode("utf-8")

@@ -11,12 +11,15 @@ from __future__ import annotations
 import math
 from typing import Any
 
+from markupsafe import Markup, escape
+
 from ..budget_rows import distribution_name, grouped_rows
 from ..errors import DataError
 from ..fmt import fmt_dof, fmt_num, fmt_rows, fmt_share, fmt_u
 from ..nominal import nominal_point, nominal_text
 from ..result import Budget, Measurand
 from . import figures as figs
+from .model_view import model_view, symbol_html
 from .statement import (
     coverage_statement,
     fixed_k_probability,
@@ -290,6 +293,18 @@ def _cautions(b: Budget) -> list[str]:
     return out
 
 
+def _label_measurands(b: Budget, blocks: list[dict[str, Any]], view: dict[str, Any]) -> None:
+    """Each measurand block's ``label`` (its name in words and its symbol, as HTML) and
+    ``equation`` (the typeset model line)."""
+    outputs = b.run.get("outputs") or {}
+    eqs = {e["output"]: e for e in view["equations"]}
+    for blk in blocks:
+        d = outputs.get(blk["name"]) if isinstance(outputs.get(blk["name"]), dict) else {}
+        sym = symbol_html(str(d.get("symbol") or blk["name"]))
+        blk["label"] = (escape(d["name"]) + Markup(" ") + sym) if d.get("name") else sym
+        blk["equation"] = eqs.get(blk["name"], {"image": "", "text": ""})
+
+
 def _header(rep: dict[str, str], keys: tuple[str, ...]) -> list[tuple[str, str]]:
     return [(FIELD_LABELS[k], rep.get(k, "").strip()) for k in keys]
 
@@ -312,8 +327,13 @@ def build_context(b: Budget, *, certificate: bool = False, draft: bool = True,
     rep = dict.fromkeys(FIELD_LABELS, "")
     rep.update({str(k): _s(v) for k, v in (run.get("report") or {}).items()})
     measurands = [_measurand_block(b, m, draw=figures) for m in b.measurands]
+    view = model_view(b)
+    _label_measurands(b, measurands, view)
+    said = {k: v.get("name") for k, v in (run.get("outputs") or {}).items()
+            if isinstance(v, dict)}
     measurand_text = rep.get("measurand", "").strip() or ", ".join(
-        f"{m.name}{' (' + m.unit + ')' if m.unit not in ('', '1') else ''}" for m in b.measurands)
+        f"{said.get(m.name) or m.name}{' (' + m.unit + ')' if m.unit not in ('', '1') else ''}"
+        for m in b.measurands)
     item = ", ".join(x for x in (rep.get("item", "").strip(),
                                  rep.get("manufacturer", "").strip(),
                                  ("serial " + rep["item_serial"].strip())
@@ -354,6 +374,7 @@ def build_context(b: Budget, *, certificate: bool = False, draft: bool = True,
         "measurand_correlations": corr, "modules": _module_blocks(b, draw=figures),
         "cautions": _cautions(b), "files": files, "settings": settings,
         "model": [(str(k), str(v)) for k, v in (run.get("model") or {}).items()],
+        "model_view": view,
         "constants": [(str(k), sci(fmt_num(float(v), 10)))
                       for k, v in (run.get("constants") or {}).items()],
         "software": _s(run.get("software")), "spec_sha256": _s(run.get("spec_sha256")),
