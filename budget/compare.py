@@ -1,7 +1,7 @@
 """Comparison of runs: weighted mean, Birge ratio, χ² and normalised errors E_n.
 
-All numbers are in the compared measurand's unit (a current in A, or a relative deviation from
-n·e·f — any output of the model works the same way).
+All numbers are in the first record's unit of the measurand (others converted; another
+dimension refused): a current in A, a relative deviation from n·e·f — any output works.
 
 Normalised error (ISO 13528, ISO/IEC 17043)
 -------------------------------------------
@@ -66,7 +66,7 @@ from .compare_basis import (
 from .errors import DataError, UsageError, did_you_mean
 from .explain import correlation_matrix
 from .numbers import overflow_checked
-from .result import Budget, Measurand, Term
+from .result import Budget, Measurand, Term, in_unit
 
 __all__ = ["ReferenceValue", "RunEntry", "SharedTerm", "MeanResult", "NormalisedError",
            "Comparison", "TermBasis", "choose_measurand", "en_basis_text", "used_k_text", "term_key", "compare_runs", "K_EN",
@@ -333,17 +333,16 @@ def compare_runs(records: Sequence[Budget], *, labels: Sequence[str] | None = No
     name = choose_measurand(all_recs, measurand, files)
     ms = [r.measurand(name) for r in all_recs]
     files = list(files) if files is not None else [None] * len(all_recs)
-    unit = ms[0].unit
-    for m, f in zip(ms, files):
-        if m.unit != unit:
-            raise DataError(f"'{name}' is in {m.unit!r} here but in {unit!r} in the first "
-                            "record; compare results in one unit", file=f, field="unit")
+    unit = ms[0].unit   # other units of the same dimension are converted to the first's
+    unit_notes = [f"results stated in other units were converted to {unit}"] * any(
+        m.unit != unit for m in ms)
+    ms = [in_unit(m, unit, file=f) for m, f in zip(ms, files)]
     for m, f in zip(ms[:n], files):
         if m.standard_uncertainty <= 0:
             raise DataError(f"'{name}' has u = 0 and cannot be weighted or compared", file=f,
                             field="standard_uncertainty")
     all_labels = labels + ([reference_label] if isinstance(reference, Budget) else [])
-    notes: list[str] = []
+    notes: list[str] = unit_notes
 
     # ---- which terms are the same error, and the covariance matrix of all compared results
     contrib = [{t.name: t.sensitivity * t.standard_uncertainty for t in m.terms} for m in ms]

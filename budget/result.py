@@ -4,22 +4,28 @@
 The JSON record (:meth:`Budget.to_dict`) has the top-level keys ``schema``, ``measurands``,
 ``correlation``, ``monte_carlo``, ``inputs`` and ``warnings`` (the stable contract) plus ``run`` (spec digest,
 seed, settings, module diagnostics). Numbers are plain floats at full precision; an infinite
-number of degrees of freedom is written as ``null``. Nothing time-dependent is stored, so the
+number of degrees of freedom is written as ``null``. A measurand's numbers (and its Monte Carlo
+result's) are in coherent SI; when it is shown in another unit (``[units] I = "pA"``) the entry
+also has ``display_unit``, and reading the record shows the numbers in that unit again. Records
+written before display units were stored this way (no ``display_unit``) hold the numbers in the
+unit their ``unit`` names and are read as they are. Nothing time-dependent is stored, so the
 same spec, inputs and seed give a byte-identical record.
 """
 
 from __future__ import annotations
 
+import copy
 import html
 import json
 import math
-from dataclasses import dataclass, field
+from dataclasses import dataclass, field, replace
 from typing import Any
 
 from .quantity import Quantity
 from .warnings import Warning, warnings_from_list
 
-__all__ = ["SCHEMA", "Term", "Measurand", "MonteCarlo", "Budget", "dof_out", "dof_in"]
+__all__ = ["SCHEMA", "Term", "Measurand", "MonteCarlo", "Budget", "dof_out", "dof_in",
+           "display_scale", "in_unit"]
 
 SCHEMA = "qcs-budget/record-1"
 
@@ -32,6 +38,31 @@ def dof_out(nu: float) -> float | None:
 def dof_in(nu: float | None) -> float:
     """Degrees of freedom read from JSON: ``None`` stands for infinity (inverse of dof_out)."""
     return math.inf if nu is None else float(nu)
+
+
+def display_scale(unit: str) -> tuple[float, str] | None:
+    """(factor to coherent SI, SI symbol) of a display unit that is not coherent SI (``"pA"``
+    gives (1e-12, "A")); None for a coherent SI unit or a label that is no unit."""
+    from .units import UnitError, parse_unit
+    try:
+        u = parse_unit(unit)
+    except UnitError:
+        return None
+    if u.scale == 1.0 or u.is_offset:
+        return None
+    return u.scale, u.si
+
+
+def _display_from_record(d: dict[str, Any], what: str) -> float:
+    """The factor of a record entry's ``display_unit``, checked against its SI ``unit``."""
+    from .errors import DataError
+    shown = d.get("display_unit")
+    got = display_scale(shown) if isinstance(shown, str) else None
+    if got is None or got[1] != (d.get("unit", got[1]) or "1"):
+        raise DataError(f"display_unit {shown!r} of {what} {d.get('name', d.get('measurand'))!r}"
+                        f" is not a non-SI unit of its unit {d.get('unit')!r}",
+                        field="display_unit")
+    return got[0]
 
 
 @dataclass(frozen=True)
@@ -85,6 +116,14 @@ class Measurand:
     #: P(|t_ν_eff| ≤ k), the coverage probability k gives at ν_eff (JCGM 100 G.3); it states
     #: what a fixed k means (k = 2 at ν_eff = 3: 0.86). None in records written before it.
     coverage_probability_of_k: float | None = None
+    #: the record entry this measurand was read from when it states a display unit (SI numbers
+    #: written back verbatim, so a record read and written again is byte-identical)
+    si_form: tuple | None = field(default=None, compare=False, repr=False)
+
+    def _key(self) -> tuple:
+        return (self.unit, self.value, self.standard_uncertainty, self.expanded_uncertainty,
+                self.second_order_variance,
+                tuple((t.name, t.sensitivity, t.contribution) for t in self.terms))
 
     def term(self, name: str) -> Term:
         for t in self.terms:
@@ -93,28 +132,84 @@ class Measurand:
         raise KeyError(name)
 
     def to_dict(self) -> dict[str, Any]:
-        return {"name": self.name, "unit": self.unit, "value": self.value,
-                "standard_uncertainty": self.standard_uncertainty,
-                "effective_dof": dof_out(self.effective_dof),
-                "coverage_factor": self.coverage_factor,
-                "coverage_probability": self.coverage_probability,
-                "expanded_uncertainty": self.expanded_uncertainty,
-                "terms": [t.to_dict() for t in self.terms], "expression": self.expression,
-                "second_order_variance": self.second_order_variance,
-                "coverage_probability_of_k": self.coverage_probability_of_k}
+        """The record entry: numbers in coherent SI; a non-SI display unit (``[units] I =
+        "pA"``) is kept as ``display_unit`` beside the SI ``unit``."""
+        if self.si_form is not None and self.si_form[0] == self._key():
+            return copy.deepcopy(self.si_form[1])
+        conv = display_scale(self.unit)
+        f, unit = conv if conv is not None else (1.0, self.unit)
+        out = {"name": self.name, "unit": unit}
+        if conv is not None:
+            out["display_unit"] = self.unit
+        terms = []
+        for t in self.terms:
+            td = t.to_dict()
+            td["sensitivity"], td["contribution"] = t.sensitivity * f, t.contribution * f
+            terms.append(td)
+        out.update({"value": self.value * f,
+                    "standard_uncertainty": self.standard_uncertainty * f,
+                    "effective_dof": dof_out(self.effective_dof),
+                    "coverage_factor": self.coverage_factor,
+                    "coverage_probability": self.coverage_probability,
+                    "expanded_uncertainty": self.expanded_uncertainty * f,
+                    "terms": terms, "expression": self.expression,
+                    "second_order_variance": self.second_order_variance * f * f,
+                    "coverage_probability_of_k": self.coverage_probability_of_k})
+        return out
 
     @classmethod
     def from_dict(cls, d: dict[str, Any]) -> Measurand:
-        return cls(name=d["name"], unit=d.get("unit", ""), value=d["value"],
-                   standard_uncertainty=d["standard_uncertainty"],
-                   effective_dof=dof_in(d.get("effective_dof")),
-                   coverage_factor=d["coverage_factor"],
-                   coverage_probability=d["coverage_probability"],
-                   expanded_uncertainty=d["expanded_uncertainty"],
-                   terms=tuple(Term.from_dict(t) for t in d.get("terms", [])),
-                   expression=d.get("expression", ""),
-                   second_order_variance=d.get("second_order_variance", 0.0),
-                   coverage_probability_of_k=d.get("coverage_probability_of_k"))
+        """Read a record entry; with ``display_unit`` the numbers (SI) are shown in it."""
+        f = _display_from_record(d, "measurand") if "display_unit" in d else 1.0
+        terms = tuple(Term.from_dict(t) for t in d.get("terms", []))
+        if f != 1.0:
+            terms = tuple(replace(t, sensitivity=t.sensitivity / f,
+                                  contribution=t.contribution / f) for t in terms)
+        m = cls(name=d["name"], unit=d.get("display_unit", d.get("unit", "")),
+                value=d["value"] / f, standard_uncertainty=d["standard_uncertainty"] / f,
+                effective_dof=dof_in(d.get("effective_dof")),
+                coverage_factor=d["coverage_factor"],
+                coverage_probability=d["coverage_probability"],
+                expanded_uncertainty=d["expanded_uncertainty"] / f,
+                terms=terms, expression=d.get("expression", ""),
+                second_order_variance=d.get("second_order_variance", 0.0) / (f * f),
+                coverage_probability_of_k=d.get("coverage_probability_of_k"))
+        if f == 1.0:
+            return m
+        return replace(m, si_form=(m._key(), copy.deepcopy(d)))
+
+
+def in_unit(m: Measurand, unit: str, *, file: str | None = None) -> Measurand:
+    """``m`` shown in ``unit``: every number (value, u, U, c_i, contributions, second-order
+    variance) scaled by one factor. ``unit`` must have m's dimension.
+
+    Raises
+    ------
+    DataError
+        Naming ``file``, when either unit is no unit, or the dimensions differ (a current
+        against a voltage).
+    """
+    from .errors import DataError
+    from .units import UnitError, dim_text, display_factor, parse_unit
+    if unit == m.unit:
+        return m
+    try:
+        have, want = parse_unit(m.unit or "1"), parse_unit(unit or "1")
+    except UnitError as exc:
+        raise DataError(f"'{m.name}' in {m.unit!r} cannot be shown in {unit!r}: {exc}",
+                        file=file, field="unit") from None
+    if have.dims != want.dims or have.is_offset or want.is_offset:
+        raise DataError(f"'{m.name}' is {dim_text(have.dims)} here but {dim_text(want.dims)} "
+                        "in the first record: results of different dimensions are not "
+                        "comparable", file=file, field="unit")
+    f = display_factor(have, want)
+    return replace(m, unit=unit, value=m.value * f,
+                   standard_uncertainty=m.standard_uncertainty * f,
+                   expanded_uncertainty=m.expanded_uncertainty * f,
+                   second_order_variance=m.second_order_variance * f * f,
+                   terms=tuple(replace(t, sensitivity=t.sensitivity * f,
+                                       contribution=t.contribution * f) for t in m.terms),
+                   si_form=None)
 
 
 @dataclass(frozen=True)
@@ -140,34 +235,58 @@ class MonteCarlo:
     stabilised: bool = True
     #: fraction of the trials inside the linear interval y ± U (None in older records)
     linear_interval_probability: float | None = None
+    #: as for Measurand: the record entry read, when it states a display unit
+    si_form: tuple | None = field(default=None, compare=False, repr=False)
 
-    def to_dict(self) -> dict[str, Any]:
-        return {"measurand": self.measurand, "trials": self.trials, "value": self.value,
-                "standard_uncertainty": self.standard_uncertainty,
-                "interval_low": self.interval_low, "interval_high": self.interval_high,
-                "interval_kind": self.interval_kind, "validated": self.validated,
-                "tolerance": self.tolerance, "d_low": self.d_low, "d_high": self.d_high,
-                "symmetric_interval": list(self.symmetric_interval),
-                "shortest_interval": list(self.shortest_interval),
-                "histogram": {"counts": list(self.histogram_counts),
-                              "edges": list(self.histogram_edges)},
-                "adaptive": self.adaptive, "stabilised": self.stabilised,
-                "linear_interval_probability": self.linear_interval_probability}
+    def _key(self) -> tuple:
+        return (self.value, self.standard_uncertainty, self.interval_low, self.interval_high,
+                self.tolerance, self.d_low, self.d_high, self.symmetric_interval,
+                self.shortest_interval, self.histogram_edges)
+
+    def to_dict(self, unit: str = "") -> dict[str, Any]:
+        """The record entry, in coherent SI; ``unit`` is the measurand's display unit (a
+        non-SI one is kept as ``unit`` and ``display_unit`` as for the measurand)."""
+        if self.si_form is not None and self.si_form[0] == self._key():
+            return copy.deepcopy(self.si_form[1])
+        conv = display_scale(unit)
+        f = 1.0 if conv is None else conv[0]
+        out: dict[str, Any] = {"measurand": self.measurand}
+        if conv is not None:
+            out.update({"unit": conv[1], "display_unit": unit})
+        out.update({
+            "trials": self.trials, "value": self.value * f,
+            "standard_uncertainty": self.standard_uncertainty * f,
+            "interval_low": self.interval_low * f, "interval_high": self.interval_high * f,
+            "interval_kind": self.interval_kind, "validated": self.validated,
+            "tolerance": self.tolerance * f, "d_low": self.d_low * f, "d_high": self.d_high * f,
+            "symmetric_interval": [x * f for x in self.symmetric_interval],
+            "shortest_interval": [x * f for x in self.shortest_interval],
+            "histogram": {"counts": list(self.histogram_counts),
+                          "edges": [x * f for x in self.histogram_edges]},
+            "adaptive": self.adaptive, "stabilised": self.stabilised,
+            "linear_interval_probability": self.linear_interval_probability})
+        return out
 
     @classmethod
     def from_dict(cls, d: dict[str, Any]) -> MonteCarlo:
         hist = d.get("histogram", {})
-        return cls(measurand=d["measurand"], trials=d["trials"], value=d["value"],
-                   standard_uncertainty=d["standard_uncertainty"],
-                   interval_low=d["interval_low"], interval_high=d["interval_high"],
-                   interval_kind=d["interval_kind"], validated=d["validated"],
-                   tolerance=d["tolerance"], d_low=d["d_low"], d_high=d["d_high"],
-                   symmetric_interval=tuple(d.get("symmetric_interval", (math.nan,) * 2)),
-                   shortest_interval=tuple(d.get("shortest_interval", (math.nan,) * 2)),
-                   histogram_counts=tuple(hist.get("counts", ())),
-                   histogram_edges=tuple(hist.get("edges", ())),
-                   adaptive=d.get("adaptive", False), stabilised=d.get("stabilised", True),
-                   linear_interval_probability=d.get("linear_interval_probability"))
+        f = _display_from_record(d, "Monte Carlo result") if "display_unit" in d else 1.0
+        mc = cls(measurand=d["measurand"], trials=d["trials"], value=d["value"] / f,
+                 standard_uncertainty=d["standard_uncertainty"] / f,
+                 interval_low=d["interval_low"] / f, interval_high=d["interval_high"] / f,
+                 interval_kind=d["interval_kind"], validated=d["validated"],
+                 tolerance=d["tolerance"] / f, d_low=d["d_low"] / f, d_high=d["d_high"] / f,
+                 symmetric_interval=tuple(x / f for x in d.get("symmetric_interval",
+                                                               (math.nan,) * 2)),
+                 shortest_interval=tuple(x / f for x in d.get("shortest_interval",
+                                                             (math.nan,) * 2)),
+                 histogram_counts=tuple(hist.get("counts", ())),
+                 histogram_edges=tuple(x / f for x in hist.get("edges", ())),
+                 adaptive=d.get("adaptive", False), stabilised=d.get("stabilised", True),
+                 linear_interval_probability=d.get("linear_interval_probability"))
+        if f == 1.0:
+            return mc
+        return replace(mc, si_form=(mc._key(), copy.deepcopy(d)))
 
 
 @dataclass(frozen=True)
@@ -222,6 +341,12 @@ class Budget:
                 return q
         raise KeyError(name)
 
+    def _unit_of(self, name: str) -> str:
+        for m in self.measurands:
+            if m.name == name:
+                return m.unit
+        return ""
+
     # ------------------------------------------------------------------ records
     def to_dict(self) -> dict[str, Any]:
         """The JSON record (see module docstring)."""
@@ -230,7 +355,7 @@ class Budget:
             "measurands": [m.to_dict() for m in self.measurands],
             "correlation": {"measurands": list(self.correlation_names),
                             "matrix": [list(r) for r in self.correlation_matrix]},
-            "monte_carlo": [m.to_dict() for m in self.monte_carlo],
+            "monte_carlo": [m.to_dict(self._unit_of(m.measurand)) for m in self.monte_carlo],
             "inputs": [q.to_dict() for q in self.inputs],
             "warnings": [w.to_dict() for w in self.warnings],
             "run": {"title": self.title, **self.run},

@@ -101,3 +101,15 @@ def test_each_spelling_shows_its_own_units(three):
     assert 96.0 < b.measurand("I").value < 96.2
     notes = " ".join(n for q in b.inputs for n in q.provenance.notes)
     assert "stated in GΩ" in notes and "readings in µV" in notes
+
+
+def test_three_spellings_give_the_same_record_numbers(three):
+    # the JSON record stores coherent SI plus display_unit: the records agree number by number
+    recs = [b.to_dict()["measurands"] for b in three]
+    for ma, mb, mc in zip(*recs):
+        assert ma["unit"] == mb["unit"] == mc["unit"]
+        assert mb.get("display_unit") == ("pA" if ma["name"] == "I" else "ppm")
+        for m in (mb, mc):
+            absolute = 1e-12 if ma["unit"] == "1" else 0.0   # 1e-12 of I (dimensionless)
+            assert m["value"] == near(ma["value"], rel=1e-12, abs=absolute)
+            assert m["expanded_uncertainty"] == near(ma["expanded_uncertainty"], rel=1e-10)
