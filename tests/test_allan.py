@@ -128,6 +128,19 @@ def test_edf_formulas_match_allantools():
                     allantools.edf_simple(n + 1, m, -1), rel=1e-12)
 
 
+def test_edf_of_short_records_and_the_floor_of_one():
+    # few points: SP 1065 Table 5 (allantools.edf_simple) gives edf between 1 and 2, which is
+    # kept as it is; below 1 the project clips to 1 (project convention: a chi-square with
+    # fewer than one degree of freedom is not used for an interval)
+    n = 8                                                  # N = 9 phase points
+    assert allan.edf_flicker_fm(n, 4) == near(allantools.edf_simple(n + 1, 4, -1), rel=1e-12)
+    assert allan.edf_white_fm(n, 4) == near(allantools.edf_simple(n + 1, 4, 0), rel=1e-12)
+    assert 1.0 < float(allan.edf_flicker_fm(n, 4)) < 2.0    # 5·81/(16·21) = 1.205
+    assert allantools.edf_simple(n + 1, 16, -1) < 1.0        # 5·81/(64·57) = 0.111
+    assert float(allan.edf_flicker_fm(n, 16)) == 1.0
+    assert float(allan.edf_white_fm(n, 16)) == 1.0
+
+
 def test_flicker_edf_at_m1_is_of_order_n():
     # SP 1065 Table 5 (memory): flicker FM, m = 1: 2(N − 2)²/(2.3N − 4.9) ≈ 0.87·N. allantools
     # 2024.6 omits the square (its value is below 1), so it cannot be the oracle here.

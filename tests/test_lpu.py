@@ -509,3 +509,21 @@ def test_derivative_text_recorded_for_the_auditor(tmp_path):
     for t in m.terms:
         # the written-out ∂f/∂x parses and evaluates to the sensitivity coefficient
         assert float(ex.compile_node(ex.parse(t.derivative))({})) == near(t.sensitivity)
+
+
+def test_output_covariance_of_two_outputs():
+    # JCGM 102 §6.2.1.3 (memory) / JCGM 100 eq. 13 applied to two outputs: U_y = C U_x Cᵀ.
+    # Y1 = X1 + X2, Y2 = X1 − X2 with u = 1 and 2, uncorrelated: var = 1 + 4 = 5 each,
+    # cov(Y1, Y2) = 1 − 4 = −3 (by hand). A model without outputs has an empty 0 × 0 matrix.
+    from budget.distributions import Distribution
+    from budget.propagate import propagate_linear
+    from budget.quantity import Quantity
+    qs = [Quantity(name=n, value=0.0, standard_uncertainty=u, distribution=Distribution.normal(0, u))
+          for n, u in (("X1", 1.0), ("X2", 2.0))]
+    model = build_model({"Y1": "X1 + X2", "Y2": "X1 - X2"}, quantities={"X1", "X2"},
+                        constants={})
+    _, cov = propagate_linear(model, qs, np.eye(2))
+    assert cov == near(np.array([[5.0, -3.0], [-3.0, 5.0]]), rel=1e-15)
+    _, empty = propagate_linear(build_model({}, quantities={"X1", "X2"}, constants={}), qs,
+                                np.eye(2))
+    assert empty.shape == (0, 0)

@@ -22,6 +22,7 @@ from budget.distributions import Distribution
 from budget.model import build_model
 from budget.propagate import mcm
 from budget.propagate.mcm import McmSettings, coverage_intervals, monte_carlo
+from budget.propagate.validate import compare_lpu_mcm, numerical_tolerance
 from budget.quantity import Quantity
 
 
@@ -162,3 +163,22 @@ def test_constant_output_histogram_brackets_the_value():
     assert r.value == 5.0
     assert r.histogram_edges[0] < 5.0 < r.histogram_edges[-1]
     assert (r.histogram_edges[0], r.histogram_edges[-1]) == (4.5, 5.5)
+
+
+# ------------------------------------------------------------------ JCGM 101 §7.9.2 and §8.2
+@pytest.mark.parametrize("u", [0.0, -1.0, math.inf, math.nan])
+def test_no_tolerance_without_a_positive_finite_u(u):
+    # δ = ½·10^l with u = c·10^l (JCGM 101 §7.9.2) exists only for a positive finite u;
+    # project convention: 0 otherwise, so that nothing is validated against it
+    assert numerical_tolerance(u, 2) == 0.0
+
+
+def test_validation_holds_at_d_equal_to_delta():
+    # JCGM 101 §8.2 (memory): validated when d_low and d_high are both no larger than δ.
+    # u = 47 (two digits, l = 0): δ = ½ exactly in binary; y = 0, U = 2, MC interval
+    # [−2.5, 2.5]: d_low = |0 − 2 + 2.5| = 0.5 = δ, d_high = |0 + 2 − 2.5| = 0.5 = δ
+    v = compare_lpu_mcm(0.0, 2.0, 47.0, -2.5, 2.5, ndig=2)
+    assert (v.tolerance, v.d_low, v.d_high, v.validated) == (0.5, 0.5, 0.5, True)
+    assert compare_lpu_mcm(0.0, 2.0, 47.0, -2.5, 2.25, ndig=2).validated is True
+    assert compare_lpu_mcm(0.0, 2.0, 47.0, -2.5, 2.75, ndig=2).validated is False  # 0.75
+    assert compare_lpu_mcm(0.0, 2.0, 47.0, -2.75, 2.5, ndig=2).validated is False
