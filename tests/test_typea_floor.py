@@ -15,8 +15,9 @@ Checks, each against a source outside the code under test:
 * Welch–Satterthwaite (JCGM 100 G.4.1) for the ν of a white part plus a floor;
 * the effective number of Zhang (Metrologia 43, S276, 2006): n/[1 + 2Σ(1 − k/n)r_k], r_k the
   biased sample autocorrelation, computed here with numpy.correlate;
-* the measurement-time plan: u²(n') = a·Var₁·n/n' + b (the Allan floor model) or u² ∝ 1/n
-  (white), solved for n' by hand.
+* the measurement-time plan: u²(n') = a·Var₁·n/n' + b (the Allan floor model, weighted by w
+  against the white part as typea.py step 5 states) or u² ∝ 1/n (white), solved for n' by
+  hand.
 
 Where the rule is one the project chose (the longest octave m ≤ n/4, the autocorrelation
 correction from 4 differences on), it is marked *project convention*.
@@ -207,11 +208,17 @@ def test_autocorrelation_correction_from_four_differences_on():
 def test_planning_allan_floor_by_hand():
     # u²(n') = a·Var₁(d̄)·n/n' + b; with a·Var₁·n = 2·0.03125·64 = 4 (reading²), b = 0.01 and
     # the target u_t = 0.2·|mean| = 0.2: n' = 4/(0.04 − 0.01) = 133.33 cycles; 20 s a cycle.
-    res = SimpleNamespace(mean=1.0, method="allan-floor", n=64, u=0.3,
-                          fit=SimpleNamespace(a=2.0, b=0.01))
+    # weight w = 1 (typea step 5: the full widening), so the white-noise u_w does not enter
+    res = SimpleNamespace(mean=1.0, method="allan-floor", n=64, u=0.3, weight=1.0,
+                          u_white=0.25, fit=SimpleNamespace(a=2.0, b=0.01))
     model = SimpleNamespace(var_mean=0.03125)
     plan = typea.planning(res, model, 0.2, cycle_s=20.0, used_s=1280.0)
     assert plan["cycles_needed"] == near(4.0 / 0.03, rel=1e-12)
+    # w = 1/2: u²(n') = [½u_w² + ½a·Var₁]·n/n' + ½b, with u_w²·n = 0.0625·64 = 4 as well:
+    # n' = 4/(0.04 − 0.005) = 114.29 cycles
+    half = typea.planning(SimpleNamespace(**{**vars(res), "weight": 0.5}), model, 0.2,
+                          cycle_s=20.0, used_s=1280.0)
+    assert half["cycles_needed"] == near(4.0 / 0.035, rel=1e-12)
     assert plan["time_needed_s"] == near(20.0 * 4.0 / 0.03, rel=1e-12)
     assert plan["time_needed_h"] == near(20.0 * 4.0 / 0.03 / 3600.0, rel=1e-12)
     assert plan["reached"] is False                 # u = 0.3 > 0.2

@@ -69,7 +69,9 @@ noise and a regular record); the white-noise standard error is the exact one for
 differences actually used (``budget.stats.onoff``), about 15 % larger than the naive s/√n.
 Whether the record is white is tested on the Allan deviation of the differences; when it is
 not, the uncertainty is widened (effective number of cycles from the autocorrelation, or the
-Allan floor), and the diagnostics say which. Limits (see :mod:`budget.stats.typea`): a weak
+Allan floor, the diagnostics say which) in proportion to the evidence, w = min(1,
+log₁₀(level/p)) of the full widening (:mod:`budget.stats.typea`, step 5; diagnostics
+``widening``), and the warning ``cycles.correlated_noise`` gives the factor. Limits (see :mod:`budget.stats.typea`): a weak
 1/f part that matters only at the full record length is often passed as white, and for 1/f
 noise the Allan floor is a convention — with noise extending far below 1/T it covers somewhat
 less than the nominal probability (about 92 % instead of 95 % in the tests' flicker case).
@@ -397,6 +399,7 @@ def _diagnostics(res: typea.TypeA, model: onoff.WhiteModel, o: dict[str, Any],
         "effective_number": res.acorr.to_dict() if res.acorr else None,
         "u_autocorrelation": _num(res.u_acorr),
         "white_noise": res.verdict.to_dict(),
+        "widening": res.widening_to_dict(),
         "allan": {"kind": "overlapping", "m": [int(v) for v in res.curve.m],
                   "tau_s": [_num(v * cycle_s) for v in res.curve.m],
                   "adev": [float(v) for v in res.curve.deviation],
@@ -422,8 +425,14 @@ def _quantity(ctx: InputContext, res: typea.TypeA, o: dict[str, Any], records: l
     else:
         dof_reason = (f"ν = {res.dof:.4g}: Welch–Satterthwaite from the white part and the "
                       "flicker-noise edf of the Allan variance at the longest averaging used")
+    if res.widened and res.weight < 1.0:
+        dof_reason += (f", weighted by the evidence (w = {res.weight:.3g}) against the white "
+                       "part (Welch–Satterthwaite)")
     notes = [w.message for w in settle_ws]
     ws = list(settle_ws)
+    if res.widened:
+        ws.append(warn("cycles.correlated_noise", _widening_text(res, o["unit"])))
+        notes.append(ws[-1].message)
     if o["rejection"] != "none":
         notes.append(f"rejection rule '{o['rejection']}' at {o['rejection_limit']:g} robust "
                      f"standard deviations: {len(rejected)} cycle(s) rejected"
@@ -453,6 +462,16 @@ def _quantity(ctx: InputContext, res: typea.TypeA, o: dict[str, Any], records: l
                     description=o["description"] or "mean pump-on minus pump-off difference of "
                                                     "the reading, from the on/off record",
                     provenance=prov)
+
+
+def _widening_text(res: typea.TypeA, unit: str) -> str:
+    v = res.verdict
+    return (f"the record is not white noise (Allan ratio R = {v.statistic:.3g} at m = {v.m} "
+            f"cycles, p = {v.p_value:.3g} < {v.level:g}): u widened ×{res.u / res.u_white:.3g}, "
+            f"from {res.u_white:.3g} to {res.u:.3g} {unit} (ν = {res.dof:.3g}), by weight "
+            f"w = {res.weight:.3g} of the full {res.method} widening ×"
+            f"{res.u_full / res.u_white:.3g} (w = min(1, log10(level/p)): full at p ≤ level/10); "
+            "look for a drift or a wandering current (diagnostics: allan, widening)")
 
 
 def _unit(ctx: InputContext, text: str):

@@ -28,6 +28,17 @@ Procedure (all numbers in the reading's unit unless stated)
      cutoff). ν by Welch–Satterthwaite from ν_w for the white part and the SP 1065 flicker
      edf of the Allan variance at m_L for the floor, at most ν_w.
    The diagnostics say which one set the uncertainty.
+5. **Proportionate widening.** The widening of step 4 (u_full, ν_full) is applied in
+   proportion to the evidence against white noise, measured in decades of the test's p-value
+   below its level: w = min(1, log₁₀(level/p)) (0 when the record passes),
+   u² = (1 − w)·u_w² + w·u_full², ν by Welch–Satterthwaite from the two parts
+   ((1 − w)·u_w² with ν_w, w·u_full² with ν_full). A record just past the threshold keeps
+   about u_w; one whose p is ten times below the level (p ≤ level/10) gets the full widening
+   of step 4. Why: under white noise p is uniform, so a chance rejection has
+   E[w | p < level] = ∫₀¹ 10⁻ˣ dx = 0.9/ln 10 = 0.391 and the full widening falls on
+   level/10 = 0.5 % of white records instead of on every rejected one (5 %); a record dominated
+   by correlated noise has p many decades below the level (median about 10⁻⁸ in the tests'
+   flicker case) and keeps the full widening, hence its coverage.
 """
 
 from __future__ import annotations
@@ -43,9 +54,12 @@ from ..errors import ComputationError
 from . import allan, autocorr
 from .onoff import WhiteModel, avar_model
 
-__all__ = ["Verdict", "AllanFit", "TypeA", "analyse", "planning"]
+__all__ = ["Verdict", "AllanFit", "TypeA", "analyse", "planning", "evidence_weight",
+           "FULL_DECADES"]
 
 MIN_TESTABLE = 8
+#: decades of p below the level at which the full widening applies (step 5)
+FULL_DECADES = 1.0
 
 
 @dataclass(frozen=True)
@@ -107,6 +121,32 @@ class TypeA:
     method: str
     u: float
     dof: float
+    weight: float = 0.0
+    u_full: float | None = None
+    dof_full: float | None = None
+
+    @property
+    def widened(self) -> bool:
+        """True when u exceeds the white-noise standard error (step 5 applied a widening)."""
+        return self.method != "white"
+
+    def widening_to_dict(self) -> dict[str, Any]:
+        return {"rule": "w = min(1, log10(level/p)); u^2 = (1 - w)*u_white^2 + w*u_full^2",
+                "weight": self.weight, "u_full": self.u_full, "dof_full": self.dof_full,
+                "full_decades": FULL_DECADES, "factor": self.u / self.u_white}
+
+
+def evidence_weight(p: float | None, level: float) -> float:
+    """Weight w of the full widening, from the white-noise test's p-value (step 5).
+
+    0 when the record passes (p ≥ level, or no p), 1 when p ≤ level·10^(−FULL_DECADES),
+    log-linear between.
+    """
+    if p is None or not p < level:
+        return 0.0
+    if p <= 0.0:
+        return 1.0
+    return float(min(1.0, math.log10(level / p) / FULL_DECADES))
 
 
 def _allan_fit(curve: allan.AllanCurve, model: WhiteModel, m_top: int, n: int) -> AllanFit:
@@ -149,7 +189,8 @@ def _verdict(curve: allan.AllanCurve, model: WhiteModel, n: int, level: float) -
     text = (f"Allan ratio at m = {m_l} cycles: R = {ratio:.3g} (white noise expects 1), "
             f"p = {p:.3g} against F({edf_l:.3g}, {edf_1:.3g}); "
             + ("consistent with white noise" if white else
-               f"not white at level {level:g}: the uncertainty is widened"))
+               f"not white at level {level:g}: the uncertainty is widened in proportion to "
+               "the evidence"))
     return Verdict(True, white, ratio, m_l, edf_l, edf_1, p, level, text)
 
 
@@ -175,27 +216,37 @@ def analyse(d: np.ndarray, model: WhiteModel, level: float = 0.05) -> TypeA:
     u_acorr = s / math.sqrt(n) * math.sqrt(acorr.factor) if acorr else None
     fit = _allan_fit(curve, model, verdict.m, n) if verdict.testable else None
     method, u, dof = "white", u_white, model.dof
+    weight, u_full, dof_full = 0.0, None, None
     if verdict.testable and not verdict.white:
         options = [("white", u_white, model.dof),
                    ("allan-floor", fit.u, min(max(fit.dof, 1.0), model.dof))]
         if acorr is not None:
             options.append(("autocorrelation", u_acorr, min(max(acorr.n_eff - 1.0, 1.0),
                                                               model.dof)))
-        method, u, dof = max(options, key=lambda o: o[1])
+        full_method, u_full, dof_full = max(options, key=lambda o: o[1])
+        weight = evidence_weight(verdict.p_value, level)
+        if full_method != "white" and weight > 0.0:
+            part_w, part_f = (1.0 - weight) * u_white ** 2, weight * u_full ** 2
+            u2 = part_w + part_f
+            denom = part_w ** 2 / model.dof + part_f ** 2 / dof_full
+            method, u = full_method, math.sqrt(u2)
+            dof = min(u2 ** 2 / denom, model.dof)
     r1 = float(autocorr.autocorrelation(d, 1)[1]) if n >= 3 else None
     return TypeA(n=n, mean=mean, s=s, u_naive=s / math.sqrt(n), u_white=u_white,
                  dof_white=model.dof, white_factor=model.factor,
                  noise_density=math.sqrt(scale), r1=r1, r1_model=float(model.rho[1]),
                  curve=curve, avar_white=avar_white, verdict=verdict, acorr=acorr,
-                 u_acorr=u_acorr, fit=fit, method=method, u=u, dof=float(dof))
+                 u_acorr=u_acorr, fit=fit, method=method, u=u, dof=float(dof),
+                 weight=weight, u_full=u_full, dof_full=dof_full)
 
 
 def planning(res: TypeA, model: WhiteModel, target: float, cycle_s: float,
              used_s: float) -> dict[str, Any]:
     """Measurement time needed for u(d̄)/|d̄| = ``target`` (same cycling and settle).
 
-    White or autocorrelation-widened: u² scales as 1/n, so n' = n·(u/u_t)². Allan floor:
-    u² = a·Var₁(d̄)·n/n' + b, so n' = a·Var₁(d̄)·n/(u_t² − b), unreachable when b ≥ u_t².
+    White or autocorrelation-widened: u² scales as 1/n, so n' = n·(u/u_t)². Allan floor with
+    weight w (step 5): u² = [(1 − w)·u_w² + w·a·Var₁(d̄)]·n/n' + w·b, so
+    n' = [(1 − w)·u_w² + w·a·Var₁(d̄)]·n/(u_t² − w·b), unreachable when w·b ≥ u_t².
     Time = n'·(cycle period).
     """
     base = abs(res.mean)
@@ -209,12 +260,14 @@ def planning(res: TypeA, model: WhiteModel, target: float, cycle_s: float,
     u_t = target * base
     out["target_standard_uncertainty"] = u_t
     if res.method == "allan-floor" and res.fit is not None:
-        white2 = res.fit.a * model.var_mean * res.n
-        if res.fit.b >= u_t ** 2:
+        w = res.weight
+        white2 = ((1.0 - w) * res.u_white ** 2 + w * res.fit.a * model.var_mean) * res.n
+        floor = w * res.fit.b
+        if floor >= u_t ** 2:
             out["text"] = (f"unreachable by averaging: the Allan floor "
-                           f"{math.sqrt(res.fit.b):.3g} exceeds the target {u_t:.3g}")
+                           f"{math.sqrt(floor):.3g} exceeds the target {u_t:.3g}")
             return out
-        n_need = white2 / (u_t ** 2 - res.fit.b)
+        n_need = white2 / (u_t ** 2 - floor)
     else:
         n_need = res.n * (res.u / u_t) ** 2
     t_need = n_need * cycle_s
