@@ -26,7 +26,7 @@ if TYPE_CHECKING:  # pragma: no cover - annotations only
     from .result import Budget, Measurand, Term
 
 __all__ = ["BudgetRow", "RowGroup", "grouped_rows", "distribution_name", "text_bar",
-           "column_headings"]
+           "column_headings", "sensitivity_unit"]
 
 #: display names of the distributions (JCGM 100 §4.3, JCGM 101 §6.4); others as stored
 _DISTRIBUTION_NAMES = {"student-t": "t", "arcsine": "arcsine (U-shaped)"}
@@ -166,6 +166,24 @@ def column_headings(symbol: str, unit: str) -> dict[str, str]:
         "distribution": "distribution", "c": "c_i",
         "contribution": f"u_i({symbol}){per_unit}", "share": f"u_i²/u_c²({symbol})",
     }
+
+
+def _bracket(unit: str) -> str:
+    return f"({unit})" if any(c in unit for c in "/ ·*") else unit
+
+
+def sensitivity_unit(y_unit: str, x_unit: str) -> str:
+    """The unit of c_i = ∂y/∂x_i: the output's unit over the input's (``"pA/Ω"``, ``"A/V"``;
+    ``"pA"`` for a dimensionless input, ``"1/Ω"`` for a dimensionless output, ``""`` when both
+    are dimensionless or the units are the same). Written, not simplified, so a row reads as
+    "per unit of this input" (JCGM 100 §5.1.3: c_i in units of y per unit of x_i)."""
+    y = "" if y_unit in ("", "1") else y_unit
+    x = "" if x_unit in ("", "1") else x_unit
+    if not x:
+        return y
+    if x == y:
+        return ""
+    return f"{_bracket(y) if y else '1'}/{_bracket(x)}"
 
 
 _EIGHTHS = " ▏▎▍▌▋▊▉"

@@ -13,7 +13,7 @@ from typing import Any
 
 from markupsafe import Markup, escape
 
-from ..budget_rows import distribution_name, grouped_rows
+from ..budget_rows import distribution_name, grouped_rows, sensitivity_unit
 from ..errors import DataError
 from ..fmt import fmt_dof, fmt_num, fmt_rows, fmt_share, fmt_u
 from ..nominal import nominal_point, nominal_text
@@ -91,14 +91,15 @@ def _distribution_text(q) -> str:
     return f"{d.kind} on {bounds}"
 
 
-def _term_row(r) -> dict[str, Any]:
+def _term_row(r, y_unit: str = "") -> dict[str, Any]:
     t = r.term
     share = min(max(r.share, 0.0), 1.0)
     return {
         "name": t.name, "estimate": value_u(t.value, t.standard_uncertainty),
-        "unit": "" if t.unit == "1" else t.unit, "u": sci(fmt_u(t.standard_uncertainty)),
+        "unit": "" if t.unit == "1" else t.unit,
+        "u": sci(fmt_u(t.standard_uncertainty)) + unit_suffix(t.unit),
         "distribution": distribution_name(t), "dof": fmt_dof(t.dof), "type": t.evaluation,
-        "c": sci(fmt_num(t.sensitivity, 4)),
+        "c": sci(fmt_num(t.sensitivity, 4)) + unit_suffix(sensitivity_unit(y_unit, t.unit)),
         "contribution": sci(("-" if r.contribution < 0 else "") + fmt_u(abs(r.contribution))),
         "share": fmt_share(r.share), "bar_width": f"{max(100 * share, 1.5) if share > 0 else 0:.2f}",
         "derivative": t.derivative,
@@ -108,7 +109,7 @@ def _term_row(r) -> dict[str, Any]:
 def _term_groups(b: Budget, m: Measurand) -> list[dict[str, Any]]:
     """The budget rows of ``m`` grouped by origin (see :mod:`budget.budget_rows`)."""
     return [{"heading": g.heading, "share": fmt_share(g.share),
-             "rows": [_term_row(r) for r in g.rows]} for g in grouped_rows(b, m)]
+             "rows": [_term_row(r, m.unit) for r in g.rows]} for g in grouped_rows(b, m)]
 
 
 def _mc_block(b: Budget, m: Measurand, *, draw: bool) -> dict[str, Any] | None:

@@ -5,7 +5,13 @@ from __future__ import annotations
 import math
 from typing import TYPE_CHECKING
 
-from ..budget_rows import column_headings, distribution_name, grouped_rows, text_bar
+from ..budget_rows import (
+    column_headings,
+    distribution_name,
+    grouped_rows,
+    sensitivity_unit,
+    text_bar,
+)
 from ..fmt import fmt_dof, fmt_num, fmt_share, fmt_u, fmt_value
 from .tables import grouped_table, unit_suffix
 
@@ -20,7 +26,8 @@ _BAR = 12          # cells of the share bar (one cell = 1/12 of u_c²)
 def budget_rows_text(b: Budget, m) -> str:
     """The budget table of one measurand, rows grouped by origin (:mod:`budget.budget_rows`).
 
-    Columns: X_i, x_i (with its unit), u(x_i), type (A/B), ν_i, distribution, c_i, the
+    Columns: X_i, x_i and u(x_i) (with their unit), type (A/B), ν_i, distribution, c_i (with its
+    unit, y's over x_i's, :func:`~budget.budget_rows.sensitivity_unit`), the
     signed contribution u_i(y) = c_i·u(x_i) in the unit of y, and the share u_i²/u_c² as a
     text bar of :data:`_BAR` cells with the percentage beside it.
     """
@@ -34,8 +41,10 @@ def budget_rows_text(b: Budget, m) -> str:
             t = r.term
             rows.append([t.name, fmt_value(t.value, t.standard_uncertainty)
                          + unit_suffix(t.unit),
-                         fmt_u(t.standard_uncertainty), t.evaluation, fmt_dof(t.dof),
-                         distribution_name(t), fmt_num(t.sensitivity, 4),
+                         fmt_u(t.standard_uncertainty) + unit_suffix(t.unit), t.evaluation,
+                         fmt_dof(t.dof), distribution_name(t),
+                         fmt_num(t.sensitivity, 4) + unit_suffix(sensitivity_unit(m.unit,
+                                                                                  t.unit)),
                          fmt_u(abs(r.contribution)) if r.contribution >= 0
                          else "-" + fmt_u(abs(r.contribution)),
                          f"{text_bar(r.share, _BAR)} {fmt_share(r.share):>7}"])

@@ -5,7 +5,7 @@ from __future__ import annotations
 
 from typing import TYPE_CHECKING
 
-from ..budget_rows import column_headings, distribution_name, text_bar
+from ..budget_rows import column_headings, distribution_name, sensitivity_unit, text_bar
 from ..fmt import fmt_dof, fmt_num, fmt_rows, fmt_share, fmt_u, fmt_value
 from .tables import WIDTH, section, table
 from .tables import unit_suffix as _unit
@@ -43,8 +43,9 @@ def explain_overview_text(ov: Overview) -> str:
             t = r.term
             signed = ("-" if t.sensitivity < 0 else "") + fmt_u(t.contribution)
             rows.append([t.name, fmt_value(t.value, t.standard_uncertainty) + _unit(t.unit),
-                         fmt_u(t.standard_uncertainty), t.evaluation, fmt_dof(t.dof),
-                         distribution_name(t), fmt_num(t.sensitivity, 4), signed,
+                         fmt_u(t.standard_uncertainty) + _unit(t.unit), t.evaluation,
+                         fmt_dof(t.dof), distribution_name(t), fmt_num(t.sensitivity, 4)
+                         + _unit(sensitivity_unit(m.unit, t.unit)), signed,
                          f"{text_bar(t.variance_share, 4)} {fmt_share(t.variance_share):>7}"])
             sources.append(r.source)
         h = column_headings(m.name, m.unit)
