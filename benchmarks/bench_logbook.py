@@ -10,7 +10,8 @@ for the second, copied with a changed title, measurement date and on/off-record 
 in the middle), kept as files; the add reads, checks and digests every file
 (``budget.logbook.add_files``, what ``budget logbook add`` does) and writes them in one
 transaction. List = ``Logbook.entries()``; trend = ``Logbook.series`` + ``compute_trend``.
-Each timing is repeated (a fresh book for each add) and reported as min / median / max.
+Each timing is repeated (a fresh book for each add) and reported as min / median / max; the add
+is timed in one process (``workers=1``) and with the default worker processes, alternated.
 
 A second, smaller run adds the 10-hour resistor-chain record of ``worked_examples/runs``
 (about 100 kB, most of it module diagnostics) 1 000 times, to show how size and time grow
@@ -79,8 +80,15 @@ def row(label: str, times: tuple[list[float], list[float]], target: str) -> str:
 
 
 def bench(files: list[Path], tmp: Path, label: str, repeats: int) -> list[str]:
-    books = iter(tmp / f"{label}-{i}.sqlite" for i in range(repeats))
-    add = timed(lambda: add_files(next(books), files), repeats)
+    # serial (workers=1) and the default (worker processes from 256 files on) alternated, a
+    # fresh book for each add
+    books = iter(tmp / f"{label}-{i}.sqlite" for i in range(2 * repeats))
+    serial, parallel = ([], []), ([], [])
+    for _ in range(repeats):
+        for dest, workers in ((serial, 1), (parallel, None)):
+            w, c = timed(lambda workers=workers: add_files(next(books), files, workers=workers), 1)
+            dest[0].extend(w)
+            dest[1].extend(c)
     book = tmp / f"{label}-0.sqlite"
     with Logbook.open(book) as lb:
         listing = timed(lb.entries, 5)
@@ -91,7 +99,9 @@ def bench(files: list[Path], tmp: Path, label: str, repeats: int) -> list[str]:
     return [f"{label}: {n} records of {avg:.1f} kB on average; book {size:.1f} MB",
             "| what | wall min / median / max | CPU min / median / max | target |",
             "|---|---|---|---|",
-            row(f"add {n} records", add, "< 10 s" if n == 10_000 else "—"),
+            row(f"add {n} records, one process", serial, "—"),
+            row(f"add {n} records, default (worker processes; CPU of this process only)",
+                parallel, "< 10 s" if n == 10_000 else "—"),
             row(f"list {n} records", listing, "< 1 s"),
             row(f"trend over {n} records", trend, "< 1 s"), ""]
 

@@ -105,6 +105,9 @@ class PreparedRecord:
     measurands: tuple[MeasurandRow, ...]
     calibrations: tuple[CalibrationRow, ...]
     terms: tuple[TermRow, ...]
+    #: the stored (zlib-compressed) bytes when prepared ahead, e.g. by a worker process of
+    #: ``add_files``; empty: the book compresses ``raw`` as it inserts
+    body: bytes = b""
 
 
 def canonical_json(data: Any) -> bytes:

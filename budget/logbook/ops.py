@@ -9,26 +9,66 @@ from __future__ import annotations
 
 import contextlib
 import hashlib
+import multiprocessing
 import os
 import shutil
 import tempfile
 from collections.abc import Sequence
+from concurrent.futures import ProcessPoolExecutor
+from dataclasses import replace
 from datetime import UTC, datetime
 from pathlib import Path
 
-from ..errors import UsageError
+from ..errors import BudgetError, UsageError
 from ..outputs import new_folder_mode, temp_prefix
 from ..record import read_record_bytes
 from .extract import PreparedRecord, prepare
-from .store import DEFAULT_WAIT_S, Logbook
+from .store import DEFAULT_WAIT_S, Logbook, compress_body
 
-__all__ = ["read_record_file", "add_files", "add_prepared", "stage_add", "export_book",
+__all__ = ["read_record_file", "prepare_files", "add_files", "add_prepared", "stage_add", "export_book",
            "export_name"]
 
 
 def read_record_file(path: str | Path) -> PreparedRecord:
     """Read and check one record file (see :func:`budget.logbook.extract.prepare`)."""
     return prepare(read_record_bytes(path), str(path))
+
+
+#: from this many files on, ``add_files`` reads, checks and compresses them in worker processes
+PARALLEL_FROM = 256
+
+
+def _prepare_compressed(path: str) -> PreparedRecord | None:
+    """A worker's share: the checked record with its stored bytes, or None when the file is
+    refused (the caller then reads it again itself, so the error is raised as always)."""
+    try:
+        r = read_record_file(path)
+    except BudgetError:
+        return None
+    return replace(r, body=compress_body(r.raw))
+
+
+def prepare_files(files: Sequence[str | Path], workers: int | None = None
+                  ) -> list[PreparedRecord]:
+    """Read and check every file, in order; the first refused file raises its error.
+
+    Parameters
+    ----------
+    workers : int, optional
+        Worker processes (forked; 1 reads in this process). Default: one per CPU, up to 4,
+        when there are at least :data:`PARALLEL_FROM` files and the platform forks.
+    """
+    files = [str(f) for f in files]
+    if workers is None:
+        workers = min(os.cpu_count() or 1, 4) if len(files) >= PARALLEL_FROM else 1
+    if workers < 2 or "fork" not in multiprocessing.get_all_start_methods():
+        return [read_record_file(f) for f in files]
+    with ProcessPoolExecutor(workers, mp_context=multiprocessing.get_context("fork")) as pool:
+        out = list(pool.map(_prepare_compressed, files, chunksize=32))
+    for i, r in enumerate(out):
+        if r is None:
+            out[i] = read_record_file(files[i])      # raises the file's own located error
+    return out
 
 
 def _now() -> str:
@@ -112,8 +152,11 @@ def stage_add(book: str | Path, records: Sequence[PreparedRecord], *,
 
 
 def add_files(book: str | Path, files: Sequence[str | Path], *,
-              wait_s: float = DEFAULT_WAIT_S, create_folder: bool = False) -> list[int]:
+              wait_s: float = DEFAULT_WAIT_S, create_folder: bool = False,
+              workers: int | None = None) -> list[int]:
     """Read and check every file, then add them all in one transaction; returns their ids.
+
+    ``workers``: see :func:`prepare_files` (default: in parallel from 256 files on).
 
     Raises
     ------
@@ -123,7 +166,7 @@ def add_files(book: str | Path, files: Sequence[str | Path], *,
     """
     if not files:
         raise UsageError("give at least one record file", field="RECORD")
-    prepared = [read_record_file(f) for f in files]
+    prepared = prepare_files(files, workers)
     return add_prepared(book, prepared, wait_s=wait_s, create_folder=create_folder)
 
 
