@@ -53,3 +53,45 @@ def test_parallel_add_refuses_the_first_bad_file_and_adds_nothing(files, tmp_pat
     assert parallel.value.one_line() == serial.value.one_line()
     assert str(bad) in parallel.value.one_line()
     assert not (tmp_path / "b.sqlite").exists()
+
+
+def test_killed_parallel_add_leaves_the_book_and_no_worker(files, tmp_path):
+    # a SIGKILL while the workers read (issue 16: "a killed write leaves the book as before");
+    # the workers notice that their parent is gone and leave (none may linger)
+    import os
+    import signal
+    import subprocess
+    import sys
+    import time
+    book = tmp_path / "book.sqlite"
+    add_files(book, files[:3], workers=1)
+    many = [variant(files[i % 40], tmp_path / f"m{i:04d}.json", 1000 + i) for i in range(3000)]
+    proc = subprocess.Popen([sys.executable, "-c", (
+        "import sys\nfrom budget.logbook import add_files\n"
+        "add_files(sys.argv[1], sys.argv[2:], workers=2)"), str(book), *map(str, many)])
+    workers: list[str] = []
+    deadline = time.monotonic() + 30
+    while len(workers) < 2 and time.monotonic() < deadline and proc.poll() is None:
+        time.sleep(0.05)
+        workers = subprocess.run(["pgrep", "-P", str(proc.pid)], capture_output=True,
+                                 text=True).stdout.split()
+    assert len(workers) == 2, "the add should still be reading when killed"
+    os.kill(proc.pid, signal.SIGKILL)
+    proc.wait()
+    deadline = time.monotonic() + 10
+
+    def alive():
+        out = []
+        for w in workers:
+            try:
+                with open(f"/proc/{w}/stat") as f:
+                    if f.read().split(")")[-1].split()[0] != "Z":
+                        out.append(w)
+            except FileNotFoundError:
+                pass
+        return out
+    while alive() and time.monotonic() < deadline:
+        time.sleep(0.1)
+    assert alive() == []
+    with Logbook.open(book) as lb:
+        assert lb.count() == 3

@@ -108,6 +108,8 @@ class PreparedRecord:
     #: the stored (zlib-compressed) bytes when prepared ahead, e.g. by a worker process of
     #: ``add_files``; empty: the book compresses ``raw`` as it inserts
     body: bytes = b""
+    #: the file's size in bytes when ``raw`` was dropped after compressing (``body`` set)
+    size: int = 0
 
 
 def canonical_json(data: Any) -> bytes:

@@ -12,21 +12,25 @@ import hashlib
 import multiprocessing
 import os
 import shutil
+import signal
 import tempfile
+import threading
+import time
 from collections.abc import Sequence
 from concurrent.futures import ProcessPoolExecutor
+from concurrent.futures.process import BrokenProcessPool
 from dataclasses import replace
 from datetime import UTC, datetime
 from pathlib import Path
 
-from ..errors import BudgetError, UsageError
+from ..errors import UsageError
 from ..outputs import new_folder_mode, temp_prefix
 from ..record import read_record_bytes
 from .extract import PreparedRecord, prepare
 from .store import DEFAULT_WAIT_S, Logbook, compress_body
 
-__all__ = ["read_record_file", "prepare_files", "add_files", "add_prepared", "stage_add", "export_book",
-           "export_name"]
+__all__ = ["read_record_file", "prepare_files", "add_files", "add_prepared", "stage_add",
+           "export_book", "export_name"]
 
 
 def read_record_file(path: str | Path) -> PreparedRecord:
@@ -38,19 +42,41 @@ def read_record_file(path: str | Path) -> PreparedRecord:
 PARALLEL_FROM = 256
 
 
+def _worker_start(parent: int) -> None:
+    """In each worker: default signal handling (the command's own handlers are the parent's
+    business; an interrupt reaches the parent, which stops the pool), and leave as soon as the
+    parent is gone, so that a killed ``add`` leaves no process behind."""
+    for name in ("SIGTERM", "SIGHUP"):
+        if hasattr(signal, name):
+            signal.signal(getattr(signal, name), signal.SIG_DFL)
+    signal.signal(signal.SIGINT, signal.SIG_IGN)
+
+    def watch() -> None:
+        while os.getppid() == parent:
+            time.sleep(0.2)
+        os._exit(1)
+    threading.Thread(target=watch, daemon=True).start()
+
+
 def _prepare_compressed(path: str) -> PreparedRecord | None:
-    """A worker's share: the checked record with its stored bytes, or None when the file is
-    refused (the caller then reads it again itself, so the error is raised as always)."""
+    """A worker's share: the checked record with its stored bytes (and not the file's bytes,
+    which the book does not need again), or None when the file is refused or anything else
+    goes wrong (the caller then reads it again itself, so it fails exactly as the serial path
+    does)."""
     try:
         r = read_record_file(path)
-    except BudgetError:
+        return replace(r, raw=b"", size=len(r.raw), body=compress_body(r.raw))
+    except Exception:       # noqa: BLE001 -- the caller repeats the read and raises
         return None
-    return replace(r, body=compress_body(r.raw))
 
 
 def prepare_files(files: Sequence[str | Path], workers: int | None = None
                   ) -> list[PreparedRecord]:
     """Read and check every file, in order; the first refused file raises its error.
+
+    The serial path (``workers=1``) is the reference: with workers, a file a worker could not
+    prepare is read again here, in order, so the error raised (and which file it names) is the
+    serial path's; a worker pool that breaks (a worker killed) falls back to the serial path.
 
     Parameters
     ----------
@@ -63,8 +89,13 @@ def prepare_files(files: Sequence[str | Path], workers: int | None = None
         workers = min(os.cpu_count() or 1, 4) if len(files) >= PARALLEL_FROM else 1
     if workers < 2 or "fork" not in multiprocessing.get_all_start_methods():
         return [read_record_file(f) for f in files]
-    with ProcessPoolExecutor(workers, mp_context=multiprocessing.get_context("fork")) as pool:
-        out = list(pool.map(_prepare_compressed, files, chunksize=32))
+    try:
+        with ProcessPoolExecutor(workers, mp_context=multiprocessing.get_context("fork"),
+                                 initializer=_worker_start,
+                                 initargs=(os.getpid(),)) as pool:
+            out = list(pool.map(_prepare_compressed, files, chunksize=32))
+    except (BrokenProcessPool, OSError):
+        return [read_record_file(f) for f in files]
     for i, r in enumerate(out):
         if r is None:
             out[i] = read_record_file(files[i])      # raises the file's own located error

@@ -445,7 +445,7 @@ def _insert(con: sqlite3.Connection, r: PreparedRecord, added_utc: str) -> int:
         "INSERT INTO records (sha256, canonical_sha256, body, size, file_name, title, "
         "spec_sha256, manifest_sha256, chain, date_start, date_end, pump, operating_point, "
         "frequency_hz, added_utc) VALUES (?,?,?,?,?,?,?,?,?,?,?,?,?,?,?)",
-        (r.sha256, r.canonical_sha256, r.body or compress_body(r.raw), len(r.raw),
+        (r.sha256, r.canonical_sha256, r.body or compress_body(r.raw), r.size or len(r.raw),
          Path(r.file).name, r.title, r.spec_sha256, r.manifest_sha256, r.chain, r.date_start,
          r.date_end, r.pump, r.operating_point, r.frequency_Hz, added_utc))
     rid = cur.lastrowid
