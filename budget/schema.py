@@ -22,6 +22,7 @@ from __future__ import annotations
 
 import json
 import re
+from collections.abc import Callable
 from functools import cache
 from importlib import resources
 from typing import Any
@@ -85,63 +86,179 @@ def validate(data: Any, schema: dict[str, Any], *, root: dict[str, Any] | None =
 
     A schema node may carry ``"x-must": "1 or 2"`` (an annotation, ignored by other
     validators): a failure of that node's own checks then reads "must be 1 or 2; got ...".
+
+    The schema is turned once into a tree of small checking functions (kept for the life of
+    the process, keyed by the schema object), so a record's hundreds of nodes are not
+    re-interpreted on every call; the checks, their order and the messages are those listed
+    in the module docstring. An unknown keyword anywhere in the schema raises KeyError on the
+    first call.
     """
-    root = schema if root is None else root
-    must = schema.get("x-must")
-    if must is None:
-        _validate(data, schema, root, path)
-        return
+    check = _compiled(schema, schema if root is None else root)
     try:
-        _validate(data, schema, root, path)
+        check(data)
     except SchemaViolation as exc:
-        if len(exc.path) > len(path):  # a nested key failed: its own message says more
-            raise
-        raise SchemaViolation(path, f"must be {must}; got {shown(data)}") from None
+        if path:
+            exc.path = path + exc.path
+        raise
 
 
-def _validate(data: Any, schema: dict[str, Any], root: dict[str, Any],
-              path: tuple[str | int, ...]) -> None:
+_Check = Callable[[Any], None]
+#: (id(schema), id(root)) -> (schema, root, check); schema and root are kept so ids stay unique
+_CACHE: dict[tuple[int, int], tuple[dict, dict, _Check]] = {}
+
+
+def _compiled(schema: dict[str, Any], root: dict[str, Any]) -> _Check:
+    hit = _CACHE.get((id(schema), id(root)))
+    if hit is not None and hit[0] is schema and hit[1] is root:
+        return hit[2]
+    check = _compile(schema, root)
+    _CACHE[(id(schema), id(root))] = (schema, root, check)
+    return check
+
+
+def _within(key: str | int, check: _Check, value: Any) -> None:
+    """Run ``check`` on a member; a violation's path (relative to the member) gains ``key``."""
+    try:
+        check(value)
+    except SchemaViolation as exc:
+        exc.path = (key,) + exc.path
+        raise
+
+
+def _compile(schema: dict[str, Any], root: dict[str, Any]) -> _Check:
+    """The checks of one schema node in order: $ref, anyOf, type (and number range), enum,
+    const, string length, object members, list items; violations carry paths relative to the
+    node (the callers prepend their key)."""
     for key in schema:
         if key not in _KEYWORDS and key not in _IGNORED:
             raise KeyError(f"schema keyword {key!r} is not supported by budget.schema")
+    checks: list[_Check] = []
     if "$ref" in schema:
         ref = schema["$ref"]
         if not ref.startswith("#/$defs/"):
             raise KeyError(f"only local $ref to #/$defs/ is supported; got {ref!r}")
-        validate(data, root["$defs"][ref[len("#/$defs/"):]], root=root, path=path)
+        name = ref[len("#/$defs/"):]
+        target: list[_Check] = []          # resolved on first use (a $ref may recurse)
+
+        def check_ref(data):
+            if not target:
+                target.append(_compiled(root["$defs"][name], root))
+            target[0](data)
+        checks.append(check_ref)
     if "anyOf" in schema:
-        errors = []
-        for sub in schema["anyOf"]:
-            try:
-                validate(data, sub, root=root, path=path)
-                break
-            except SchemaViolation as exc:
-                errors.append(exc)
-        else:
+        subs = [_compiled(sub, root) for sub in schema["anyOf"]]
+
+        def check_any(data):
+            errors = []
+            for sub in subs:
+                try:
+                    sub(data)
+                    return
+                except SchemaViolation as exc:
+                    errors.append(exc)
             # the branch that got furthest into the data says the most
             raise max(errors, key=lambda e: len(e.path))
+        checks.append(check_any)
     if "type" in schema:
-        types = schema["type"] if isinstance(schema["type"], list) else [schema["type"]]
+        checks.append(_type_check(schema))
+    if "enum" in schema:
+        enum = schema["enum"]
+
+        def check_enum(data):
+            if data not in enum:
+                raise SchemaViolation((), f"must be one of {', '.join(map(str, enum))}; "
+                                          f"got {shown(data)}")
+        checks.append(check_enum)
+    if "const" in schema:
+        const = schema["const"]
+
+        def check_const(data):
+            if data != const:
+                raise SchemaViolation((), f"must be {shown(const)}; got {shown(data)}")
+        checks.append(check_const)
+    if "minLength" in schema or "maxLength" in schema:
+        checks.append(_string_check(schema))
+    obj = _object_check(schema, root)
+    if obj is not None:
+        checks.append(obj)
+    arr = _array_check(schema, root)
+    if arr is not None:
+        checks.append(arr)
+    check = _sequence(checks)
+    must = schema.get("x-must")
+    if must is None:
+        return check
+
+    def check_must(data):
+        try:
+            check(data)
+        except SchemaViolation as exc:
+            if exc.path:  # a nested key failed: its own message says more
+                raise
+            raise SchemaViolation((), f"must be {must}; got {shown(data)}") from None
+    return check_must
+
+
+def _sequence(checks: list[_Check]) -> _Check:
+    if not checks:
+        return lambda data: None
+    if len(checks) == 1:
+        return checks[0]
+
+    def check_all(data):
+        for c in checks:
+            c(data)
+    return check_all
+
+
+def _type_check(schema: dict[str, Any]) -> _Check:
+    types = schema["type"] if isinstance(schema["type"], list) else [schema["type"]]
+    for t in types:
+        _is_type(None, t)                   # an unknown type name is a KeyError now
+    words = " or ".join(_TYPE_WORDS[t] for t in types)
+    numeric = "number" in types or "integer" in types
+    ranged = any(k in schema for k in ("minimum", "maximum", "exclusiveMinimum",
+                                       "exclusiveMaximum"))
+    if len(types) == 1 and types[0] in _PLAIN:
+        cls = _PLAIN[types[0]]
+
+        def check_plain(data):
+            if not isinstance(data, cls):
+                raise SchemaViolation((), f"must be {words}; got {shown(data)}")
+        return check_plain
+    if types == ["number"] and not ranged:
+        def check_number(data):
+            if isinstance(data, bool) or not isinstance(data, (int, float)):
+                raise SchemaViolation((), f"must be {words}; got {shown(data)}")
+            try:
+                checked(data)
+            except NumberError as exc:
+                raise SchemaViolation((), str(exc)) from None
+        return check_number
+
+    def check_type(data):
         if not any(_is_type(data, t) for t in types):
-            words = " or ".join(_TYPE_WORDS[t] for t in types)
-            raise SchemaViolation(path, f"must be {words}; got {shown(data)}")
-        if ("number" in types or "integer" in types) and _is_type(data, "number"):
-            _number(data, schema, path)
-    if "enum" in schema and data not in schema["enum"]:
-        raise SchemaViolation(path, f"must be one of {', '.join(map(str, schema['enum']))}; "
-                                    f"got {shown(data)}")
-    if "const" in schema and data != schema["const"]:
-        raise SchemaViolation(path, f"must be {shown(schema['const'])}; got {shown(data)}")
-    if isinstance(data, str):
-        if len(data) < schema.get("minLength", 0):
-            raise SchemaViolation(path, "must not be empty" if schema["minLength"] == 1 else
-                                  f"must have at least {schema['minLength']} characters")
-        if "maxLength" in schema and len(data) > schema["maxLength"]:
-            raise SchemaViolation(path, f"must have at most {schema['maxLength']} characters")
-    if isinstance(data, dict):
-        _object(data, schema, root, path)
-    if isinstance(data, list):
-        _array(data, schema, root, path)
+            raise SchemaViolation((), f"must be {words}; got {shown(data)}")
+        if numeric and _is_type(data, "number"):
+            _number(data, schema, ())
+    return check_type
+
+
+#: types whose test is one isinstance (bool is not an int here: it has its own type name)
+_PLAIN = {"object": dict, "array": list, "string": str, "boolean": bool}
+
+
+def _string_check(schema: dict[str, Any]) -> _Check:
+    lo, hi = schema.get("minLength", 0), schema.get("maxLength")
+
+    def check_string(data):
+        if isinstance(data, str):
+            if len(data) < lo:
+                raise SchemaViolation((), "must not be empty" if lo == 1 else
+                                      f"must have at least {lo} characters")
+            if hi is not None and len(data) > hi:
+                raise SchemaViolation((), f"must have at most {hi} characters")
+    return check_string
 
 
 def _number(v, schema, path) -> None:
@@ -161,40 +278,60 @@ def _number(v, schema, path) -> None:
         raise SchemaViolation(path, f"must be < {xhi:g}; got {shown(v)}")
 
 
-def _object(data: dict, schema, root, path) -> None:
-    props = schema.get("properties", {})
-    for key in schema.get("required", ()):
-        if key not in data:
-            raise SchemaViolation(path + (key,), "is missing")
+def _object_check(schema: dict[str, Any], root: dict[str, Any]) -> _Check | None:
+    required = tuple(schema.get("required", ()))
+    props = {k: _compiled(v, root) for k, v in schema.get("properties", {}).items()}
     names = schema.get("propertyNames")
+    pattern = None if names is None else re.compile(names["pattern"])
     extra = schema.get("additionalProperties", True)
-    for key, value in data.items():
-        if names is not None and not re.fullmatch(names["pattern"], key):
-            raise SchemaViolation(path + (key,), "is not an allowed name")
-        if key in props:
-            validate(value, props[key], root=root, path=path + (key,))
-        elif extra is False:
-            raise SchemaViolation(path + (key,), "is not a known key")
-        elif isinstance(extra, dict):
-            validate(value, extra, root=root, path=path + (key,))
+    extra_check = _compiled(extra, root) if isinstance(extra, dict) else None
+    if not (required or props or pattern is not None or extra is False or extra_check):
+        return None
+
+    def check_object(data):
+        if not isinstance(data, dict):
+            return
+        for key in required:
+            if key not in data:
+                raise SchemaViolation((key,), "is missing")
+        for key, value in data.items():
+            if pattern is not None and not pattern.fullmatch(key):
+                raise SchemaViolation((key,), "is not an allowed name")
+            sub = props.get(key)
+            if sub is not None:
+                _within(key, sub, value)
+            elif extra is False:
+                raise SchemaViolation((key,), "is not a known key")
+            elif extra_check is not None:
+                _within(key, extra_check, value)
+    return check_object
 
 
-def _array(data: list, schema, root, path) -> None:
-    if len(data) < schema.get("minItems", 0):
-        raise SchemaViolation(path, "must not be empty" if schema["minItems"] == 1 else
-                              f"must have at least {schema['minItems']} entries; got "
-                              f"{len(data)}")
-    if "maxItems" in schema and len(data) > schema["maxItems"]:
-        raise SchemaViolation(path, f"must have at most {schema['maxItems']} entries; got "
-                                    f"{len(data)}")
-    prefix = schema.get("prefixItems", [])
-    for i, item in enumerate(data):
-        sub = prefix[i] if i < len(prefix) else schema.get("items")
-        if sub is False:
-            raise SchemaViolation(path, f"must have at most {len(prefix)} entries; got "
-                                        f"{len(data)}")
-        if sub is not None and sub is not True:
-            validate(item, sub, root=root, path=path + (i,))
+def _array_check(schema: dict[str, Any], root: dict[str, Any]) -> _Check | None:
+    lo, hi = schema.get("minItems", 0), schema.get("maxItems")
+    raw_prefix = schema.get("prefixItems", [])
+    prefix = [p if isinstance(p, bool) else _compiled(p, root) for p in raw_prefix]
+    items = schema.get("items")
+    rest = items if items is None or isinstance(items, bool) else _compiled(items, root)
+    if not (lo or hi is not None or prefix or (rest is not None and rest is not True)):
+        return None
+
+    def check_array(data):
+        if not isinstance(data, list):
+            return
+        if len(data) < lo:
+            raise SchemaViolation((), "must not be empty" if lo == 1 else
+                                  f"must have at least {lo} entries; got {len(data)}")
+        if hi is not None and len(data) > hi:
+            raise SchemaViolation((), f"must have at most {hi} entries; got {len(data)}")
+        for i, item in enumerate(data):
+            sub = prefix[i] if i < len(prefix) else rest
+            if sub is False:
+                raise SchemaViolation((), f"must have at most {len(prefix)} entries; got "
+                                          f"{len(data)}")
+            if sub is not None and sub is not True:
+                _within(i, sub, item)
+    return check_array
 
 
 _KEYWORDS = {"type", "properties", "required", "additionalProperties", "propertyNames",
