@@ -39,7 +39,7 @@ from .quantity import FileRef
 from .record import finite_number
 from .result import Budget, Measurand, Term, dof_out
 
-__all__ = ["Recomputed", "combine_terms", "TermRow",
+__all__ = ["Recomputed", "combine_terms", "TermRow", "chosen_measurands",
            "MeasurandOverview", "Overview", "overview", "TermAnswer", "Explanation",
            "explain_term"]
 
@@ -77,8 +77,8 @@ def correlation_matrix(names: list[str], run: Mapping[str, Any]) -> np.ndarray:
 
 
 def combine_terms(budget: Budget, measurand: Measurand,
-                  factors: Mapping[str, float] | None = None, label: str = "as evaluated"
-                  ) -> Recomputed:
+                  factors: Mapping[str, float] | None = None, label: str = "as evaluated",
+                  dofs: Mapping[str, float] | None = None) -> Recomputed:
     """Recompute u_c, ν_eff, k and U with some input uncertainties scaled.
 
     Parameters
@@ -90,6 +90,8 @@ def combine_terms(budget: Budget, measurand: Measurand,
         Term name -> factor on its standard uncertainty (0 removes the term). Default none.
     label : str
         Name of the scenario. Default "as evaluated".
+    dofs : mapping, optional
+        Term name -> its ν in the scenario (a longer series of observations). Default none.
     """
     factors = dict(factors or {})
     run = budget.run
@@ -102,7 +104,7 @@ def combine_terms(budget: Budget, measurand: Measurand,
     pool = [p for p in pool if factors.get(p[0], 1.0) != 0.0]
     names = [p[0] for p in pool]
     cu = np.array([c.get(n, 0.0) * u * factors.get(n, 1.0) for n, u, _ in pool])
-    dof = np.array([nu for _, _, nu in pool])
+    dof = np.array([(dofs or {}).get(n, nu) for n, _, nu in pool])
     r = correlation_matrix(names, run)
     r_cu = r @ cu
     var = float(cu @ r_cu) + measurand.second_order_variance
@@ -155,6 +157,11 @@ class Overview:
 
     def to_dict(self) -> dict[str, Any]:
         return {"title": self.title, "measurands": [m.to_dict() for m in self.measurands]}
+
+
+def chosen_measurands(budget: Budget, measurand: str | None) -> tuple[Measurand, ...]:
+    """Every measurand, or the one named (UsageError with a did-you-mean otherwise)."""
+    return _chosen(budget, measurand)
 
 
 def _chosen(budget: Budget, measurand: str | None) -> tuple[Measurand, ...]:

@@ -11,6 +11,7 @@ from .common import (
     EXIT_OK,
     add_force_option,
     number,
+    positive_float,
     print_warnings,
     shown_output,
     write_outputs,
@@ -31,8 +32,30 @@ def add_explain(sub) -> None:
                    help="explain a stored result record instead of evaluating a spec")
     p.add_argument("--measurand", metavar="NAME", help="only this measurand")
     p.add_argument("--json", metavar="OUT", help="write the answer as JSON to OUT")
+    p.add_argument("--full", action="store_true",
+                   help="estimates and module diagnostics at full precision, every line")
+    p.add_argument("--recalibrate", action="append", default=[], metavar="TERM=U",
+                   help="what if TERM were recalibrated to standard uncertainty U (in the "
+                        "term's unit); repeat for several")
+    p.add_argument("--longer", type=positive_float, metavar="HOURS",
+                   help="what if the on/off record ran HOURS longer (the Type A rows of the "
+                        "cycles module, scaled from the record's own noise analysis)")
+    p.add_argument("--against", metavar="OTHER.json",
+                   help="show this budget and another record's side by side, term by term")
     add_force_option(p)
     p.set_defaults(func=_cmd_explain)
+
+
+def _recalibrations(items: list[str]) -> dict[str, float]:
+    out = {}
+    for item in items:
+        name, sep, value = item.partition("=")
+        u = number(value.strip()) if sep else None
+        if not name.strip() or u is None:
+            raise UsageError(f"must be TERM=U with U a number; got {item!r}",
+                             field="--recalibrate")
+        out[name.strip()] = u
+    return out
 
 
 def _cmd_explain(args) -> int:
@@ -43,6 +66,8 @@ def _cmd_explain(args) -> int:
     from ..text import explain_overview_text, explain_term_text
     if args.json:
         check_writable(args.json, force=args.force, field="--json")
+    if args.against and args.json and Path(args.against).resolve() == Path(args.json).resolve():
+        raise UsageError("would overwrite an input file", file=args.json, field="--json")
     if args.record:
         given = [x for x in (args.spec, args.term) if x]
         if len(given) > 1:
@@ -56,15 +81,32 @@ def _cmd_explain(args) -> int:
         from ..spec import load_spec
         b = evaluate(load_spec(args.spec), monte_carlo_enabled=False)
         term = args.term
+    recal = _recalibrations(args.recalibrate)
+    other = load_record(args.against) if args.against else None
     if term is None:
         answer = overview(b, args.measurand)
         print(explain_overview_text(answer))
     else:
         answer = explain_term(b, term, args.measurand)
-        print(explain_term_text(answer))
+        print(explain_term_text(answer, full=args.full))
+    extra = {}
+    if recal or args.longer is not None:
+        from ..explain import chosen_measurands
+        from ..explain_whatif import scenarios
+        from ..text import scenarios_text
+        found = scenarios(b, chosen_measurands(b, args.measurand), recal, args.longer)
+        print(scenarios_text(found))
+        extra["scenarios"] = [x.to_dict() for x in found]
+    if other is not None:
+        from ..explain_diff import diff_budgets
+        from ..text import diff_text
+        d = diff_budgets(b, other, args.measurand)
+        print("\n" + diff_text(d, args.record or args.spec, args.against))
+        extra["against"] = d.to_dict()
     if args.json:
         try:
-            text = json.dumps(answer.to_dict(), indent=2, ensure_ascii=False, allow_nan=False)
+            text = json.dumps({**answer.to_dict(), **extra}, indent=2, ensure_ascii=False,
+                              allow_nan=False)
         except ValueError:  # a module put inf/NaN in its diagnostics (its contract says None)
             raise ComputationError("the answer holds a non-finite number and cannot be "
                                    "written as JSON", file=args.json, field="--json") from None

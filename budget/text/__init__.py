@@ -9,6 +9,7 @@ Modules
 tables          the generic column table and the label-column layout of fixed-section answers
 budget_table    ``budget run``: the budget table and result lines of a Budget
 explain_text    ``budget explain``: the overview and the fixed-section answer for one term
+whatif_text     ``budget explain``: what-if scenarios and two budgets side by side
 compare_text    ``budget compare``: runs, weighted mean, Birge ratio, E_n
 logbook_text    ``budget logbook list``, ``show``, ``trend``
 evidence_text   ``budget validate``, ``budget identity create``, ``budget verify``
@@ -30,8 +31,9 @@ from .explain_text import explain_overview_text, explain_term_text
 from .logbook_text import logbook_list_text, logbook_show_text, logbook_trend_text, main_measurand
 from .tables import section, table
 from .warnings_text import warnings_text
+from .whatif_text import diff_text, scenarios_text
 
 __all__ = ["budget_text", "compare_text", "explain_overview_text", "explain_term_text",
            "identity_text", "logbook_list_text", "logbook_show_text", "logbook_trend_text",
            "main_measurand", "recompute_text", "section", "signatures_text", "table",
-           "validate_text", "verdict_text", "warnings_text"]
+           "validate_text", "verdict_text", "warnings_text", "diff_text", "scenarios_text"]

@@ -3,6 +3,7 @@ fixed-section answer for one term (the auditor's "where does this number come fr
 
 from __future__ import annotations
 
+import math
 from typing import TYPE_CHECKING
 
 from ..budget_rows import column_headings, distribution_name, sensitivity_unit, text_bar
@@ -14,7 +15,7 @@ if TYPE_CHECKING:  # pragma: no cover - annotations only
     from ..explain import Explanation, Overview
 
 __all__ = ["diagnostic_lines", "distribution_words", "explain_overview_text",
-           "explain_term_text"]
+           "explain_term_text", "plain", "with_u"]
 
 _MAX_DIAGNOSTIC_LINES = 40   # longer module diagnostics are cut; --json holds them all
 
@@ -90,7 +91,76 @@ def distribution_words(d: dict, unit: str) -> str:
     return kind
 
 
-def diagnostic_lines(d: dict, prefix: str = "") -> list[str]:
+#: sibling keys that hold the standard uncertainty of a value in module diagnostics
+_U_OF = {"correction": ("standard_uncertainty",), "value": ("standard_uncertainty",),
+         "predicted_value": ("predicted_standard_uncertainty",),
+         "mean_difference": ("u",), "mean": ("u", "standard_uncertainty")}
+
+
+def with_u(x: float, u: float | None) -> str:
+    """``x`` with digits chosen from its uncertainty ``u``: to the place of u's second
+    significant digit (JCGM 100 §7.2.6), so a correction of 0.45·10⁻⁶ on a ratio near 1 shows;
+    without a usable ``u`` ten significant digits (the record keeps full precision)."""
+    if not isinstance(x, float) or not math.isfinite(x):
+        return plain(x)
+    if u is None or not isinstance(u, (int, float)) or not math.isfinite(u) or u <= 0:
+        return f"{x:.10g}"
+    places = 1 - math.floor(math.log10(u))
+    if 0 <= places <= 16 and (1e-3 <= abs(x) < 1e9 or x == 0):
+        return f"{x:.{places}f}"
+    digits = max(math.floor(math.log10(abs(x))) - math.floor(math.log10(u)) + 2, 2) \
+        if x != 0 else 2
+    return f"{x:.{min(digits, 17) - 1}e}"
+
+
+def percent_change(ch: float) -> str:
+    """A relative change in per cent with the digits that show it: ``−0.0042 %``, not
+    ``−0.0 %``; exactly zero reads ``no change``."""
+    if ch == 0:
+        return "unchanged"
+    pc = 100 * ch
+    text = f"{pc:+.1f}" if abs(pc) >= 0.1 else f"{pc:+.2g}"
+    return text.replace("-", "−") + " %"
+
+
+def plain(v: object) -> str:
+    """A diagnostic value in words: no raw None/True/False (an auditor reads "not computed",
+    "yes", "no"); floats to ten significant digits."""
+    if v is None:
+        return "not computed"
+    if v is True:
+        return "yes"
+    if v is False:
+        return "no"
+    if isinstance(v, float):
+        if not math.isfinite(v):
+            return "∞" if v > 0 else ("−∞" if v < 0 else "not a number")
+        return f"{v:.10g}"
+    return str(v)
+
+
+def _is_uncertainty(key: str) -> bool:
+    k = key.lower()
+    return (k.startswith("u_") or k in ("u", "std_errors", "standard_uncertainty")
+            or k.endswith(("_standard_uncertainty", "_uncertainty", "_sd", "_sd_v"))
+            or k.startswith(("residual_sd", "u(")))
+
+
+def _u_for(d: dict, k: str, i: int | None = None) -> float | None:
+    keys = (f"u_{k}", f"{k}_u", f"{k}_uncertainty", f"{k}_standard_uncertainty") + \
+        _U_OF.get(k, ())
+    for key in keys:
+        u = d.get(key)
+        if isinstance(u, (int, float)) and not isinstance(u, bool):
+            return float(u)
+    if k == "params" and isinstance(d.get("std_errors"), list) and i is not None:
+        se = d["std_errors"]
+        if i < len(se) and isinstance(se[i], (int, float)):
+            return float(se[i])
+    return None
+
+
+def diagnostic_lines(d: dict, prefix: str = "", *, full: bool = False) -> list[str]:
     """An input module's diagnostics as ``key: value`` lines.
 
     Parameters
@@ -99,13 +169,26 @@ def diagnostic_lines(d: dict, prefix: str = "") -> list[str]:
         JSON-ready diagnostics; nested dicts become dotted keys.
     prefix : str, default ""
         Put before every key (used for the nesting).
+    full : bool, default False
+        Every float at full precision (``repr``), lists of any length.
 
     Returns
     -------
     list of str
         One line per leaf. Figures are listed by title (the report draws them); lists of up
-        to six plain values are shown, longer ones are counted; floats get 6 significant digits.
+        to six plain values are shown, longer ones are counted. A float whose uncertainty sits
+        beside it (``u_X``, ``X_uncertainty``, ``params`` with ``std_errors``, a
+        ``correction`` with its ``standard_uncertainty`` …) is shown to the digits that
+        uncertainty supports, others to ten significant digits; None, True and False read
+        "not computed", "yes" and "no".
     """
+    def one(k: str, x: object, i: int | None = None) -> str:
+        if full and isinstance(x, float):
+            return repr(x)
+        if isinstance(x, float) and _is_uncertainty(k):
+            return fmt_u(x)             # two significant digits (JCGM 100 §7.2.6)
+        return with_u(x, _u_for(d, k, i)) if isinstance(x, float) else plain(x)
+
     out = []
     for k, v in d.items():
         key = f"{prefix}{k}"
@@ -113,30 +196,29 @@ def diagnostic_lines(d: dict, prefix: str = "") -> list[str]:
             titles = [f.get("title") or f.get("id", "") for f in v if isinstance(f, dict)]
             out.append(f"{key}: {'; '.join(titles)} (drawn in the report)")
         elif isinstance(v, dict):
-            out += diagnostic_lines(v, key + ".")
+            out += diagnostic_lines(v, key + ".", full=full)
         elif isinstance(v, list):
             if not v:
                 out.append(f"{key}: none")
-            elif len(v) <= 6 and all(isinstance(x, (int, float, str, bool)) or x is None
-                                     for x in v):
-                out.append(f"{key}: " + ", ".join(fmt_num(x, 6) if isinstance(x, float)
-                                                  else str(x) for x in v))
+            elif (len(v) <= 6 or full) and all(isinstance(x, (int, float, str, bool))
+                                               or x is None for x in v):
+                out.append(f"{key}: " + ", ".join(one(k, x, i) for i, x in enumerate(v)))
             else:
                 out.append(f"{key}: [{len(v)} entries; see --json]")
-        elif isinstance(v, float):
-            out.append(f"{key}: {fmt_num(v, 6)}")
         else:
-            out.append(f"{key}: {v}")
+            out.append(f"{key}: {one(k, v)}")
     return out
 
 
-def explain_term_text(expl: Explanation) -> str:
+def explain_term_text(expl: Explanation, *, full: bool = False) -> str:
     """The fixed-section answer for one term, once per measurand whose budget holds it.
 
     Parameters
     ----------
     expl : Explanation
         From :func:`budget.explain.explain_term`.
+    full : bool, default False
+        Estimates and diagnostics at full precision (``repr`` of the record's floats).
 
     Returns
     -------
@@ -153,9 +235,11 @@ def explain_term_text(expl: Explanation) -> str:
         head = f"{t.name} in the budget of {a.measurand}   ({expl.title})"
         out += ["", head, "-" * min(len(head), WIDTH)] if out else [head, "-" * min(len(head), WIDTH)]
         out += section("What it is", a.description or "(no description in the spec)")
-        out += section("Estimate", f"{t.name} = {t.value:.12g}{unit}")
+        shown_x = repr(float(t.value)) if full else with_u(float(t.value),
+                                                            t.standard_uncertainty)
+        out += section("Estimate", f"{t.name} = {shown_x}{unit}")
         out += section("Std uncertainty", f"u({t.name}) = {fmt_u(t.standard_uncertainty)}{unit}"
-                       f" (k = 1; full precision {t.standard_uncertainty:.6g})")
+                       f" (k = 1; full precision {t.standard_uncertainty!r})")
         out += section("Distribution", distribution_words(a.distribution, t.unit))
         out += section("  why", a.distribution_reason or "(not stated)")
         out += section("Degrees of freedom", f"ν = {fmt_dof(t.dof)}")
@@ -192,10 +276,11 @@ def explain_term_text(expl: Explanation) -> str:
                            "its diagnostics are shown above")
         elif a.module_input:
             shown.add(a.module_input)
-            diag = diagnostic_lines(a.diagnostics)
+            diag = diagnostic_lines(a.diagnostics, full=full)
             more = len(diag) - _MAX_DIAGNOSTIC_LINES
-            diag = diag[:_MAX_DIAGNOSTIC_LINES] + ([f"… {more} more lines; see --json"]
-                                                   if more > 0 else [])
+            if not full:
+                diag = diag[:_MAX_DIAGNOSTIC_LINES] + (
+                    [f"… {more} more lines; see --full or --json"] if more > 0 else [])
             out += section(f"Module '{a.module_kind}'", f"input [inputs.{a.module_input}]")
             for ln in diag:
                 out += section("", ln)
@@ -205,7 +290,7 @@ def explain_term_text(expl: Explanation) -> str:
             out += section("Note", n)
         for k, w in enumerate(a.what_if):
             change = "" if k == 0 or w.relative_change is None else \
-                f" ({100 * w.relative_change:+.1f} %)"
+                f" ({percent_change(w.relative_change)})"
             out += section("What if" if k == 0 else "",
                            f"{w.label + ':':<20}U = {fmt_u(w.expanded_uncertainty)}{munit}{change}"
                            f"; u_c = {fmt_u(w.standard_uncertainty)}, k = {w.coverage_factor:.2f}"
