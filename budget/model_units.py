@@ -16,6 +16,7 @@ Runs once after :func:`budget.model.build_model` and before any number is propag
 
 from __future__ import annotations
 
+import math
 from dataclasses import replace
 
 from . import expression as ex
@@ -115,6 +116,8 @@ def apply_units(spec, model: Model, qs: list[Quantity], unstated: set[str],
             raise SpecError(f"{text!r} is an offset scale; an output is shown in a unit of "
                             f"differences ({shown.si})", file=spec.path, line=uline,
                             field=f"units.{o}")
+        if work is None and shown.dimensionless and shown.scale != 1.0:
+            _refuse_double_scale(spec, o, parsed[o], text, shown.scale, uline)
         have = work.dims if work is not None else d
         if have is None:
             if shown.scale != 1.0:
@@ -134,3 +137,22 @@ def apply_units(spec, model: Model, qs: list[Quantity], unstated: set[str],
     if trees != model.trees:
         model = replace(model, trees=trees, _compiled={})
     return model, labels
+
+
+def _refuse_double_scale(spec, o: str, tree: ex.Node, text: str, scale: float,
+                         line: int | None) -> None:
+    """Refuse a dimensionless output written as ``1e6 * (...)`` and shown in a scaled unit
+    (``µA/A``, ``10⁻⁶``): the display unit scales it again (a result 10⁶ too large)."""
+    factor = None
+    if isinstance(tree, ex.Bin) and tree.op == "*":
+        for side in (tree.a, tree.b):
+            if isinstance(side, ex.Num) and side.value > 0 and side.value != 1.0:
+                p = math.log10(side.value)
+                if abs(p - round(p)) < 1e-12:
+                    factor = side.value
+    if factor is not None:
+        raise SpecError(f"model.{o} multiplies by {factor:g} and the display unit {text!r} "
+                        f"multiplies by {1 / scale:g} again, so the number shown would carry "
+                        f"both factors: write {o} as the plain ratio (e.g. I / (n * e * f) - "
+                        f"1) and let {text!r} scale it", file=spec.path, line=line,
+                        field=f"units.{o}")

@@ -115,3 +115,15 @@ def test_compare_refuses_another_dimension(texts, tmp_path):
     assert r.returncode == 2
     lines = r.stderr.strip().splitlines()
     assert len(lines) == 1 and "b.json" in lines[0] and "dimension" in lines[0], r.stderr
+
+
+def test_relative_deviation_scaled_once():
+    # x = 1 + 2e-7 by construction: x − 1 shown in µA/A is 0.2 (µA/A = 1e-6, SI Brochure
+    # Table 7 prefixes); written 1e6·(x − 1) with the same display unit it is refused
+    from budget.errors import SpecError
+    text = ('[model]\nd = "{e}"\n[units]\nd = "µA/A"\n[monte_carlo]\nenabled = false\n'
+            "[inputs.x]\nvalue = 1.0000002\nstandard_uncertainty = 1e-7\n")
+    m = evaluate(parse_spec(text.format(e="x - 1")), monte_carlo_enabled=False).measurand("d")
+    assert m.unit == "µA/A" and m.value == near(0.2, rel=1e-8)
+    with pytest.raises(SpecError, match="multiplies by 1e"):
+        evaluate(parse_spec(text.format(e="1e6 * (x - 1)")), monte_carlo_enabled=False)
