@@ -15,7 +15,7 @@ from numeric import near
 from scipy import stats
 
 from budget import evaluate
-from budget.coverage import coverage_probability_of, dof_from_coverage_factor
+from budget.coverage import coverage_probability_of, describe_inference, dof_from_coverage_factor
 from budget.errors import BudgetError, SpecError
 from budget.inputs import InputContext, run_module
 from budget.spec import parse_spec
@@ -262,3 +262,18 @@ def test_fractional_nu_truncated_or_interpolated_as_g64_allows(rounding, k):
     assert m.coverage_factor == near(k, abs=0.0005)
     note = next(n for n in b.run["notes"] if n.startswith("Y: ν_eff = 3.7"))
     assert "G.6.4" in note and ("2.87" in note if rounding == "floor" else "3.18" in note)
+
+
+def test_inference_text_states_the_t_quantile_and_nu():
+    # JCGM 100 Table G.2: t_95.45(4) = 2.87 (table digits); scipy.stats.t gives 2.8693, the
+    # four digits the provenance text quotes; t_95(4) = 2.78 (table), 2.7764 (scipy)
+    assert f"{stats.t.ppf((1 + 0.9545) / 2, 4):.4f}" == "2.8693"
+    text = describe_inference(2.87, 0.9545, 4.0)
+    assert "ν = 4 inferred" in text and "t_p(4) = 2.8693" in text, text
+    assert "t_p(4) = 2.7764" in describe_inference(2.78, 0.95, 4.0)
+    # project convention (display): a fractional ν is shown to one decimal below 100 and to
+    # whole units from 100 on; ∞ when k is the normal quantile
+    assert "ν = 3.7 inferred" in describe_inference(2.9, 0.95, 3.72)
+    assert "ν = 100 inferred" in describe_inference(1.984, 0.95, 100.4)
+    assert "ν = 99.6 inferred" in describe_inference(1.984, 0.95, 99.62)
+    assert describe_inference(1.96, 0.95, math.inf).startswith("ν = ∞ inferred")

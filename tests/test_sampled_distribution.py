@@ -103,3 +103,16 @@ def test_tail_rule_with_as_many_samples_as_points():
     d = Distribution.sampled(np.arange(9.0), points=9)
     z = np.diff(np.asarray(d.quantiles))
     assert z / z[1] == near([2.0, 1, 1, 1, 1, 1, 1, 2.0], rel=1e-12)
+    # M = 11 samples 0 … 10, 9 points: tail = round(11/8) = 1; inside q_j = 1.25·j (linear
+    # interpolation of equally spaced samples), q_0 = 2·0 − 1.25 = −1.25, q_8 = 2·10 − 8.75
+    # = 11.25: outer spacing 2.5, inner 1.25 (a tail of 2 samples would give 1.5, ratio 1.2)
+    d = Distribution.sampled(np.arange(11.0), points=9)
+    z = np.diff(np.asarray(d.quantiles))
+    assert z / z[1] == near([2.0, 1, 1, 1, 1, 1, 1, 2.0], rel=1e-12)
+
+
+def test_zero_sd_gives_a_constant():
+    # project convention: a sampled quantity given sd = 0 is a constant (a normal of width 0),
+    # not a quantile table scaled to nothing
+    d = Distribution.sampled(np.arange(300.0), mean=5.0, sd=0.0)
+    assert d.kind == "normal" and d.mean == 5.0 and d.std == 0.0
