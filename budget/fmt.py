@@ -8,7 +8,8 @@ from __future__ import annotations
 
 import math
 
-__all__ = ["round_pair", "fmt_u", "fmt_value", "fmt_num", "fmt_dof", "fmt_share", "fmt_rows"]
+__all__ = ["round_pair", "fmt_u", "fmt_value", "fmt_num", "fmt_dof", "fmt_share", "fmt_rows",
+           "with_u", "plain"]
 
 
 def _exp10(x: float) -> int:
@@ -138,3 +139,35 @@ def fmt_rows(rows: str, max_ranges: int = 4) -> str:
                 f"{n_used} rows used; every range in the record")
     return (f"rows in {len(ranges)} ranges from {dash(*ranges[0])} to {dash(*ranges[-1])}; "
             f"{n_used} rows used; every range in the record")
+
+
+def with_u(x: float, u: float | None) -> str:
+    """``x`` with digits chosen from its uncertainty ``u``: to the place of u's second
+    significant digit (JCGM 100 §7.2.6), so a correction of 0.45·10⁻⁶ on a ratio near 1 shows;
+    without a usable ``u`` ten significant digits (the record keeps full precision)."""
+    if not isinstance(x, float) or not math.isfinite(x):
+        return plain(x)
+    if u is None or not isinstance(u, (int, float)) or not math.isfinite(u) or u <= 0:
+        return f"{x:.10g}"
+    places = 1 - math.floor(math.log10(u))
+    if 0 <= places <= 16 and (1e-3 <= abs(x) < 1e9 or x == 0):
+        return f"{x:.{places}f}"
+    digits = max(math.floor(math.log10(abs(x))) - math.floor(math.log10(u)) + 2, 2) \
+        if x != 0 else 2
+    return f"{x:.{min(digits, 17) - 1}e}"
+
+
+def plain(v: object) -> str:
+    """A diagnostic value in words: no raw None/True/False (an auditor reads "not computed",
+    "yes", "no"); floats to ten significant digits."""
+    if v is None:
+        return "not computed"
+    if v is True:
+        return "yes"
+    if v is False:
+        return "no"
+    if isinstance(v, float):
+        if not math.isfinite(v):
+            return "∞" if v > 0 else ("−∞" if v < 0 else "not a number")
+        return f"{v:.10g}"
+    return str(v)

@@ -19,6 +19,7 @@ from ..fmt import fmt_dof, fmt_num, fmt_rows, fmt_share, fmt_u
 from ..nominal import nominal_point, nominal_text
 from ..result import Budget, Measurand
 from . import figures as figs
+from .diagnostic_labels import diagnostic_table
 from .model_view import model_view, symbol_html
 from .statement import (
     coverage_statement,
@@ -201,48 +202,6 @@ def _input_block(b: Budget, q) -> dict[str, Any]:
     }
 
 
-def _scalar(v: Any) -> str | None:
-    if isinstance(v, bool):
-        return "yes" if v else "no"
-    if isinstance(v, (int, float)):
-        return sci(_trim(fmt_num(float(v), 10))) if isinstance(v, float) else str(v)
-    if isinstance(v, str):
-        return v
-    if v is None:
-        return "–"
-    return None
-
-
-def _trim(text: str) -> str:
-    """``0.05000000000`` -> ``0.05``; ``1.000000118e+09`` stays (zeros only at the end go)."""
-    mant, e, exp = text.partition("e")
-    if "." in mant:
-        mant = mant.rstrip("0").rstrip(".")
-    return mant + e + exp
-
-
-def _diagnostic_rows(diag: dict[str, Any]) -> list[tuple[str, str]]:
-    """Scalar diagnostics, one level of nesting flattened as ``fit.birge_ratio``."""
-    rows: list[tuple[str, str]] = []
-    nested: list[tuple[str, str]] = []
-    for k, v in diag.items():
-        if k == "figures":
-            continue
-        s = _scalar(v)
-        if s is not None:
-            rows.append((k, fmt_rows(s) if isinstance(v, str) and "rows" in k else s))
-        elif isinstance(v, dict):
-            for k2, v2 in v.items():
-                s2 = _scalar(v2)
-                if s2 is not None:
-                    nested.append((f"{k}.{k2}", s2))
-    # a module's top-level scalars are its own summary; nested tables (e.g. the full fit)
-    # repeat them, so they are shown only when the summary is thin
-    if len(rows) < 8:
-        rows += nested
-    return rows[:_MAX_DIAGNOSTICS]
-
-
 def _module_blocks(b: Budget, *, draw: bool) -> list[dict[str, Any]]:
     out = []
     modules = b.run.get("modules") or {}
@@ -268,7 +227,8 @@ def _module_blocks(b: Budget, *, draw: bool) -> list[dict[str, Any]]:
         out.append({"name": name, "module": _s(mod.get("module")),
                     "expression": _s(mod.get("expression")),
                     "quantities": [str(x) for x in mod.get("quantities") or []],
-                    "diagnostics": _diagnostic_rows(diag), "figures": drawn})
+                    "diagnostics": diagnostic_table(diag, _MAX_DIAGNOSTICS),
+                    "figures": drawn})
     return out
 
 
@@ -349,12 +309,15 @@ def build_context(b: Budget, *, certificate: bool = False, draft: bool = True,
               ("Measurand", measurand_text), ("Item", item),
               ("Customer", rep.get("customer", "").strip()),
               ("Measured by", rep.get("operator", "").strip()), ("Approved by", approver)]
-    corr = []
+    corr, tied = [], []
     names = list(b.correlation_names)
     if len(names) > 1:
         for i, row in enumerate(b.correlation_matrix):
             for j in range(i + 1, len(row)):
-                corr.append((names[i], names[j], f"{row[j]:.3f}".replace("-", "−")))
+                # |r| = 1.000 to three decimals: one output is, to first order, a linear
+                # function of the other (dev_ppm of I): a table row that tells nothing
+                (tied if abs(row[j]) >= 0.9995 else corr).append(
+                    (names[i], names[j], f"{row[j]:.3f}".replace("-", "−")))
     files = [{"path": _s(f.get("path")), "sha256": _s(f.get("sha256"))}
              for f in run.get("files") or [] if isinstance(f, dict)]
     settings = [
@@ -373,6 +336,7 @@ def build_context(b: Budget, *, certificate: bool = False, draft: bool = True,
         "input_correlations": [(str(a), str(c), f"{float(r):.3f}".replace("-", "−"))
                                for a, c, r in run.get("input_correlations") or []],
         "measurand_correlations": corr, "modules": _module_blocks(b, draw=figures),
+        "measurand_tied": tied,
         "cautions": _cautions(b), "files": files, "settings": settings,
         "model": [(str(k), str(v)) for k, v in (run.get("model") or {}).items()],
         "model_view": view,

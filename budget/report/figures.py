@@ -31,6 +31,7 @@ from __future__ import annotations
 import base64
 import io
 import math
+import re
 from collections.abc import Sequence
 from typing import Any
 
@@ -276,6 +277,11 @@ def module_figure(fig: dict[str, Any], where: str = "figure") -> str:
     """Draw one module figure dict (checked with :func:`check_figure`); returns SVG text."""
     import numpy as np
     f = check_figure(fig, where)
+    ylabel, yf = f["ylabel"], 1.0
+    if f["yscale"] == "linear":
+        ylabel, yf = _scaled_axis(f["ylabel"], [v for s in f["series"] for k in
+                                                ("y", "y_low", "y_high", "yerr")
+                                                for v in s.get(k) or () if v is not None])
     with _rc():
         mfig = _new_figure(3.0)
         ax = mfig.add_subplot()
@@ -283,19 +289,24 @@ def module_figure(fig: dict[str, Any], where: str = "figure") -> str:
             sl = _thin(len(s["x"]))
             x = np.asarray(s["x"])[sl]
             label = s["label"] or None
+
+            def y(key: str, s=s, sl=sl):
+                return np.asarray(s[key], dtype=float)[sl] * yf
             if s["style"] == "band":
-                ax.fill_between(x, np.asarray(s["y_low"])[sl], np.asarray(s["y_high"])[sl],
-                                alpha=0.25, lw=0, label=label)
+                ax.fill_between(x, y("y_low"), y("y_high"), alpha=0.25, lw=0, label=label)
             elif s["style"] == "line":
-                ax.plot(x, np.asarray(s["y"])[sl], lw=1.2, label=label)
+                ax.plot(x, y("y"), lw=1.2, label=label)
             else:
-                yerr = np.asarray(s["yerr"])[sl] if "yerr" in s else None
-                ax.errorbar(x, np.asarray(s["y"])[sl], yerr=yerr, fmt="o", ms=3, lw=0.8,
+                yerr = y("yerr") if "yerr" in s else None
+                ax.errorbar(x, y("y"), yerr=yerr, fmt="o", ms=3, lw=0.8,
                             capsize=2, label=label)
         ax.set_xscale(f["xscale"])
         ax.set_yscale(f["yscale"])
         ax.set_xlabel(_wrap(f["xlabel"], 90))
-        ax.set_ylabel(_wrap(f["ylabel"], 34))   # ~2.3 in of axis height at 8 pt
+        ax.set_ylabel(_wrap(ylabel, 34))   # ~2.3 in of axis height at 8 pt
+        if f["yscale"] == "linear":
+            # plain tick values: no "1e-9" or "+9.61e-2" written at the end of the axis
+            ax.ticklabel_format(useOffset=False, axis="y", style="plain")
         if any(s["label"] for s in f["series"]):
             # below the axes: a record of hundreds of points leaves no empty corner inside
             mfig.legend(loc="outside lower center", ncols=2, frameon=False)
@@ -303,6 +314,32 @@ def module_figure(fig: dict[str, Any], where: str = "figure") -> str:
             # dates as decimal years (2026.4...) must not turn into "+2.026e3" offsets
             ax.ticklabel_format(useOffset=False, axis="x", style="plain")
         return _to_svg(mfig)
+
+
+_PREFIX = {-15: "f", -12: "p", -9: "n", -6: "µ", -3: "m", 3: "k", 6: "M", 9: "G"}
+_SUPER = str.maketrans("-0123456789", "⁻⁰¹²³⁴⁵⁶⁷⁸⁹")
+
+
+def _scaled_axis(label: str, values: list[float]) -> tuple[str, float]:
+    """A label and a factor that put an axis's tick values in plain numbers (no offset or
+    "1e-9" text at the axis end): values below 10⁻³ or from 10⁵ on are shown in a multiple of
+    10³ that the label states — an SI prefix on a simple unit ("(V)" → "(nV)"), else
+    "(10⁻⁹ unit)" (SI Brochure §3, prefixes)."""
+    top = max((abs(v) for v in values if math.isfinite(v)), default=0.0)
+    if top == 0 or 1e-3 <= top < 1e5:
+        return label, 1.0
+    p = 3 * math.floor(math.log10(top) / 3)
+    m = re.fullmatch(r"(.*)\(([^()]*)\)\s*", label)
+    unit = m.group(2).strip() if m else ""
+    if m and p in _PREFIX and re.fullmatch(r"(V|A|Ω|s|Hz|W|F|H|C|K|m|g)", unit):
+        new = f"{m.group(1)}({_PREFIX[p]}{unit})"
+    elif m and unit in ("", "1"):
+        new = f"{m.group(1)}(10{str(p).translate(_SUPER)})"
+    elif m:
+        new = f"{m.group(1)}(10{str(p).translate(_SUPER)} {unit})"
+    else:
+        new = f"{label} (10{str(p).translate(_SUPER)})"
+    return new, 10.0 ** -p
 
 
 # --------------------------------------------------------------------------- comparison

@@ -3,11 +3,10 @@ fixed-section answer for one term (the auditor's "where does this number come fr
 
 from __future__ import annotations
 
-import math
 from typing import TYPE_CHECKING
 
 from ..budget_rows import column_headings, distribution_name, sensitivity_unit, text_bar
-from ..fmt import fmt_dof, fmt_num, fmt_rows, fmt_share, fmt_u, fmt_value
+from ..fmt import fmt_dof, fmt_num, fmt_rows, fmt_share, fmt_u, fmt_value, plain, with_u
 from .tables import WIDTH, section, table
 from .tables import unit_suffix as _unit
 
@@ -97,22 +96,6 @@ _U_OF = {"correction": ("standard_uncertainty",), "value": ("standard_uncertaint
          "mean_difference": ("u",), "mean": ("u", "standard_uncertainty")}
 
 
-def with_u(x: float, u: float | None) -> str:
-    """``x`` with digits chosen from its uncertainty ``u``: to the place of u's second
-    significant digit (JCGM 100 §7.2.6), so a correction of 0.45·10⁻⁶ on a ratio near 1 shows;
-    without a usable ``u`` ten significant digits (the record keeps full precision)."""
-    if not isinstance(x, float) or not math.isfinite(x):
-        return plain(x)
-    if u is None or not isinstance(u, (int, float)) or not math.isfinite(u) or u <= 0:
-        return f"{x:.10g}"
-    places = 1 - math.floor(math.log10(u))
-    if 0 <= places <= 16 and (1e-3 <= abs(x) < 1e9 or x == 0):
-        return f"{x:.{places}f}"
-    digits = max(math.floor(math.log10(abs(x))) - math.floor(math.log10(u)) + 2, 2) \
-        if x != 0 else 2
-    return f"{x:.{min(digits, 17) - 1}e}"
-
-
 def percent_change(ch: float) -> str:
     """A relative change in per cent with the digits that show it: ``−0.0042 %``, not
     ``−0.0 %``; exactly zero reads ``no change``."""
@@ -121,22 +104,6 @@ def percent_change(ch: float) -> str:
     pc = 100 * ch
     text = f"{pc:+.1f}" if abs(pc) >= 0.1 else f"{pc:+.2g}"
     return text.replace("-", "−") + " %"
-
-
-def plain(v: object) -> str:
-    """A diagnostic value in words: no raw None/True/False (an auditor reads "not computed",
-    "yes", "no"); floats to ten significant digits."""
-    if v is None:
-        return "not computed"
-    if v is True:
-        return "yes"
-    if v is False:
-        return "no"
-    if isinstance(v, float):
-        if not math.isfinite(v):
-            return "∞" if v > 0 else ("−∞" if v < 0 else "not a number")
-        return f"{v:.10g}"
-    return str(v)
 
 
 def _is_uncertainty(key: str) -> bool:

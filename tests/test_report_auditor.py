@@ -1,0 +1,73 @@
+"""The report for an auditor (issue 13 item 4): module diagnostics as labelled rows with units
+and GUM rounding, figure axes without offset notation, no table for the trivial correlation
+of an output with a function of itself.
+
+Sources: JCGM 100:2008 §7.2.6 (an uncertainty to two significant digits, the value to the same
+place); SI Brochure (9th ed., 2019) §3 (prefixes: n = 10⁻⁹); the correlation of y and 2y is
+exactly 1 (JCGM 100 §5.2.2 with c = 2, by hand). The SVG is read back with xml.etree.
+"""
+
+from __future__ import annotations
+
+import re
+import xml.etree.ElementTree as ET
+
+from budget.engine import evaluate
+from budget.report import render_html
+from budget.report.diagnostic_labels import diagnostic_table, label_of
+from budget.report.figures import module_figure
+from budget.spec import parse_spec
+
+
+def test_labels_carry_words_and_units():
+    assert label_of("max_abs_residual_V") == "largest |residual| (V)"
+    assert label_of("mean_difference", "V") == "mean difference (V)"
+    assert label_of("voltage_coefficient_per_V") == "voltage coefficient (/V)"
+    assert label_of("drift_per_year", "Ω") == "drift per year (Ω/a)"
+    assert label_of("birge_ratio") == "Birge ratio"
+
+
+def test_values_rounded_as_the_gum_says_and_no_raw_python():
+    rows = dict(diagnostic_table({
+        "unit": "V", "mean_difference": 0.0961306558989, "u": 3.727399428819701e-08,
+        "ratio_G": 1.0000003359, "u_ratio_G": 5.89288e-9, "inflated": False,
+        "fit": {"chi2": None}, "noise_density": 4.003446017878479e-06}))
+    assert rows["mean difference (V)"] == "0.096130656"     # to the place of u's 2nd digit
+    assert rows["standard uncertainty (V)"] == "3.7×10⁻⁸"   # two significant digits
+    assert rows["gain ratio G"] == "1.0000003359"           # the 0.34·10⁻⁶ correction shows
+    assert rows["inflated"] == "no"
+    assert rows["fit: χ²"] == "not computed"
+    assert rows["noise density"] == "4.00345×10⁻⁶"          # no u beside it: six digits
+
+
+def test_axis_in_nanovolts_without_offset_text():
+    fig = {"id": "res", "title": "residuals", "xlabel": "reference (V)",
+           "ylabel": "reading − fitted line (V)", "xscale": "linear", "yscale": "linear",
+           "series": [{"label": "residuals", "style": "points", "x": [-0.2, 0.0, 0.2],
+                       "y": [1.3e-9, -4.4e-9, 2.1e-9]}]}
+    svg = module_figure(fig)
+    texts = " ".join(t.text or "" for t in ET.fromstring(svg).iter()
+                     if t.tag.endswith("text"))
+    assert "(nV)" in texts
+    assert not re.search(r"1e[−-]9|×10|10⁻⁹", texts)        # no offset or multiplier text
+
+
+def test_trivial_correlation_table_left_out():
+    spec = parse_spec("""
+[budget]
+title = "y and 2y (invented numbers)"
+[model]
+y = "a + b"
+z = "2 * y"
+[monte_carlo]
+enabled = false
+[inputs.a]
+value = 1.0
+standard_uncertainty = 0.1
+[inputs.b]
+value = 2.0
+standard_uncertainty = 0.2
+""")
+    html = render_html(evaluate(spec))
+    assert "Between measurands" not in html
+    assert "y and z: correlation coefficient 1.000" in re.sub(r"\s+", " ", html)
