@@ -12,6 +12,7 @@ from __future__ import annotations
 
 import json
 import math
+from dataclasses import replace
 
 import numpy as np
 import pytest
@@ -19,6 +20,7 @@ from logbook_helpers import SEASON, season_records
 from numeric import near
 from scipy import stats
 
+from budget.errors import DataError
 from budget.logbook import Logbook, add_files, compute_trend
 from budget.logbook.gls import Sums, cov_of_means, mean_stats
 from budget.logbook.store import Series, SeriesRow
@@ -187,3 +189,23 @@ def test_season_has_enough_runs(season_trend):
                                                       "amplifier-voltmeter"}
     dates = sorted(p.date_start for p in season_trend.points)
     assert dates[0][:7] == "2026-06" and dates[-1][:7] == "2027-05"
+
+
+def test_trend_converts_records_in_other_units_of_one_dimension():
+    # the same deviations, half of the records stated in 10⁻⁹ (×1000 the number in ppm; SI
+    # Brochure 9th ed. Table 7 prefixes): the trend is the same, in the newest record's unit
+    pts = [("A", f"2027-01-{d:02d}", 0.1 * (d % 3), 0.2) for d in range(1, 9)]
+    base = _series(pts)
+    mixed = Series(base.measurand, tuple(
+        replace(r, unit="10⁻⁹", value=r.value * 1e3, standard_uncertainty=r.standard_uncertainty
+                * 1e3, expanded_uncertainty=r.expanded_uncertainty * 1e3) if r.id % 2 else r
+        for r in base.rows), 0, (), ())
+    a, b = compute_trend(base), compute_trend(mixed)
+    assert b.unit == "ppm" and any("converted to ppm" in n for n in b.notes)
+    assert b.chains[0].mean.value == near(a.chains[0].mean.value, rel=1e-12)
+    assert b.chains[0].mean.standard_uncertainty == near(
+        a.chains[0].mean.standard_uncertainty, rel=1e-12)
+    volt = Series(base.measurand, tuple(replace(r, unit="V") if r.id == 1 else r
+                                        for r in base.rows), 0, (), ())
+    with pytest.raises(DataError, match="different dimensions"):
+        compute_trend(volt)

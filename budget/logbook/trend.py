@@ -26,7 +26,7 @@ from __future__ import annotations
 import math
 from bisect import bisect_left, bisect_right
 from collections.abc import Sequence
-from dataclasses import dataclass, field
+from dataclasses import dataclass, field, replace
 from typing import Any
 
 import numpy as np
@@ -167,6 +167,34 @@ def _cal_text(c: dict[str, Any]) -> str:
 
 
 # --------------------------------------------------------------------------- building blocks
+def _one_unit(series: Series, notes: list[str]) -> tuple[Series, list[str]]:
+    """The series in one unit: the newest record's; records in another unit of the same
+    dimension (ppm and µA/A, A and pA) converted, another dimension refused."""
+    from ..units import UnitError, display_factor, parse_unit
+    target = series.rows[-1].unit
+    if all(r.unit == target for r in series.rows):
+        return series, [target]
+    try:
+        want = parse_unit(target or "1")
+        have = {u: parse_unit(u or "1") for u in {r.unit for r in series.rows}}
+    except UnitError:
+        have = None
+    if have is None or any(h.dims != want.dims for h in have.values()):
+        units = sorted({r.unit for r in series.rows})
+        raise DataError(f"'{series.measurand}' is stored in units of different dimensions "
+                        f"({', '.join(units)}); a trend needs one", field="--measurand")
+    f = {u: display_factor(h, want) for u, h in have.items()}
+    by_id = {r.id: f[r.unit] for r in series.rows}
+    rows = tuple(replace(r, unit=target, value=r.value * f[r.unit],
+                         standard_uncertainty=r.standard_uncertainty * f[r.unit],
+                         expanded_uncertainty=r.expanded_uncertainty * f[r.unit])
+                 for r in series.rows)
+    terms = tuple((rid, c * by_id.get(rid, 1.0), key) for rid, c, key in series.terms)
+    notes.append(f"records stated in other units ({', '.join(sorted(set(f) - {target}))}) "
+                 f"were converted to {target or '1'}")
+    return replace(series, rows=rows, terms=terms), [target]
+
+
 def _shared_matrix(series: Series, ids: Sequence[int]) -> np.ndarray:
     """B[i, k]: signed contribution of run i to shared term k (keys in ≥ 2 of the runs)."""
     pos = {rid: i for i, rid in enumerate(ids)}
@@ -221,17 +249,16 @@ def compute_trend(series: Series) -> Trend:
     Raises
     ------
     DataError
-        No dated record with this measurand, or the measurand in two different units.
+        No dated record with this measurand, or the measurand in units of different
+        dimensions (other units of one dimension are converted to the newest record's).
     """
     rows = series.rows
     if not rows:
         raise DataError(f"no dated record in the book has the measurand '{series.measurand}'",
                         field="--measurand")
-    units = sorted({r.unit for r in rows})
-    if len(units) > 1:
-        raise DataError(f"'{series.measurand}' is stored in several units ({', '.join(units)}); "
-                        "a trend needs one", field="--measurand")
     notes: list[str] = []
+    series, units = _one_unit(series, notes)
+    rows = series.rows
     if series.undated:
         notes.append(f"{series.undated} record(s) with this measurand have no readable "
                      "[report] measurement_date and are left out")
