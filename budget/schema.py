@@ -25,6 +25,7 @@ import re
 from collections.abc import Callable
 from functools import cache
 from importlib import resources
+from math import isfinite as _isfinite
 from typing import Any
 
 from .numbers import NumberError, checked, shown
@@ -228,6 +229,8 @@ def _type_check(schema: dict[str, Any]) -> _Check:
         return check_plain
     if types == ["number"] and not ranged:
         def check_number(data):
+            if type(data) is float and _isfinite(data):   # the common case, as checked()
+                return
             if isinstance(data, bool) or not isinstance(data, (int, float)):
                 raise SchemaViolation((), f"must be {words}; got {shown(data)}")
             try:
@@ -262,10 +265,13 @@ def _string_check(schema: dict[str, Any]) -> _Check:
 
 
 def _number(v, schema, path) -> None:
-    try:
-        x = checked(v)
-    except NumberError as exc:
-        raise SchemaViolation(path, str(exc)) from None
+    if type(v) is float and _isfinite(v):      # what checked() returns for a finite float
+        x = v
+    else:
+        try:
+            x = checked(v)
+        except NumberError as exc:
+            raise SchemaViolation(path, str(exc)) from None
     lo, hi = schema.get("minimum"), schema.get("maximum")
     xlo, xhi = schema.get("exclusiveMinimum"), schema.get("exclusiveMaximum")
     if lo is not None and x < lo:

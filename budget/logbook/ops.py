@@ -70,6 +70,17 @@ def _prepare_compressed(path: str) -> PreparedRecord | None:
         return None
 
 
+def _idle_cpus() -> int:
+    """CPUs not busy with other work (CPU count less the 1-minute load average), at most 4:
+    on a machine already running other jobs, worker processes only compete with them and the
+    add is slower than in one process (benchmarks/README.md, Logbook)."""
+    try:
+        load = os.getloadavg()[0]
+    except (AttributeError, OSError):      # pragma: no cover - no load average (Windows)
+        load = 0.0
+    return max(1, min(4, int((os.cpu_count() or 1) - load + 0.5)))
+
+
 def prepare_files(files: Sequence[str | Path], workers: int | None = None
                   ) -> list[PreparedRecord]:
     """Read and check every file, in order; the first refused file raises its error.
@@ -81,12 +92,13 @@ def prepare_files(files: Sequence[str | Path], workers: int | None = None
     Parameters
     ----------
     workers : int, optional
-        Worker processes (forked; 1 reads in this process). Default: one per CPU, up to 4,
-        when there are at least :data:`PARALLEL_FROM` files and the platform forks.
+        Worker processes (forked; 1 reads in this process). Default: one per idle CPU, up
+        to 4, when there are at least :data:`PARALLEL_FROM` files and the platform forks (on
+        a busy machine that is 1: the serial path).
     """
     files = [str(f) for f in files]
     if workers is None:
-        workers = min(os.cpu_count() or 1, 4) if len(files) >= PARALLEL_FROM else 1
+        workers = _idle_cpus() if len(files) >= PARALLEL_FROM else 1
     if workers < 2 or "fork" not in multiprocessing.get_all_start_methods():
         return [read_record_file(f) for f in files]
     try:
@@ -187,7 +199,8 @@ def add_files(book: str | Path, files: Sequence[str | Path], *,
               workers: int | None = None) -> list[int]:
     """Read and check every file, then add them all in one transaction; returns their ids.
 
-    ``workers``: see :func:`prepare_files` (default: in parallel from 256 files on).
+    ``workers``: see :func:`prepare_files` (default: in parallel from 256 files on, on idle
+    CPUs).
 
     Raises
     ------
