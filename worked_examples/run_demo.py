@@ -11,7 +11,6 @@ from __future__ import annotations
 import json
 import os
 import shutil
-import subprocess
 import sys
 import time
 from pathlib import Path
@@ -20,6 +19,7 @@ ROOT = Path(__file__).resolve().parent.parent
 OUT = ROOT / "demo-output"
 EX = ROOT / "worked_examples"
 DEMO_PASSPHRASE = "invented-demo-approver"  # demonstration only; see the module docstring
+sys.path.insert(0, str(ROOT))   # the package of this tree, as 'python -m budget' run here uses
 
 
 def rel(p: Path | str) -> str:
@@ -27,19 +27,32 @@ def rel(p: Path | str) -> str:
 
 
 def budget(*args, quiet: bool = False) -> None:
-    """Run one ``budget`` command, echoing it; stop the demo if it fails."""
+    """Run one ``budget`` command, echoing it; stop the demo if it fails.
+
+    The command runs in this process (``budget.cli.main``, exactly what ``python -m budget``
+    calls), so numpy, scipy, matplotlib and WeasyPrint are imported once for the whole demo
+    instead of once per command; ``quiet`` keeps its output and shows the last three lines.
+    """
+    import contextlib
+    import io
+
+    from budget.cli import main as budget_main
     shown = " ".join(rel(a) for a in args)
     print(f"$ budget {shown}", flush=True)
-    env = {**os.environ, "BUDGET_PASSPHRASE": DEMO_PASSPHRASE}
-    r = subprocess.run([sys.executable, "-m", "budget", *map(str, args)], cwd=ROOT, env=env,
-                       capture_output=quiet, text=True)
-    if r.returncode != 0:
+    out, err = io.StringIO(), io.StringIO()
+    with contextlib.ExitStack() as stack:
         if quiet:
-            sys.stdout.write(r.stdout)
-            sys.stderr.write(r.stderr)
-        sys.exit(f"demo stopped: 'budget {shown}' exited with {r.returncode}")
+            stack.enter_context(contextlib.redirect_stdout(out))
+            stack.enter_context(contextlib.redirect_stderr(err))
+        code = budget_main([str(a) for a in args])
+    sys.stdout.flush()
+    if code != 0:
+        if quiet:
+            sys.stdout.write(out.getvalue())
+            sys.stderr.write(err.getvalue())
+        sys.exit(f"demo stopped: 'budget {shown}' exited with {code}")
     if quiet:
-        tail = [ln for ln in r.stdout.splitlines() if ln.strip()][-3:]
+        tail = [ln for ln in out.getvalue().splitlines() if ln.strip()][-3:]
         for ln in tail:
             print(f"    {ln}")
 
@@ -50,8 +63,10 @@ def season(book: Path) -> str:
     invented resistor recalibration (the demo stops otherwise)."""
     records = OUT / "season"
     print(f"$ python {rel(EX / 'season' / 'make_records.py')} {rel(records)}", flush=True)
-    subprocess.run([sys.executable, str(EX / "season" / "make_records.py"), str(records)],
-                   cwd=ROOT, check=True)
+    sys.path.insert(0, str(EX / "season"))
+    from make_records import make_records  # the script's own function, in this process
+    written = make_records(records)
+    print(f"{len(written)} records written to {records}")
     budget("logbook", "add", *sorted(records.glob("*.json")), "--book", book, quiet=True)
     budget("logbook", "trend", "--book", book, "--pdf", OUT / "trend.pdf", "--json",
            OUT / "trend.json", quiet=True)
@@ -69,6 +84,8 @@ def season(book: Path) -> str:
 
 def main() -> None:
     start = time.monotonic()
+    os.chdir(ROOT)
+    os.environ["BUDGET_PASSPHRASE"] = DEMO_PASSPHRASE   # demonstration only (docstring)
     if OUT.exists():
         shutil.rmtree(OUT)
     (OUT / "pump").mkdir(parents=True)
