@@ -11,14 +11,15 @@ import numpy as np
 
 from . import __version__
 from . import expression as ex
+from .engine_mc import monte_carlo_outcomes
 from .errors import BudgetError, ComputationError, SpecError, did_you_mean
 from .inputs import InputContext, run_module
 from .inputs.direct import evaluate_direct, observations_of
 from .model import Model, build_model
 from .model_units import apply_units
-from .propagate import McmSettings, compare_lpu_mcm, monte_carlo, propagate_linear
+from .propagate import McmSettings, monte_carlo, propagate_linear
 from .propagate.lpu import correlation_groups, coverage_factor
-from .propagate.mcm import adaptive_batch_size, infinite_variance_inputs
+from .propagate.mcm import adaptive_batch_size
 from .quantity import Quantity
 from .result import Budget, Measurand, MonteCarlo, Term
 from .spec import Spec, check_trials
@@ -313,51 +314,13 @@ def evaluate(spec: Spec, *, trials: int | None | str = "spec", seed: int | None 
             mres = monte_carlo(model, qs, resolved.corr, settings, progress=progress,
                                intervals={m.name: (m.value - m.expanded_uncertainty,
                                                    m.value + m.expanded_uncertainty)
-                                          for m in measurands})
+                                          for m in measurands},
+                               linear_u={m.name: m.standard_uncertainty for m in measurands})
         except BudgetError as exc:
             raise _at_spec(exc, spec) from None
-        out = []
-        infinite = infinite_variance_inputs(qs, spec.t_for_finite_dof)
-        for m in measurands:
-            r = mres[m.name]
-            lo, hi = r.symmetric if spec.interval == "symmetric" else r.shortest
-            v = compare_lpu_mcm(m.value, m.expanded_uncertainty, m.standard_uncertainty, lo, hi,
-                                spec.significant_digits)
-            out.append(MonteCarlo(measurand=m.name, trials=r.trials, value=r.value,
-                                  standard_uncertainty=r.standard_uncertainty, interval_low=lo,
-                                  interval_high=hi, interval_kind=spec.interval,
-                                  validated=v.validated, tolerance=v.tolerance, d_low=v.d_low,
-                                  d_high=v.d_high, symmetric_interval=r.symmetric,
-                                  shortest_interval=r.shortest,
-                                  histogram_counts=r.histogram_counts,
-                                  histogram_edges=r.histogram_edges, adaptive=r.adaptive,
-                                  stabilised=r.stabilised,
-                                  linear_interval_probability=r.interval_probabilities.get(
-                                      m.name)))
-            heavy = [t.name for t in m.terms if t.sensitivity != 0.0 and t.name in infinite]
-            if heavy:
-                # a t distribution with ν ≤ 2 has no finite variance (JCGM 101 §6.4.9, memory):
-                # the trials' standard deviation estimates nothing and never settles
-                warnings.append(warn(
-                    "monte_carlo.u_undefined",
-                    f"{m.name}: the Monte Carlo standard uncertainty is not defined: "
-                    f"{', '.join(heavy)} is sampled from a t distribution with ν ≤ 2, which has "
-                    "no finite variance; the printed u is only the spread of these trials (and the "
-                    "adaptive procedure cannot stabilise it) — "
-                    "the coverage interval is meaningful, u is not", input=heavy[0]))
-            if not r.stabilised:
-                notes.append(f"{m.name}: the adaptive Monte Carlo procedure stopped at "
-                             f"max_trials = {spec.max_trials:,} before stabilising")
-                warnings.append(warn("monte_carlo.not_stabilised", notes[-1]))
-            elif r.adaptive and spec.interval == "shortest":
-                notes.append(f"{m.name}: the adaptive procedure stabilised the ends of the "
-                             "shortest interval, the one reported (JCGM 101 §7.9.4)")
-            if not v.validated:
-                warnings.append(warn(
-                    "monte_carlo.not_validated",
-                    f"{m.name}: the Monte Carlo interval does not validate the linear result "
-                    f"(JCGM 101 §8: d_low = {v.d_low:.2g}, d_high = {v.d_high:.2g} > δ = "
-                    f"{v.tolerance:.2g}); quote the Monte Carlo interval or find out why"))
+        out, mc_notes, mc_warnings = monte_carlo_outcomes(spec, measurands, mres, qs)
+        notes.extend(mc_notes)
+        warnings.extend(mc_warnings)
         mcs = tuple(out)
         if sampling == "sobol":
             notes.append("Monte Carlo by randomized quasi-Monte Carlo: scrambled Sobol points, an "

@@ -33,20 +33,24 @@ def fmt_u(u: float, sig: int = 2) -> str:
 
 
 def fmt_value(y: float, u: float, sig: int = 2) -> str:
-    """The estimate rounded to the decimal place of its uncertainty's last significant digit."""
+    """The estimate rounded to the decimal place of its uncertainty's last significant digit.
+
+    JCGM 100 §7.2.6: y = 3·10⁻⁵ with U = 0.49 is ``0.00``, not ``3e-05``. Fixed-point whenever
+    that place is between 10⁻⁹ and 10⁹ (and |y| < 10¹⁰); otherwise exponent form to the same
+    place (an estimate that rounds to zero there is ``0.0e-17`` beside u = ``3.2e-17``).
+    """
     if not math.isfinite(y):
         return str(y)
     if u is None or not math.isfinite(u) or u == 0:
         return fmt_num(y, 10)
     last = _exp10(u) - sig + 1                     # decimal exponent of u's last digit
-    if y == 0:
-        return "0"
     ey = _exp10(y) if y != 0 else last
+    if ey <= 9 and -9 <= last:
+        r = round(y, -last) + 0.0                  # + 0.0: no "-0.00" for a value rounding to 0
+        return f"{r:.{max(-last, 0)}f}"
+    if round(y / 10.0 ** last) == 0:
+        return f"{0:.{sig - 1}f}e{_exp10(u):+03d}"
     digits = max(ey - last + 1, 1)
-    if -4 <= ey <= 9 and -9 <= last <= 0:
-        return f"{round(y, -last):.{-last}f}"
-    if -4 <= ey <= 9 and 0 < last:
-        return f"{round(y, -last):.0f}"
     return f"{y:.{digits - 1}e}"
 
 

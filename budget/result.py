@@ -237,11 +237,37 @@ class MonteCarlo:
     linear_interval_probability: float | None = None
     #: as for Measurand: the record entry read, when it states a display unit
     si_form: tuple | None = field(default=None, compare=False, repr=False)
+    #: JCGM 101 §8 verdict: "validated", "not_validated" or "inconclusive"
+    #: (budget.propagate.validate); older records: from ``validated``
+    verdict: str = ""
+    #: numerical standard uncertainties from the batches (budget.propagate.mcm.Accuracy):
+    #: {"batches", "value", "standard_uncertainty", "symmetric_interval",
+    #: "shortest_interval"}, in the measurand's unit; None in older records or with one batch
+    accuracy: dict | None = None
+    #: δ/5 the adaptive stop was tested against (0: a fixed number of trials or older records)
+    stop_tolerance: float = 0.0
+
+    def __post_init__(self) -> None:
+        if not self.verdict:
+            object.__setattr__(self, "verdict",
+                               "validated" if self.validated else "not_validated")
+
+    @property
+    def numerical_uncertainty(self) -> tuple[float, float]:
+        """(s_low, s_high): numerical standard uncertainties of the reported interval's ends
+        (NaN when not known)."""
+        if not self.accuracy:
+            return (math.nan, math.nan)
+        a, b = self.accuracy[f"{self.interval_kind}_interval"]
+        return (float(a), float(b))
 
     def _key(self) -> tuple:
+        acc = () if not self.accuracy else tuple(
+            (k, tuple(v) if isinstance(v, (list, tuple)) else v)
+            for k, v in sorted(self.accuracy.items()))
         return (self.value, self.standard_uncertainty, self.interval_low, self.interval_high,
                 self.tolerance, self.d_low, self.d_high, self.symmetric_interval,
-                self.shortest_interval, self.histogram_edges)
+                self.shortest_interval, self.histogram_edges, acc, self.stop_tolerance)
 
     def to_dict(self, unit: str = "") -> dict[str, Any]:
         """The record entry, in coherent SI; ``unit`` is the measurand's display unit (a
@@ -264,7 +290,15 @@ class MonteCarlo:
             "histogram": {"counts": list(self.histogram_counts),
                           "edges": [x * f for x in self.histogram_edges]},
             "adaptive": self.adaptive, "stabilised": self.stabilised,
-            "linear_interval_probability": self.linear_interval_probability})
+            "linear_interval_probability": self.linear_interval_probability,
+            "verdict": self.verdict,
+            "procedure": "adaptive" if self.adaptive else "fixed"})
+        if self.adaptive:
+            out["stop_tolerance"] = self.stop_tolerance * f
+        if self.accuracy:
+            out["numerical_accuracy"] = {
+                k: ([x * f for x in v] if isinstance(v, (list, tuple)) else
+                    v if k == "batches" else v * f) for k, v in self.accuracy.items()}
         return out
 
     @classmethod
@@ -283,7 +317,13 @@ class MonteCarlo:
                  histogram_counts=tuple(hist.get("counts", ())),
                  histogram_edges=tuple(x / f for x in hist.get("edges", ())),
                  adaptive=d.get("adaptive", False), stabilised=d.get("stabilised", True),
-                 linear_interval_probability=d.get("linear_interval_probability"))
+                 linear_interval_probability=d.get("linear_interval_probability"),
+                 verdict=d.get("verdict", ""),
+                 accuracy=None if not d.get("numerical_accuracy") else {
+                     k: (tuple(x / f for x in v) if isinstance(v, list) else
+                         v if k == "batches" else v / f)
+                     for k, v in d["numerical_accuracy"].items()},
+                 stop_tolerance=d.get("stop_tolerance", 0.0) / f)
         if f == 1.0:
             return mc
         return replace(mc, si_form=(mc._key(), copy.deepcopy(d)))

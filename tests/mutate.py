@@ -46,9 +46,11 @@ MODULES: dict[str, list[str]] = {
     "budget.propagate.lpu": ["test_core_gaps.py", "test_lpu.py", "test_coverage_factor_grid.py",
                              "test_second_order.py", "test_dof_correlated.py"],
     "budget.propagate.validate": ["test_mcm_bookkeeping.py", "test_mcm.py",
-                                  "test_mcm_adaptive_stop.py"],
+                                  "test_mcm_adaptive_stop.py", "test_mcm_accuracy.py"],
     "budget.propagate.mcm": ["test_mcm_bookkeeping.py", "test_mcm_adaptive_stop.py", "test_mcm.py",
                              "test_mcm_rqmc.py", "test_second_order.py"],
+    "budget.propagate.mcm_batches": ["test_mcm_bookkeeping.py", "test_mcm_adaptive_stop.py",
+                                     "test_mcm_accuracy.py", "test_mcm.py", "test_mcm_rqmc.py"],
     "budget.distributions": ["test_distribution_ppf.py", "test_distributions.py",
                              "test_sampled_distribution.py", "test_second_order.py", "test_mcm.py"],
     "budget.stats.allan": ["test_core_gaps.py", "test_allan.py", "test_allan_blocks.py"],
@@ -74,9 +76,8 @@ KNOWN: dict[str, tuple[str, str, str, list[str]]] = {
         "np.subtract(s[lo + k:hi + k], s[lo + 2 * k:hi + 2 * k], out=av)",
         MODULES["budget.stats.allan"]),
     "3 adaptive Monte Carlo stops at δ, not δ/5": (
-        "budget.propagate.mcm",
-        "delta = numerical_tolerance(u_all, ndig) / VALIDATION_DIVISOR",
-        "delta = numerical_tolerance(u_all, ndig)", MODULES["budget.propagate.mcm"]),
+        "budget.propagate.mcm_batches", "        delta /= VALIDATION_DIVISOR\n", "\n",
+        MODULES["budget.propagate.mcm_batches"]),
     "4 E_n against the mean: V_ii − aᵀVa": (
         "budget.compare",
         "            c = -a_w.copy()\n            c[i] += 1.0\n            ens.append(en_of(labels[i], "

@@ -141,7 +141,8 @@ def test_validated_normal_keeps_the_normal_wording(tmp_path):
     b = _budget(tmp_path, text)
     assert b.mc("Y").validated
     s = stated_result(b, b.measurand("Y"))
-    assert s.method == "JCGM 100" and s.line == "Y = (0 ± 3.9)"   # ±1.96·2 = 3.92
+    # ±1.96·2 = 3.92; y = 0 to the place of U's last digit (JCGM 100 §7.2.6): 0.0
+    assert s.method == "JCGM 100" and s.line == "Y = (0.0 ± 3.9)"
     assert "normal distribution" in s.statement and "validates this interval" in s.statement
 
 

@@ -130,7 +130,9 @@ def test_run_record_has_the_design_keys(spec, tmp_path, capsys):
     assert DESIGN_MC <= set(mc)
     assert set(mc) - DESIGN_MC == {"measurand", "symmetric_interval", "shortest_interval",
                                    "histogram", "adaptive", "stabilised",
-                                   "linear_interval_probability"}
+                                   "linear_interval_probability", "verdict", "procedure",
+                                   "numerical_accuracy"} | (
+                                       {"stop_tolerance"} if mc["adaptive"] else set())
     assert len(rec["inputs"]) == 3
     for q in rec["inputs"]:
         assert set(q) == DESIGN_INPUT

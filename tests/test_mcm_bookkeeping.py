@@ -84,12 +84,15 @@ def test_adaptive_cap_runs_exactly_the_whole_batches_that_fit():
     assert (r.batches, r.trials) == (6, 60_000)
 
 
-def test_fixed_run_is_one_batch_and_reports_progress():
-    # project convention: a fixed number of trials is one batch, "stabilised" by definition
+def test_fixed_run_is_never_stabilised_and_reports_progress():
+    # a fixed number of trials is not the adaptive procedure of JCGM 101 §7.9, so never
+    # "stabilised"; its accuracy comes from 10 contiguous batches (project convention,
+    # budget.propagate.mcm_batches.FIXED_BATCHES), the draws themselves in one stream
     seen = []
     r = run({"Y": "X"}, [q("X", Distribution.normal(0.0, 1.0))], trials=450_000,
             progress=lambda done, total: seen.append((done, total)))["Y"]
-    assert (r.batches, r.trials, r.stabilised, r.adaptive) == (1, 450_000, True, False)
+    assert (r.batches, r.trials, r.stabilised, r.adaptive) == (10, 450_000, False, False)
+    assert r.accuracy is not None and r.accuracy.batches == 10
     # chunks of mcm.CHUNK = 200 000 trials: 200 000, 400 000, 450 000 of 450 000
     assert seen == [(200_000, 450_000), (400_000, 450_000), (450_000, 450_000)]
 

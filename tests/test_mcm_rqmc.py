@@ -58,8 +58,11 @@ def test_normal_sum_interval_far_tighter_than_pseudo_random():
         assert r.value == near(0.0, abs=1e-3)
     rms = float(np.sqrt(np.mean(np.square(e))))
     # pseudo-random: standard error √(0.025·0.975/2^16)/(φ(1.96)/2) = 0.0209 (order statistic);
-    # scrambled Sobol points in four dimensions do markedly better on this smooth model
-    assert rms < 0.0209 / 2, e
+    # scrambled Sobol points in four dimensions do markedly better on this smooth model. A
+    # fixed RQMC run is 16 independent scrambles of 2^12 points (so that its accuracy can be
+    # estimated, budget.propagate.mcm_batches.fixed_batches), which gives up part of the gain
+    # of one scramble of 2^16 (0.0067 here) for an honest error estimate: measured 0.012
+    assert rms < 0.0209 / 1.5, e
 
 
 def test_rectangular_sum_matches_irwin_hall():

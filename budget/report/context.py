@@ -22,8 +22,10 @@ from . import figures as figs
 from .diagnostic_labels import diagnostic_table
 from .model_view import model_view, symbol_html
 from .statement import (
+    RQMC_DEVIATION,
     coverage_statement,
     fixed_k_probability,
+    monte_carlo_method,
     pct,
     pct_of_k,
     result_line,
@@ -120,13 +122,24 @@ def _mc_block(b: Budget, m: Measurand, *, draw: bool) -> dict[str, Any] | None:
     u = mc.standard_uncertainty
     p = f"{100 * m.coverage_probability:g} %"
     lpu_lo, lpu_hi = m.value - m.expanded_uncertainty, m.value + m.expanded_uncertainty
-    verdict = (f"The law of propagation is {'validated' if mc.validated else 'NOT validated'} "
+    word = {"validated": "validated", "inconclusive": "neither validated nor shown not to be "
+            "(the check is inconclusive)"}.get(mc.verdict, "NOT validated")
+    verdict = (f"The law of propagation is {word} "
                f"by the Monte Carlo method (JCGM 101 §8): the end points differ by "
                f"d_low = {sci(fmt_num(mc.d_low, 2))} and d_high = {sci(fmt_num(mc.d_high, 2))}, "
                f"against the numerical tolerance δ = {sci(fmt_num(mc.tolerance, 2))}.")
-    if not mc.validated:
+    s_lo, s_hi = mc.numerical_uncertainty
+    if math.isfinite(s_lo) and math.isfinite(s_hi):
+        verdict += (f" The numerical standard uncertainties of the Monte Carlo interval ends "
+                    f"are {sci(fmt_num(s_lo, 2))} and {sci(fmt_num(s_hi, 2))} (from "
+                    f"{mc.accuracy['batches']} batches); a d within twice them of δ leaves the "
+                    "comparison inconclusive.")
+    if mc.verdict == "not_validated":
         verdict += (" Report the Monte Carlo coverage interval, or review the model and the "
                     "input distributions, before relying on y ± U.")
+    elif mc.verdict == "inconclusive":
+        verdict += (" Run the adaptive procedure or more trials before claiming that y ± U is "
+                    "validated.")
     fig = None
     if draw and mc.histogram_counts and len(mc.histogram_edges) == len(mc.histogram_counts) + 1:
         fig = figs.svg_data_uri(figs.mc_figure(
@@ -137,7 +150,8 @@ def _mc_block(b: Budget, m: Measurand, *, draw: bool) -> dict[str, Any] | None:
             interval=(mc.interval_low, mc.interval_high), interval_kind=mc.interval_kind))
     unit = unit_suffix(m.unit)
     return {
-        "trials": f"{mc.trials:,}" + (" (adaptive)" if mc.adaptive else ""),
+        "trials": f"{mc.trials:,}" + (" (adaptive)" if mc.adaptive else
+                                      " (fixed; not stabilised)"),
         "rows": [
             ("estimate y", value_u(m.value, m.standard_uncertainty) + unit,
              value_u(mc.value, u) + unit),
@@ -236,10 +250,14 @@ def _cautions(b: Budget) -> list[str]:
     out: list[str] = []
     for m in b.measurands:
         mc = b.mc(m.name)
-        if mc is not None and not mc.validated:
+        if mc is not None and mc.verdict == "not_validated":
             out.append(f"{m.name}: the Monte Carlo method does not validate the linear result "
                        f"at the tolerance δ = {sci(fmt_num(mc.tolerance, 2))} (JCGM 101 §8).")
-        if mc is not None and not mc.stabilised:
+        if mc is not None and mc.verdict == "inconclusive":
+            out.append(f"{m.name}: the Monte Carlo check of the linear result is inconclusive "
+                       f"at the tolerance δ = {sci(fmt_num(mc.tolerance, 2))} (JCGM 101 §8): "
+                       "the Monte Carlo interval is not accurate enough to decide.")
+        if mc is not None and mc.adaptive and not mc.stabilised:
             out.append(f"{m.name}: the adaptive Monte Carlo procedure stopped before its "
                        "results stabilised.")
         if math.isfinite(m.effective_dof) and m.effective_dof < 10:
@@ -324,6 +342,10 @@ def build_context(b: Budget, *, certificate: bool = False, draft: bool = True,
         ("spec file", _s(run.get("spec_file"))), ("spec SHA-256", _s(run.get("spec_sha256"))),
         ("software", _s(run.get("software"))), ("random seed", _s(run.get("seed"))),
         ("Monte Carlo trials (setting)", _s(run.get("trials_setting"))),
+        ("Monte Carlo sampling", {"sobol": "randomized quasi-Monte Carlo (scrambled Sobol "
+                                  "points; a deviation from JCGM 101)",
+                                  "random": "pseudo-random (JCGM 101 §6)"}.get(
+            str(run.get("sampling")), _s(run.get("sampling")))),
         ("coverage probability", f"{100 * float(run.get('coverage_probability', 0.95)):g} %"),
         ("propagation order", _s(run.get("propagation_order", 1))),
         ("rounding of ν_eff", _s(run.get("dof_rounding", "floor"))),
@@ -350,6 +372,8 @@ def build_context(b: Budget, *, certificate: bool = False, draft: bool = True,
         "nominal": sci(nominal_text(point)) if (point := nominal_point(b)) else "",
         "mc_ran": bool(b.monte_carlo),
         "mc_all_validated": bool(b.monte_carlo) and all(x.validated for x in b.monte_carlo),
+        "mc_method": monte_carlo_method(b),
+        "mc_any_inconclusive": any(x.verdict == "inconclusive" for x in b.monte_carlo),
     }
     if certificate:
         ctx["cert_missing"] = [(FIELD_LABELS[k], clause) for k, clause in CERTIFICATE_ITEMS
@@ -362,4 +386,28 @@ def build_context(b: Budget, *, certificate: bool = False, draft: bool = True,
         rule = rep.get("decision_rule", "").strip()
         ctx["conformity"] = (conformity, rule) if conformity and rule else None
         ctx["conformity_without_rule"] = bool(conformity) and not rule
+        deviations = rep.get("deviations", "").strip()
+        if run.get("sampling") == "sobol" and b.monte_carlo:
+            auto = f"Monte Carlo check by {RQMC_DEVIATION}."
+            deviations = f"{deviations} {auto}" if deviations else auto
+        ctx["cert_deviations"] = deviations
+        ctx["cert_mc_cautions"] = _certificate_mc_cautions(b)
     return ctx
+
+
+def _certificate_mc_cautions(b: Budget) -> list[str]:
+    """Draft cautions on a stated Monte Carlo interval that did not stabilise, and on an
+    inconclusive check (JCGM 101 §7.9, §8)."""
+    out = []
+    for mc in b.monte_carlo:
+        if mc.verdict == "not_validated" and mc.adaptive and not mc.stabilised:
+            out.append(f"{mc.measurand}: the Monte Carlo coverage interval stated as the result "
+                       "comes from an adaptive procedure that stopped at max_trials before its "
+                       "results stabilised (JCGM 101 §7.9); the record's warning "
+                       "monte_carlo.not_stabilised has severity 'error', so signing needs "
+                       "--accept-warnings.")
+        elif mc.verdict == "inconclusive":
+            out.append(f"{mc.measurand}: the Monte Carlo check (JCGM 101 §8) is inconclusive; "
+                       "the certificate states the GUM result without claiming that it is "
+                       "validated.")
+    return out

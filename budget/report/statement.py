@@ -9,6 +9,15 @@ A document states the interval that is *validated* (JCGM 101 §8):
   Carlo estimate and standard uncertainty (JCGM 101 §5.5, §7.7, §8.1 c), and the wording
   names the method. No k is stated: the interval does not come from one.
 
+* the comparison is *inconclusive* (the Monte Carlo's own numerical uncertainty of the interval
+  ends is too large to say whether they lie within δ; :mod:`budget.propagate.validate`): the
+  GUM result y ± U, with a sentence that the Monte Carlo check is inconclusive — validation is
+  never claimed.
+
+A Monte Carlo result obtained by randomized quasi-Monte Carlo (``sampling = "sobol"``) says so:
+JCGM 101 describes pseudo-random sampling, and RQMC is a deviation from the method that a
+certificate states (ISO/IEC 17025 §7.8.2.1 m).
+
 The sentence about the normal distribution is written only when it holds: ν_eff is infinite
 and the Monte Carlo method validates the result. Without a Monte Carlo check it says the
 normal distribution was assumed and not checked.
@@ -30,7 +39,7 @@ from ..result import Budget, Measurand, MonteCarlo
 from .text import sci, unit_suffix, value_u
 
 __all__ = ["StatedResult", "stated_result", "result_line", "coverage_statement",
-           "fixed_k_probability", "pct", "pct_of_k"]
+           "fixed_k_probability", "pct", "pct_of_k", "monte_carlo_method", "RQMC_DEVIATION"]
 
 
 #: record's interval_kind -> the JCGM 101 §5.3 name
@@ -87,6 +96,18 @@ def result_line(m: Measurand) -> str:
     return f"{m.name} = ({y} ± {big_u}){unit_suffix(m.unit)}"
 
 
+RQMC_DEVIATION = ("randomized quasi-Monte Carlo sampling (scrambled Sobol points) in place of "
+                  "the pseudo-random sampling that JCGM 101:2008 describes")
+
+
+def monte_carlo_method(b: Budget) -> str:
+    """``the Monte Carlo method of JCGM 101:2008``, naming RQMC as a deviation when used."""
+    if b.run.get("sampling") == "sobol":
+        return f"the Monte Carlo method of JCGM 101:2008, with {RQMC_DEVIATION} (a deviation " \
+               "from the method)"
+    return "the Monte Carlo method of JCGM 101:2008"
+
+
 def _validation_clause(mc: MonteCarlo) -> str:
     return (f"d_low = {sci(fmt_num(mc.d_low, 2))}, d_high = {sci(fmt_num(mc.d_high, 2))} "
             f"against δ = {sci(fmt_num(mc.tolerance, 2))}")
@@ -132,8 +153,10 @@ def coverage_statement(m: Measurand, *, fixed_k: bool, mc: MonteCarlo | None = N
             body = (f"; for the normal distribution that the measurand is taken to follow, "
                     f"this gives a coverage probability of approximately {p}")
         elif infinite:
+            checked = ("could not confirm here" if mc is not None and mc.verdict == "inconclusive"
+                       else "did not check here")
             body = (f"; if the measurand follows a normal distribution, which the Monte Carlo "
-                    f"method (JCGM 101) did not check here, this gives a coverage probability "
+                    f"method (JCGM 101) {checked}, this gives a coverage probability "
                     f"of approximately {p}")
         else:
             body = (f"; for a t-distribution with ν_eff = {fmt_dof(m.effective_dof)} effective "
@@ -143,7 +166,22 @@ def coverage_statement(m: Measurand, *, fixed_k: bool, mc: MonteCarlo | None = N
     if mc is not None and mc.validated:
         tail = (f" The Monte Carlo method (JCGM 101 §8) validates this interval "
                 f"({_validation_clause(mc)}).")
+    elif mc is not None and mc.verdict == "inconclusive":
+        tail = (f" The Monte Carlo check of this interval (JCGM 101 §8: {_validation_clause(mc)}) "
+                f"is inconclusive: the numerical accuracy of the {_count(mc.trials)} Monte Carlo "
+                "trials is not enough to decide whether the interval is validated, and it is "
+                "not claimed to be.")
     return head + body + "." + tail
+
+
+def _not_stabilised(mc: MonteCarlo) -> str:
+    """Clause for a Monte Carlo interval that the adaptive procedure did not stabilise."""
+    if mc.adaptive and not mc.stabilised:
+        return (", at which the adaptive procedure (JCGM 101 §7.9) stopped before its results "
+                "stabilised")
+    if not mc.adaptive and mc.accuracy:
+        return " (a fixed number, not stabilised by the adaptive procedure of JCGM 101 §7.9)"
+    return ""
 
 
 def stated_result(b: Budget, m: Measurand) -> StatedResult:
@@ -151,7 +189,7 @@ def stated_result(b: Budget, m: Measurand) -> StatedResult:
     mc = b.mc(m.name)
     fixed = b.run.get("coverage_factor_fixed") is not None
     unit = unit_suffix(m.unit)
-    if mc is not None and not mc.validated:
+    if mc is not None and mc.verdict == "not_validated":
         u = mc.standard_uncertainty
         p = pct(m.coverage_probability)
         lo, hi = value_u(mc.interval_low, u), value_u(mc.interval_high, u)
@@ -159,8 +197,8 @@ def stated_result(b: Budget, m: Measurand) -> StatedResult:
         kind = _KIND.get(mc.interval_kind, mc.interval_kind)
         statement = (
             f"The estimate, the standard uncertainty u = {sci(fmt_u(u))}{unit} and the {p} "
-            f"coverage interval ({kind}) were determined by the Monte Carlo method of "
-            f"JCGM 101:2008 with {_count(mc.trials)} trials. This coverage interval is stated as "
+            f"coverage interval ({kind}) were determined by {monte_carlo_method(b)} with "
+            f"{_count(mc.trials)} trials{_not_stabilised(mc)}. This coverage interval is stated as "
             f"the result because the law of propagation of uncertainty (JCGM 100) is not "
             f"validated for {m.name} (JCGM 101 §8: {_validation_clause(mc)}); no coverage "
             f"factor is stated, since the interval does not come from one.")

@@ -104,8 +104,10 @@ def budget_text(b: Budget) -> str:
                        f"{fmt_u(math.sqrt(abs(m.second_order_variance)))}{unit} in quadrature")
         mc = b.mc(m.name)
         if mc is not None:
-            verdict = "validated" if mc.validated else "NOT validated"
-            out.append(f"  Monte Carlo ({mc.trials:,} trials{', adaptive' if mc.adaptive else ''}): "
+            verdict = {"validated": "validated", "inconclusive": "neither validated nor "
+                       "shown not validated (INCONCLUSIVE)"}.get(mc.verdict, "NOT validated")
+            how = ", adaptive" if mc.adaptive else ", fixed: not stabilised"
+            out.append(f"  Monte Carlo ({mc.trials:,} trials{how}): "
                        f"y = {fmt_value(mc.value, mc.standard_uncertainty)}, "
                        f"u = {fmt_u(mc.standard_uncertainty)}, {100 * p:g} % {mc.interval_kind} "
                        f"interval [{fmt_value(mc.interval_low, mc.standard_uncertainty)}, "
