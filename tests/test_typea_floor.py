@@ -34,6 +34,7 @@ import pytest
 from numeric import near
 from scipy import stats
 
+from budget.errors import ComputationError
 from budget.stats import allan, onoff, typea
 
 K = 10        # readings kept per segment
@@ -273,3 +274,27 @@ def test_pooled_records_have_a_block_diagonal_weight_matrix():
     assert pooled.matrix().toarray() == near(block_diag(a.matrix().toarray(),
                                                         b.matrix().toarray()), rel=0, abs=0)
     assert list(pooled.involved) == list(a.involved) + list(b.involved + len(a.v))
+
+
+# ------------------------------------------------------------------ the scale of a pump current
+def test_differences_in_amperes_keep_every_digit():
+    # the same record in V (≈ 1e-3) and as a current in A (≈ 1e-10, × 1e-7): every result
+    # scales with the unit (a change of unit is a multiplication, SI Brochure §2.3.3), and a
+    # scatter of 1e-15 A is a scatter, not float noise (eps·|d| ≈ 2e-26 A)
+    rng = np.random.default_rng(7)
+    n = 64
+    d = 1e-3 + 1e-8 * rng.normal(size=n)
+    model = onoff.white_model(regular(n))
+    volts = typea.analyse(d, model)
+    amps = typea.analyse(d * 1e-7, model)
+    assert amps.mean == near(volts.mean * 1e-7, rel=1e-14)
+    assert amps.u == near(volts.u * 1e-7, rel=1e-12)
+    assert amps.dof == near(volts.dof, rel=1e-12)
+    assert amps.verdict.p_value == near(volts.verdict.p_value, rel=1e-9)
+
+
+def test_all_zero_differences_are_refused():
+    # project convention: differences with no scatter (all equal, here all 0) have no Type A
+    # uncertainty; refused rather than reported as u = 0
+    with pytest.raises(ComputationError, match="scatter is zero"):
+        typea.analyse(np.zeros(16), onoff.white_model(regular(16)))
