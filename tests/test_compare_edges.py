@@ -14,6 +14,7 @@ from __future__ import annotations
 import json
 
 import pytest
+from numeric import near
 from test_compare import SPEC, S, _declare, digest_of, record
 
 from budget import evaluate
@@ -101,3 +102,22 @@ def test_typed_reference_near_the_float_limit():
     ReferenceValue(0.0, 2.6e154)
     with pytest.raises(UsageError):
         ReferenceValue(0.0, 2.8e154)
+
+
+def test_typed_reference_entry_and_its_band():
+    # ISO 13528 §9.7: a typed-in reference is VALUE ± U with k = 2, so u = U/2 and nothing is
+    # rescaled; project convention (figure data): the band spans the runs drawn at x = 1 … n,
+    # from 0.5 to n + 0.5, at VALUE ± U
+    runs = [record_from_dict(record(x * S, 1 * S, title=f"run {x}")) for x in (10, 12)]
+    c = compare_runs(runs, reference=ReferenceValue(11 * S, 1 * S), en_basis="2u")
+    ref = c.reference
+    assert c.reference_kind == "value" and ref.rescaled is False
+    assert (ref.value, ref.standard_uncertainty, ref.stated_coverage_factor) == (
+        11 * S, 0.5 * S, 2.0)
+    (band,) = [s for s in c.figure["series"] if s["style"] == "band"]
+    assert band["x"] == [0.5, 2.5]
+    # 11·S ∓ 1·S in float: to one rounding of the 1e-8-scale values (abs = 1e-22)
+    assert band["y_low"] == near([10 * S] * 2, rel=0, abs=1e-22)
+    assert band["y_high"] == near([12 * S] * 2, rel=0, abs=1e-22)
+    points = [s for s in c.figure["series"] if s["style"] == "points"][0]
+    assert points["x"] == [1.0, 2.0]
