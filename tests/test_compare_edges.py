@@ -119,5 +119,7 @@ def test_typed_reference_entry_and_its_band():
     # 11·S ∓ 1·S in float: to one rounding of the 1e-8-scale values (abs = 1e-22)
     assert band["y_low"] == near([10 * S] * 2, rel=0, abs=1e-22)
     assert band["y_high"] == near([12 * S] * 2, rel=0, abs=1e-22)
+    (line,) = [s for s in c.figure["series"] if s["style"] == "line"]   # the centre line
+    assert line["x"] == [0.5, 2.5] and line["y"] == [11 * S, 11 * S]
     points = [s for s in c.figure["series"] if s["style"] == "points"][0]
     assert points["x"] == [1.0, 2.0]
