@@ -177,6 +177,19 @@ _FAST_SI = {"": "1", "1": "1", "rad": "1", "ohm": "Ω"}
 
 @lru_cache(maxsize=512)
 def _parse(text: str) -> Unit:
+    try:
+        return _parse_plain(text)
+    except _Unreadable as exc:
+        raise UnitError(f"unknown unit {text!r}{_suggest(text)}") from exc.__cause__
+
+
+class _Unreadable(Exception):
+    """pint could not read a unit string (the caller words the message)."""
+
+
+def _parse_plain(text: str) -> Unit:
+    # no did-you-mean here: _suggest tries candidates through this function, and a candidate
+    # must never ask for suggestions of its own (a typo such as "µVolt" recursed forever)
     if text in _FAST:
         return Unit(text, 1.0, 0.0, _FAST_SI.get(text, text), _FAST[text])
     m = _POWER.match(text.translate(_SUPERSCRIPT).replace(" ", ""))
@@ -188,7 +201,7 @@ def _parse(text: str) -> Unit:
     try:
         unit = reg.Unit(_pint_text(text))
     except Exception as exc:  # pint raises several kinds on nonsense input
-        raise UnitError(f"unknown unit {text!r}{_suggest(text)}") from exc
+        raise _Unreadable(text) from exc
     dims = _dims_of(unit.dimensionality)
     offset = 0.0
     q1 = reg.Quantity(1.0, unit)
@@ -239,7 +252,7 @@ def _suggest(text: str) -> str:
 
 def _ok(text: str) -> bool:
     try:
-        _parse(text)
-    except UnitError:
+        _parse_plain(text)
+    except (UnitError, _Unreadable):
         return False
     return True

@@ -61,6 +61,16 @@ def test_unknown_unit_says_did_you_mean():
         parse_unit("uv")
 
 
+@pytest.mark.parametrize("typo", ["µVolt", "uVv", "µOhms", "µµV", "uXYZ"])
+def test_micro_typos_get_one_line_not_a_recursion(typo):
+    # a typo starting with µ or u once made the did-you-mean try the typo itself, which asked
+    # for suggestions again, until Python's recursion limit (found by a review with invented
+    # data); the message must be the usual one line
+    with pytest.raises(UnitError, match=rf"^unknown unit '{typo}' \(") as info:
+        parse_unit(typo)
+    assert "\n" not in str(info.value)
+
+
 # --------------------------------------------------------------------------- typed-in inputs
 SPEC = """
 [budget]
