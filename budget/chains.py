@@ -31,9 +31,12 @@ Spec keys of the ``[model]`` table with ``chain``
 -------------------------------------------------
 chain : str
     One of :data:`CHAINS` (required).
-deviation_unit : {"ppm", "1e-8"}
-    Scale of the deviation output: parts in 10^6 (output ``dev_ppm``) or in 10^8 (``dev_1e8``).
-    Default ``"ppm"``.
+deviation_unit : {"10⁻⁶", "µA/A", "10⁻⁸", "10⁻⁹", "nA/A"}
+    Scale of the dimensionless deviation: parts in 10^6 (output ``dev_ppm``, shown in µA/A),
+    10^8 (``dev_1e8``, shown ×10⁻⁸) or 10^9 (``dev_1e9``, shown in nA/A). Default ``"10⁻⁶"``.
+    ``"ppm"`` and ``"1e-8"`` are accepted spellings of 10⁻⁶ and 10⁻⁸; the result is shown in
+    µA/A and ×10⁻⁸ all the same (the SI Brochure, 9th ed., §5.4.7, advises against ppm). The
+    record stores the deviation as a plain number (SI) with the display unit beside it.
 n : int
     Electrons per cycle (positive integer); otherwise taken from ``[constants]``.
 inputs_map : table
@@ -56,7 +59,10 @@ from .expression import Var, names, parse, substitute, to_text
 __all__ = ["CHAINS", "DEVIATION_UNITS", "ChainModel", "build_chain", "validate_n"]
 
 #: Output scale of the deviation: (factor as an exact float, output suffix, unit label).
-DEVIATION_UNITS = {"ppm": (1e6, "ppm", "ppm"), "1e-8": (1e8, "1e8", "1e-8")}
+DEVIATION_UNITS = {"10⁻⁶": (1e6, "ppm", "µA/A"), "µA/A": (1e6, "ppm", "µA/A"),
+                   "ppm": (1e6, "ppm", "µA/A"), "10⁻⁸": (1e8, "1e8", "×10⁻⁸"),
+                   "1e-8": (1e8, "1e8", "×10⁻⁸"), "10⁻⁹": (1e9, "1e9", "nA/A"),
+                   "nA/A": (1e9, "1e9", "nA/A")}
 
 INPUT_UNITS = {"g": "1", "dV": "V", "R": "Ω", "A_TR": "Ω", "f": "Hz", "I_read": "A",
                "delta_pump": "1"}
@@ -169,7 +175,7 @@ def build_chain(table: dict[str, Any], *, file: str, lines: dict[str, int]) -> C
     if not isinstance(name, str) or name not in _DEFS:
         raise err("chain", f"unknown chain {name!r}{did_you_mean(str(name), CHAINS)} "
                            f"(known: {', '.join(CHAINS)})")
-    unit_key = table.get("deviation_unit", "ppm")
+    unit_key = table.get("deviation_unit", "10⁻⁶")
     if not isinstance(unit_key, str) or unit_key not in DEVIATION_UNITS:
         raise err("deviation_unit", f"must be one of {', '.join(DEVIATION_UNITS)}; got "
                                     f"{unit_key!r}{did_you_mean(str(unit_key), DEVIATION_UNITS)}")

@@ -49,7 +49,7 @@ def test_builtin_defining_constants_are_the_exact_si_values():
 def test_resistor_voltmeter_outputs():
     m = build()
     assert list(m.outputs) == ["I", "dev_ppm"]
-    assert m.units == {"I": "A", "dev_ppm": "ppm"}
+    assert m.units == {"I": "A", "dev_ppm": "µA/A"}   # ppm is not shown (SI Brochure §5.4.7)
     assert set(m.inputs) == {"g", "dV", "R", "f"}
     assert m.input_units["R"] == "Ω"
     # e·f at 1 GHz = 160.2176634 pA (SI Brochure); through 1 GΩ that is 0.1602176634 V
@@ -148,3 +148,18 @@ def test_validate_n():
     with pytest.raises(SpecError) as e:
         validate_n(0, file="spec.toml", line=3, field="constants.n")
     assert (e.value.line, e.value.field) == (3, "constants.n")
+
+
+@pytest.mark.parametrize("key, name, unit, per", [
+    ("10⁻⁶", "dev_ppm", "µA/A", 1.0), ("µA/A", "dev_ppm", "µA/A", 1.0),
+    ("ppm", "dev_ppm", "µA/A", 1.0),      # accepted spelling, not shown (SI Brochure §5.4.7)
+    ("10⁻⁸", "dev_1e8", "×10⁻⁸", 100.0), ("10⁻⁹", "dev_1e9", "nA/A", 1000.0),
+    ("nA/A", "dev_1e9", "nA/A", 1000.0),
+])
+def test_deviation_units(key, name, unit, per):
+    # g = 1 + 1e-6 ⇒ one part in 10⁶ = 100 parts in 10⁸ = 1000 parts in 10⁹ (derivation)
+    c = build_chain({"chain": "amplifier-voltmeter", "deviation_unit": key}, file="s.toml",
+                    lines={})
+    assert c.units[name] == unit
+    env = {"g": 1.0 + 1e-6, "dV": 0.1602176634, "A_TR": 1e9, "f": 500e6, "n": 2, "e": E}
+    assert evaluate(c, env)[name] == near(per, rel=1e-6)

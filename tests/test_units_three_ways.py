@@ -70,7 +70,7 @@ def three(tmp_path_factory):
 
 def test_three_spellings_give_the_same_si_values(three):
     a, b, c = three
-    to_si = {"A": 1.0, "pA": 1e-12, "ppm": 1.0}   # dev_ppm: ppm in all three ways
+    to_si = {"A": 1.0, "pA": 1e-12, "µA/A": 1.0}   # dev_ppm: µA/A in all three ways
     for name in ("I", "dev_ppm"):
         ma, mb, mc = (x.measurand(name) for x in (a, b, c))
         for m in (mb, mc):
@@ -108,7 +108,7 @@ def test_three_spellings_give_the_same_record_numbers(three):
     recs = [b.to_dict()["measurands"] for b in three]
     for ma, mb, mc in zip(*recs):
         assert ma["unit"] == mb["unit"] == mc["unit"]
-        assert mb.get("display_unit") == ("pA" if ma["name"] == "I" else "ppm")
+        assert mb.get("display_unit") == ("pA" if ma["name"] == "I" else "µA/A")
         for m in (mb, mc):
             absolute = 1e-12 if ma["unit"] == "1" else 0.0   # 1e-12 of I (dimensionless)
             assert m["value"] == near(ma["value"], rel=1e-12, abs=absolute)

@@ -86,7 +86,7 @@ def test_deviation_recovered_within_expanded_uncertainty(spec):
     # synthetic truth: δ is the generator's setting (scenario_common.PUMP_DELTA)
     b, t = budget_of(spec), truth_of(spec)
     m = b.measurand("dev_ppm")
-    assert m.unit == "ppm"
+    assert m.unit == "µA/A"
     assert abs(m.value - t["dev_ppm_true"]) <= m.expanded_uncertainty, (m.value, t)
     # ... and U must be neither far too small nor uselessly wide. Derivation of the expected
     # size: the Type A term dominates, u ≈ S·√(2/(d·T))/ΔV (planning rule of white on/off
