@@ -9,7 +9,7 @@ from typing import Any
 
 import numpy as np
 
-from . import __version__
+from . import __version__, cross_checks
 from . import expression as ex
 from .engine_mc import monte_carlo_outcomes
 from .errors import BudgetError, ComputationError, SpecError, did_you_mean
@@ -226,8 +226,7 @@ def evaluate(spec: Spec, *, trials: int | None | str = "spec", seed: int | None 
     """
     resolved = resolve_inputs(spec)
     qs = resolved.quantities
-    qnames = {q.name for q in qs}
-    model = build_model(spec.outputs, quantities=qnames, constants=spec.constants,
+    model = build_model(spec.outputs, quantities={q.name for q in qs}, constants=spec.constants,
                         inlined=resolved.inlined, file=spec.path,
                         lines=spec.lines.get(("model",), {}))
     # dimensions checked and display units applied once, on the trees (budget.model_units)
@@ -360,6 +359,7 @@ def evaluate(spec: Spec, *, trials: int | None | str = "spec", seed: int | None 
         "files": [{"path": p, "sha256": h} for p, h in sorted(files.items())],
         "notes": notes,
     }
+    warnings = cross_checks.after_propagation(warnings, spec, model, qs, resolved, measurands)
     return Budget(title=spec.title, measurands=measurands,
                   correlation_names=model.outputs,
                   correlation_matrix=tuple(tuple(float(x) for x in row) for row in cm),

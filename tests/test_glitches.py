@@ -75,3 +75,26 @@ def test_default_settle_is_not_fooled_by_the_glitch(tmp_path, capsys, glitched):
     s = cycles_diag(rec)["settling"][0]
     # same chain as tests/test_settling.py (τ = 3 s): the derived time stays near 45 s
     assert 38 <= s["settle_s"] <= 50, s["choice"]
+
+
+def test_glitch_warning_states_the_effect_on_U(tmp_path, capsys, glitched):
+    # budget/cross_checks.py propagates once more with the cycles input replaced by its
+    # value, u and ν without the flagged cycle. The model dev = (dV/STEP − 1)·10⁶ has one
+    # input, so by hand (GUM §6.2, G.3; JCGM 100 G.6.4 ν truncated, the spec's default):
+    # U = t_0.975(⌊ν⌋)·u·10⁶/STEP and dev = (mean/STEP − 1)·10⁶ (scipy.stats.t).
+    t, y, on, _ = glitched
+    rc, rec, err = run(write(tmp_path, t, y, on, settle_s=60), capsys)
+    assert rc == 0
+    (w,) = [w for w in rec["warnings"] if w["code"] == "cycles.glitch"]
+    alt = cycles_diag(rec)["glitches"]["if_rejected"]
+    m = rec["measurands"][0]
+    k = stats.t.ppf(0.975, np.floor(alt["dof"]))
+    u_without = k * alt["u_si"] / STEP * 1e6
+    dev_without = (alt["value_si"] / STEP - 1) * 1e6
+    assert alt["value_si"] == near(alt["mean_difference"], rel=1e-15)     # readings in V
+    assert (f"with U = {m['expanded_uncertainty']:.2g}" in w["message"]
+            and f"with U = {u_without:.2g}" in w["message"])
+    assert f"{dev_without:.6g} with U" in w["message"] and "without them" in w["message"]
+    assert "effect on the result" in err
+    # the glitch spreads the differences: U with it is larger (issue 12: 0.73 → 4.8·10⁻⁶)
+    assert m["expanded_uncertainty"] > 2 * u_without

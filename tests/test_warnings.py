@@ -167,3 +167,31 @@ def test_every_warning_code_in_the_readme_is_raised_somewhere():
     assert len(codes) >= 10                 # the table is found and lists the codes
     source = "\n".join(p.read_text(encoding="utf-8") for p in (root / "budget").rglob("*.py"))
     assert sorted(c for c in codes if f'"{c}"' not in source) == []
+
+
+def test_every_warning_code_raised_is_in_the_readme_table():
+    # the other direction: a code a module raises that the README's table does not list leaves
+    # the user without its meaning (issue 12). Raised = the first argument of a warn(...) call,
+    # or a (text, code, severity) table entry such as the pump module's note-to-warning map,
+    # read from the syntax trees of budget/.
+    import ast
+    import re
+    from pathlib import Path
+    root = Path(__file__).resolve().parents[1]
+    code_re = re.compile(r"^[a-z][a-z0-9_]*(\.[a-z0-9_]+)+$")
+    raised = set()
+    for path in (root / "budget").rglob("*.py"):
+        for node in ast.walk(ast.parse(path.read_text(encoding="utf-8"))):
+            if isinstance(node, ast.Call) and getattr(node.func, "id", None) == "warn" \
+                    and node.args and isinstance(node.args[0], ast.Constant):
+                raised.add(node.args[0].value)
+            elif isinstance(node, ast.Tuple) and len(node.elts) == 3 and all(
+                    isinstance(e, ast.Constant) and isinstance(e.value, str) for e in node.elts) \
+                    and node.elts[2].value in ("note", "warning", "error") \
+                    and code_re.match(node.elts[1].value):
+                raised.add(node.elts[1].value)
+    assert {"cycles.glitch", "pump.degenerate_fit", "pump.plateau_mismatch"} <= raised
+    rows = [ln for ln in (root / "README.md").read_text(encoding="utf-8").splitlines()
+            if ln.startswith(("| `note`", "| `warning`", "| `error`"))]
+    listed = set(re.findall(r"`([a-z_]+\.[a-z_]+)`", "\n".join(rows)))
+    assert sorted(raised - listed) == []

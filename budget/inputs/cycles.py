@@ -184,6 +184,9 @@ def _build(raw: _Raw, index: int, settle: float, settle_default: bool,
            o: dict[str, Any]) -> _Record:
     table, lo, shown = raw.table, raw.first_row, raw.table.shown
     seg = onoff.segment(raw.t, raw.y, raw.on, settle, o["tail_s"])
+    if seg.count == 1:
+        raise DataError(f"the pump column is constant ('{'on' if seg.on[0] else 'off'}' in all "
+                        f"{len(raw.t)} readings used): no on/off cycle", file=shown, field="pump")
     usable = onoff.usable_on_segments(seg, o["estimator"])
     if len(usable) == 0:
         need = ("an off-on-off sequence" if o["estimator"] == "linear"
@@ -199,9 +202,12 @@ def _build(raw: _Raw, index: int, settle: float, settle_default: bool,
     if len(empty):
         j = int(empty[0])
         n_read = int(seg.stop[j] - seg.start[j])
+        med = _median_segment(raw)
+        fast = (f" (the pump column alternates every {med:.3g} s, faster than the cuts)"
+                if med <= settle + o["tail_s"] else "")
         raise DataError(f"segment of {n_read} reading(s) ({'on' if seg.on[j] else 'off'}) keeps "
-                        f"no reading after settle_s = {settle:g} s and tail_s = {o['tail_s']:g} s;"
-                        f" lower them or check the pump column", file=shown,
+                        f"no reading after settle_s = {settle:g} s and tail_s = {o['tail_s']:g} s"
+                        f"{fast}; lower them or check the pump column", file=shown,
                         row=lo + int(seg.start[j]) + 1, field="pump")
     return _Record(table, lo, seg, settle, settle_default, diff)
 
@@ -348,6 +354,9 @@ def evaluate(ctx: InputContext) -> ModuleResult:
                                                             res.u_white, o)
     diagnostics["settling"] = settle_diag
     diagnostics["glitches"], glitch_ws = _glitch_findings(records, names, pooled, res, o)
+    if diagnostics["glitches"]["if_rejected"]:   # in SI too, for the effect on the result's U
+        alt, scale = diagnostics["glitches"]["if_rejected"], _unit(ctx, o["unit"]).scale
+        alt.update(value_si=alt["mean_difference"] * scale, u_si=alt["u"] * scale)
     settle_ws = settle_ws + glitch_ws
     diagnostics["figures"] = [figure_differences(records, names, pooled, keep, res, unit),
                               figure_allan(res, cycle_s, unit), *settle_figs]

@@ -1,6 +1,6 @@
 """Settling findings of the ``cycles`` input: per file the diagnostics, the structured
 warnings (``cycles.default_settle``, ``cycles.slow_settling``, ``cycles.transient``,
-``cycles.settle_short``) and the step-response figure, from the statistics of
+``cycles.settle_short``, ``cycles.fast_switching``) and the step-response figure, from the statistics of
 :mod:`budget.inputs.settling`. ``settle_policy = "refuse"`` turns a detected transient into a
 spec error (exit 2)."""
 
@@ -73,6 +73,14 @@ def settling_findings(ctx: InputContext, raws: list, records: list,
                                f"detect it ({settling.p_text(test.p_value)}); settle_s = "
                                f"{better['settle_s']:.4g} s would keep it below "
                                f"{o['transient_fraction']:g} u", severity="note"))
+        if resp is not None and len(resp.lag_s) < settling.MIN_LAGS:
+            ws.append(warn("cycles.fast_switching", f"{name}: the pump column alternates every "
+                           f"{resp.segment_s:.4g} s ({len(resp.lag_s)} readings a segment): too "
+                           "fast for the record to show whether the chain settles within "
+                           f"settle_s = {r.settle:.4g} s (the step-response fit needs at least "
+                           f"{settling.MIN_LAGS} readings a segment); a chain that has not "
+                           "settled biases the result — lengthen the segments or establish the "
+                           "chain's time constant separately"))
         if resp is not None:
             figs.append(settling.figure(resp, fit, r.settle, unit,
                                         name if len(raws) > 1 else "", i))

@@ -65,8 +65,8 @@ import numpy as np
 from ..stats import onoff
 
 __all__ = ["TRANSIENT_LEVEL", "DEFAULT_FRACTION", "FLOOR_INTERVALS", "FLOOR_FRACTION",
-           "CAP_FRACTION", "StepResponse", "ExpFit", "HalfTest", "step_response", "fit_exponential",
-           "half_test", "predicted_bias", "floor_settle", "choose_settle"]
+           "MIN_LAGS", "CAP_FRACTION", "StepResponse", "ExpFit", "HalfTest", "step_response",
+           "fit_exponential", "half_test", "predicted_bias", "floor_settle", "choose_settle"]
 
 #: Two-sided level of the early/late test. Stricter than the whiteness test's 5 %: a false
 #: alarm warns (or, with ``settle_policy = "refuse"``, stops the run), so about one clean
@@ -77,6 +77,8 @@ DEFAULT_FRACTION = 0.1
 FLOOR_INTERVALS = 2
 FLOOR_FRACTION = 0.05
 CAP_FRACTION = 0.5
+#: readings a segment the step-response fit needs (three parameters and two to spare)
+MIN_LAGS = 5
 _FIT_LEVEL = 1e-3          # χ² p-value below which a single exponential "does not fit"
 MAX_POINTS = 400
 
@@ -246,7 +248,7 @@ def fit_exponential(resp: StepResponse) -> ExpFit:
     from scipy import optimize, special
 
     t, r, se = resp.lag_s, resp.anti, resp.anti_se
-    if len(t) < 5:
+    if len(t) < MIN_LAGS:
         return ExpFit("failed", f"only {len(t)} lags in a segment; no fit")
     positive = se[se > 0]
     floor = float(np.min(positive)) if len(positive) else max(float(np.max(np.abs(r))), 1.0) * 1e-15
