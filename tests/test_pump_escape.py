@@ -17,6 +17,7 @@ from pathlib import Path
 import numpy as np
 import pytest
 import scipy.linalg
+from numeric import near
 from pump_sim import escape_mean
 from scipy import stats
 from scipy.integrate import solve_ivp
@@ -295,3 +296,22 @@ def test_best_gate_voltage_is_a_maximum():
     p = model.probabilities(theta, grid, np.full(grid.size, 3e-7))[:, 2]
     assert best["p_exactly_n"] >= p.max() - 1e-12
     assert -0.36 < best["gate_voltage"] < -0.24
+
+
+def test_best_gate_voltage_flags_a_window_edge():
+    # By construction: P(exactly n) has one maximum V* inside (−0.36, −0.24) (the test
+    # above); a window that stops short of V* has its best point at its upper end, which the
+    # result flags (project convention: the optimum is then not a plateau point); a window
+    # around V* does not.
+    model = EscapeModel(3, "per-electron", V_REF)
+    theta = np.concatenate([np.log(TAU0), B])[None, :]
+    inner = model.best_gate_voltage(theta, 3e-7, 2, (-0.36, -0.24))
+    assert inner["at_edge"] is False
+    v_star = inner["gate_voltage"]
+    short = model.best_gate_voltage(theta, 3e-7, 2, (-0.36, v_star - 0.02))
+    assert short["at_edge"] is True
+    # the bounded search stops within (hi − lo)·1e-9 of the end; 1 µV is far inside a grid step
+    assert short["gate_voltage"] == near(v_star - 0.02, rel=0, abs=1e-6)
+    late = model.best_gate_voltage(theta, 3e-7, 2, (v_star + 0.02, -0.20))
+    assert late["at_edge"] is True
+    assert late["gate_voltage"] == near(v_star + 0.02, rel=0, abs=1e-6)
