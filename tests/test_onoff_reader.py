@@ -46,3 +46,54 @@ def test_pump_state_refused_by_row(tmp_path, state, shown):
         read_onoff(tmp_path / "r.csv")
     assert exc.value.row == 3 and exc.value.field == "pump"
     assert f"got {shown}" in str(exc.value)
+
+
+_CASES = {
+    "plain": ["0,0.1,off", "1,0.2,on", "2,0.30000000000000004,on"],
+    "space after a comma": ["0, 0.1,off", "1,0.2, on"],
+    "tab before a field": ["0,\t0.1,off", "1,0.2,on"],
+    "indented comment": ["0,0.1,off", "  # a note", "1,0.2,on"],
+    "comment without spaces": ["0,0.1,off", "#note", "1,0.2,on"],
+    "empty reading": ["0,,off", "1,0.2,on"],
+    "short row": ["0,0.1,off", "1,0.2"],
+    "long row": ["0,0.1,off", "1,0.2,on,9"],
+    "nan and inf": ["0,NaN,off", "1,inf,on"],
+    "word": ["0,0.1,off", "1,high,on"],
+    "integers": ["0,1,off", "1,2,on", "2,3,on"],
+    "integer beyond 2**53": ["0,9007199254740993,off", "1,9007199254740995,on"],
+    "huge integer": ["0,1" + "0" * 30 + ",off", "1,2,on"],
+    "hex": ["0,0x1A,off", "1,2,on"],
+    "bad pump": ["0,0.1,of", "1,0.2,on"],
+    "time not increasing": ["0,0.1,off", "0,0.2,on"],
+    "exponents": ["1e0,1.5e-7,off", "2E0,-3.25E+2,on"],
+}
+
+
+@pytest.mark.parametrize("case", sorted(_CASES))
+def test_fast_path_reads_and_refuses_as_the_general_reading(tmp_path, case, monkeypatch):
+    # the general reading (pandas infers each column, skipinitialspace) is the reference
+    # (project convention: a fast path is an implementation detail); its numbers are checked
+    # against Python's float() above
+    import budget.inputs.onoff_table as m
+    path = tmp_path / "r.csv"
+    _write(path, _CASES[case])
+
+    def outcome():
+        try:
+            t = read_onoff(path)
+        except DataError as exc:
+            return exc.one_line()
+        return t.time.tobytes(), t.reading.tobytes(), t.on.tobytes()
+    fast = outcome()
+    monkeypatch.setattr(m, "_no_initial_space", lambda raw: False)
+    assert fast == outcome()
+
+
+def test_fast_path_is_taken_only_when_no_field_can_begin_with_a_space():
+    from budget.inputs.onoff_table import _no_initial_space
+    assert _no_initial_space(b"# a comment with spaces\ntime_s, reading, pump\n0,1,on\n")
+    assert _no_initial_space(b"\xef\xbb\xbftime_s,reading,pump\n0,1,on\n")
+    assert not _no_initial_space(b"time_s,reading,pump\n0, 1,on\n")
+    assert not _no_initial_space(b"time_s,reading,pump\n0,1,on\n# note with spaces\n")
+    assert not _no_initial_space(b"  # indented\ntime_s,reading,pump\n0,1,on\n")
+    assert not _no_initial_space(b"# only comments\n")

@@ -132,20 +132,17 @@ def _pump(df: pd.DataFrame, shown: str) -> np.ndarray:
     return on.astype(bool)
 
 
-def read_onoff(path: Path, shown: str | None = None) -> OnOffTable:
-    """Read and check an on/off record; every problem is a DataError with file, row, column."""
-    shown = shown or str(path)
-    raw = path.read_bytes()    # pandas parses the bytes; the text gives the header and rows
-    cols = _header(_head_text(raw, shown), shown)
-    _check_columns(cols, shown)
+def _read_general(raw: bytes, cols: list[str], shown: str) -> pd.DataFrame:
+    """The reference reading: pandas infers each column (text where a value does not parse,
+    so that :func:`_numeric` can name the row); every problem a located DataError."""
     try:
         with warnings.catch_warnings():
             # pandas only warns (and drops the field) when the first data row is too long
             warnings.simplefilter("error", pd.errors.ParserWarning)
-            df = pd.read_csv(io.BytesIO(raw), encoding="utf-8-sig", comment="#", header=0,
-                             names=cols, index_col=False, skipinitialspace=True,
-                             keep_default_na=False, na_values=[], low_memory=False,
-                             dtype={"pump": "category"})   # no 10⁷ Python strings
+            return pd.read_csv(io.BytesIO(raw), encoding="utf-8-sig", comment="#", header=0,
+                               names=cols, index_col=False, skipinitialspace=True,
+                               keep_default_na=False, na_values=[], low_memory=False,
+                               dtype={"pump": "category"})   # no 10⁷ Python strings
     except (pd.errors.ParserError, pd.errors.ParserWarning):
         raise _bad_field_count(decode_text(raw, shown), len(cols), shown) from None
     except UnicodeDecodeError:
@@ -153,6 +150,62 @@ def read_onoff(path: Path, shown: str | None = None) -> OnOffTable:
         raise                            # pragma: no cover - pandas and Python disagree
     except ValueError as exc:  # pragma: no cover - pandas edge cases
         raise DataError(f"cannot read as CSV: {' '.join(str(exc).split())}", file=shown) from None
+
+
+def _no_initial_space(raw: bytes) -> bool:
+    """True when no field of the file can begin with a space or tab, so that pandas'
+    ``skipinitialspace`` (a quarter of the parsing time) changes nothing. Conservative: any
+    space or tab after the header line, even in a comment, answers False; before it only lines
+    starting with ``#`` may hold them."""
+    pos = 3 if raw.startswith(b"\xef\xbb\xbf") else 0
+    while pos < len(raw):
+        end = raw.find(b"\n", pos)
+        end = len(raw) if end < 0 else end
+        line = raw[pos:end]
+        if line[:1] in (b" ", b"\t"):
+            return False
+        if line.strip() and not line.startswith(b"#"):      # the header line
+            return raw.find(b" ", end) < 0 and raw.find(b"\t", end) < 0
+        pos = end + 1
+    return False
+
+
+#: integers from 2**53 on are not all exact floats: such a column is read the general way
+_EXACT = 2.0 ** 53
+
+
+def _read_plain(raw: bytes, cols: list[str]) -> pd.DataFrame | None:
+    """The common case in one pass: ``time_s`` and ``reading`` parsed straight to float64,
+    without ``skipinitialspace`` (see :func:`_no_initial_space`). Returns None whenever the
+    general reading could differ in any way — a value that does not parse, a missing or
+    non-finite value, a field-count problem, an integer too large to be exact — so that
+    :func:`_read_general` gives exactly today's numbers and messages."""
+    try:
+        with warnings.catch_warnings():
+            warnings.simplefilter("error", pd.errors.ParserWarning)
+            df = pd.read_csv(io.BytesIO(raw), encoding="utf-8-sig", comment="#", header=0,
+                             names=cols, index_col=False, skipinitialspace=False,
+                             keep_default_na=False, na_values=[], low_memory=False,
+                             dtype={"pump": "category", "time_s": float, "reading": float})
+    except (ValueError, UnicodeDecodeError, pd.errors.ParserWarning):
+        return None
+    for c in ("time_s", "reading"):
+        v = df[c].to_numpy()
+        if v.dtype != np.float64 or not np.isfinite(v).all() or \
+                (len(v) and float(np.abs(v).max()) >= _EXACT):
+            return None
+    return df
+
+
+def read_onoff(path: Path, shown: str | None = None) -> OnOffTable:
+    """Read and check an on/off record; every problem is a DataError with file, row, column."""
+    shown = shown or str(path)
+    raw = path.read_bytes()    # pandas parses the bytes; the text gives the header and rows
+    cols = _header(_head_text(raw, shown), shown)
+    _check_columns(cols, shown)
+    df = _read_plain(raw, cols) if _no_initial_space(raw) else None
+    if df is None:
+        df = _read_general(raw, cols, shown)
     if len(df) == 0:
         raise DataError("has no data rows", file=shown)
     time = _numeric(df, "time_s", shown)
