@@ -8,6 +8,8 @@ environment escapes it on output.
 
 from __future__ import annotations
 
+import copy
+import hashlib
 import math
 from typing import Any
 
@@ -288,6 +290,26 @@ def _header(rep: dict[str, str], keys: tuple[str, ...]) -> list[tuple[str, str]]
     return [(FIELD_LABELS[k], rep.get(k, "").strip()) for k in keys]
 
 
+#: the measurand and module blocks (figures drawn) of the last record rendered in this process,
+#: by the record's SHA-256: the report, the certificate draft and the final certificate of one
+#: record (``make demo``, ``sign``) draw its figures once. The blocks depend on the record only.
+_DRAWN: dict[tuple, Any] = {}
+
+
+def _digest(b: Budget) -> str:
+    return hashlib.sha256(b.to_json().encode("utf-8")).hexdigest()
+
+
+def _drawn(digest: str, part: tuple, make) -> Any:
+    """``make()`` for this record and part, or a copy of what it gave before."""
+    key = (digest, *part)
+    if key not in _DRAWN:
+        if any(k[0] != digest for k in _DRAWN):
+            _DRAWN.clear()                     # keep one record's figures only
+        _DRAWN[key] = make()
+    return copy.deepcopy(_DRAWN[key])    # callers add to the blocks (labels, equations)
+
+
 def build_context(b: Budget, *, certificate: bool = False, draft: bool = True,
                   figures: bool = True) -> dict[str, Any]:
     """The template context of a report (or certificate draft) of ``b``.
@@ -305,7 +327,9 @@ def build_context(b: Budget, *, certificate: bool = False, draft: bool = True,
     # every known key present (the templates are strict about undefined names)
     rep = dict.fromkeys(FIELD_LABELS, "")
     rep.update({str(k): _s(v) for k, v in (run.get("report") or {}).items()})
-    measurands = [_measurand_block(b, m, draw=figures) for m in b.measurands]
+    digest = _digest(b)
+    measurands = _drawn(digest, ("measurands", figures),
+                        lambda: [_measurand_block(b, m, draw=figures) for m in b.measurands])
     view = model_view(b)
     _label_measurands(b, measurands, view)
     said = {k: v.get("name") for k, v in (run.get("outputs") or {}).items()
@@ -357,7 +381,8 @@ def build_context(b: Budget, *, certificate: bool = False, draft: bool = True,
         "inputs": [_input_block(b, q) for q in b.inputs],
         "input_correlations": [(str(a), str(c), f"{float(r):.3f}".replace("-", "−"))
                                for a, c, r in run.get("input_correlations") or []],
-        "measurand_correlations": corr, "modules": _module_blocks(b, draw=figures),
+        "measurand_correlations": corr, "modules": _drawn(digest, ("modules", figures),
+                                                   lambda: _module_blocks(b, draw=figures)),
         "measurand_tied": tied,
         "cautions": _cautions(b), "files": files, "settings": settings,
         "model": [(str(k), str(v)) for k, v in (run.get("model") or {}).items()],
