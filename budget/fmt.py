@@ -37,19 +37,21 @@ def fmt_value(y: float, u: float, sig: int = 2) -> str:
 
     JCGM 100 §7.2.6: y = 3·10⁻⁵ with U = 0.49 is ``0.00``, not ``3e-05``. Fixed-point whenever
     that place is between 10⁻⁹ and 10⁹ (and |y| < 10¹⁰); otherwise exponent form to the same
-    place (an estimate that rounds to zero there is ``0.0e-17`` beside u = ``3.2e-17``).
+    place. An estimate that rounds to zero there takes u's form: ``0.00`` beside u = ``0.49``,
+    ``0.0e-08`` beside u = ``1.7e-08`` (which :func:`fmt_u` prints in exponent form).
     """
     if not math.isfinite(y):
         return str(y)
     if u is None or not math.isfinite(u) or u == 0:
         return fmt_num(y, 10)
-    last = _exp10(u) - sig + 1                     # decimal exponent of u's last digit
+    eu = _exp10(u)
+    last = eu - sig + 1                            # decimal exponent of u's last digit
     ey = _exp10(y) if y != 0 else last
+    if round(y / 10.0 ** last) == 0 and not -3 <= eu <= 5:
+        return f"{0:.{sig - 1}f}e{eu:+03d}"       # beside u in exponent form (fmt_u): 0.0e-08
     if ey <= 9 and -9 <= last:
         r = round(y, -last) + 0.0                  # + 0.0: no "-0.00" for a value rounding to 0
         return f"{r:.{max(-last, 0)}f}"
-    if round(y / 10.0 ** last) == 0:
-        return f"{0:.{sig - 1}f}e{_exp10(u):+03d}"
     digits = max(ey - last + 1, 1)
     return f"{y:.{digits - 1}e}"
 

@@ -257,3 +257,5 @@ def test_estimate_rounded_to_the_uncertainty_place():
     assert fmt_value(0.0, 0.49) == "0.00"
     assert fmt_value(5e-5, 1.2e-4) == "0.00005"       # u's last digit at 10⁻⁵
     assert fmt_value(1e-20, 3.2e-17) == "0.0e-17"     # u printed as 3.2e-17
+    assert fmt_value(0.0, 1.7e-8) == "0.0e-08"        # beside u = 1.7e-08, not 0.000000000
+    assert fmt_value(1.00000021, 1.5e-8) == "1.000000210"

@@ -177,8 +177,8 @@ def coverage_statement(m: Measurand, *, fixed_k: bool, mc: MonteCarlo | None = N
 def _not_stabilised(mc: MonteCarlo) -> str:
     """Clause for a Monte Carlo interval that the adaptive procedure did not stabilise."""
     if mc.adaptive and not mc.stabilised:
-        return (", at which the adaptive procedure (JCGM 101 §7.9) stopped before its results "
-                "stabilised")
+        return (" (where the adaptive procedure of JCGM 101 §7.9 stopped before its results "
+                "stabilised)")
     if not mc.adaptive and mc.accuracy:
         return " (a fixed number, not stabilised by the adaptive procedure of JCGM 101 §7.9)"
     return ""
@@ -197,8 +197,8 @@ def stated_result(b: Budget, m: Measurand) -> StatedResult:
         kind = _KIND.get(mc.interval_kind, mc.interval_kind)
         statement = (
             f"The estimate, the standard uncertainty u = {sci(fmt_u(u))}{unit} and the {p} "
-            f"coverage interval ({kind}) were determined by {monte_carlo_method(b)} with "
-            f"{_count(mc.trials)} trials{_not_stabilised(mc)}. This coverage interval is stated as "
+            f"coverage interval ({kind}) were determined with {_count(mc.trials)} trials"
+            f"{_not_stabilised(mc)} by {monte_carlo_method(b)}. This coverage interval is stated as "
             f"the result because the law of propagation of uncertainty (JCGM 100) is not "
             f"validated for {m.name} (JCGM 101 §8: {_validation_clause(mc)}); no coverage "
             f"factor is stated, since the interval does not come from one.")
