@@ -80,6 +80,11 @@ def test_linearity_from_fit_and_resolution(tmp_path):
     lin, res = r.quantities[1], r.quantities[2]
     max_res = r.diagnostics["calibration"]["max_abs_residual_V"]
     assert lin.distribution.half_width == near(max_res / 0.16)
+    # the table (±10 V in 1 V steps) has no point within a factor 2 of 0.16 V: the whole
+    # table's largest residual is used, and said so
+    assert r.diagnostics["calibration"]["linearity_points"] == 0
+    (w,) = [w for w in lin.provenance.warnings if w.code == "voltmeter.linearity_range"]
+    assert "0 calibration point(s) within a factor 2" in w.message
     assert lin.standard_uncertainty == near(max_res / 0.16 / math.sqrt(3))  # a/√3
     # JCGM 100 F.2.2.1: resolution δx → u = δx/√12, here relative to the working voltage
     assert res.standard_uncertainty == near(1e-8 / math.sqrt(12) / 0.16)
@@ -158,3 +163,33 @@ def test_too_few_points_located(tmp_path):
     with pytest.raises(BudgetError, match="too few") as e:   # unweighted line: n ≥ 3
         run_module(ctx(tmp_path, file="cal.csv", linearity=0.0))
     assert e.value.file.endswith("cal.csv")
+
+
+def test_linearity_from_the_points_near_the_working_voltage(tmp_path):
+    # a cubic nonlinearity c·V³ (invented, c = 2e-9 V⁻²) is largest at the ends of a ±10 V
+    # table; at V_w = 1 V it is the points with 0.5 V ≤ |V_ref| ≤ 2 V (factor 2, the default)
+    # that bound it. Residuals of the straight-line fit from numpy.polyfit (an independent
+    # least-squares implementation); no noise, so they are the nonlinearity itself.
+    ref = np.linspace(-10, 10, 41)                     # 0.5 V steps
+    rd = G_TRUE * ref + OFFSET + 2e-9 * ref ** 3
+    write(tmp_path, text="reference_V,reading_V\n" + "".join(
+        f"{float(a)!r},{float(b)!r}\n" for a, b in zip(ref, rd)))
+    slope, icpt = np.polyfit(ref, rd, 1)
+    resid = rd - (slope * ref + icpt)
+    near_wv = (np.abs(ref) >= 0.5) & (np.abs(ref) <= 2.0)
+    assert near_wv.sum() == 8                          # ±0.5, ±1, ±1.5, ±2 V
+    r = run_module(ctx(tmp_path, file="cal.csv", working_voltage_V=1.0))
+    lin = r.quantities[1]
+    assert lin.name == "g_lin" and not lin.provenance.warnings
+    assert lin.distribution.half_width == near(np.max(np.abs(resid[near_wv])), rel=1e-6)
+    # the former rule (largest residual anywhere / V_w) would be several times larger
+    assert np.max(np.abs(resid)) > 3 * np.max(np.abs(resid[near_wv]))
+    assert r.diagnostics["calibration"]["linearity_points"] == 8
+    # a wider neighbourhood takes in more of the range: factor 5 → 0.2 V ≤ |V| ≤ 5 V
+    wide = run_module(ctx(tmp_path, file="cal.csv", working_voltage_V=1.0, linearity_factor=5))
+    sel = (np.abs(ref) >= 0.2) & (np.abs(ref) <= 5.0)
+    assert wide.quantities[1].distribution.half_width == near(np.max(np.abs(resid[sel])),
+                                                              rel=1e-6)
+    with pytest.raises(SpecError) as e:
+        run_module(ctx(tmp_path, file="cal.csv", working_voltage_V=1.0, linearity_factor=1.0))
+    assert e.value.field == "inputs.g.linearity_factor"

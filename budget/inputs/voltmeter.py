@@ -49,8 +49,15 @@ working_voltage_V : float
     ``resolution_V``, which are absolute in volts and enter relative to it.
 linearity : float or "from-fit"
     Relative half-width of the nonlinearity (rectangular), e.g. from the specification; or
-    ``"from-fit"`` (the default with a table): max |residual| / working_voltage_V. With a
-    certificate and no ``linearity`` key there is no linearity row.
+    ``"from-fit"`` (the default with a table): max |residual| / working_voltage_V over the
+    calibration points *near the working voltage*, those with
+    V_w/linearity_factor ≤ |reference_V| ≤ linearity_factor·V_w (both polarities: the
+    nonlinearity at V_w is what the points around it show, not the largest deviation anywhere
+    on the range). With fewer than 2 such points the largest residual of the whole table is
+    used and the warning ``voltmeter.linearity_range`` says that the table does not cover the
+    working voltage. With a certificate and no ``linearity`` key there is no linearity row.
+linearity_factor : float
+    The neighbourhood's factor (> 1). Default 2 (an octave either side of V_w).
 resolution_V : float
     Size of one digit of the reading (V): half a digit bounds the rounding error, rectangular
     (JCGM 100 F.2.2.1), relative to ``working_voltage_V``.
@@ -70,6 +77,7 @@ relative terms ``NAME_lin``, ``NAME_res``, ``NAME_stab`` with the expression
 
 from __future__ import annotations
 
+import dataclasses
 import math
 
 import numpy as np
@@ -92,15 +100,16 @@ __all__ = ["KEYS", "evaluate"]
 KEYS = frozenset({"file", "fit", "inflate", "consistency_level", "gain", "gain_is",
                   "gain_uncertainty", "gain_expanded_uncertainty", "gain_coverage_factor",
                   "gain_coverage_probability",
-                  "gain_dof", "working_voltage_V", "linearity", "resolution_V", "stability",
+                  "gain_dof", "working_voltage_V", "linearity", "linearity_factor",
+                  "resolution_V", "stability",
                   "stability_per_day", "calibration_date", "at"})
 
 _CERT_KEYS = ("gain", "gain_is", "gain_uncertainty", "gain_expanded_uncertainty",
               "gain_coverage_factor", "gain_coverage_probability", "gain_dof")
 
 
-def _from_table(ctx: InputContext, name: str) -> tuple[Quantity, float, dict]:
-    """Fit the calibration table; return g, the largest |residual| (V) and diagnostics."""
+def _from_table(ctx: InputContext, name: str) -> tuple[Quantity, tuple, dict]:
+    """Fit the calibration table; return g, (reference voltages, residuals) in V, diagnostics."""
     for k in _CERT_KEYS:
         if k in ctx.table:
             raise ctx.spec_error(k, "give either a calibration table ('file') or certificate "
@@ -170,7 +179,27 @@ def _from_table(ctx: InputContext, name: str) -> tuple[Quantity, float, dict]:
                             "max_abs_residual_V": float(np.max(np.abs(resid))),
                             "residual_sd_V": f.to_dict()["residual_sd"]},
             "figures": [_residual_figure(ctx, ref, resid)]}
-    return q, float(np.max(np.abs(resid))), diag
+    return q, (np.asarray(ref, dtype=float), resid), diag
+
+
+def _near_working_voltage(ctx: InputContext, cal: tuple, v_w: float, diag: dict
+                          ) -> tuple[float, str, tuple]:
+    """max |residual| (V) of the points near V_w (``linearity``), how it was found, warnings."""
+    factor = ctx.option("linearity_factor", float, 2.0, check=lambda x: x > 1, must="> 1")
+    ref, resid = cal
+    near = (np.abs(ref) >= v_w / factor) & (np.abs(ref) <= v_w * factor)
+    diag["calibration"]["linearity_points"] = int(near.sum())
+    if near.sum() >= 2:
+        worst = float(np.max(np.abs(resid[near])))
+        return worst, (f"max |residual| of the {int(near.sum())} calibration points with "
+                       f"{v_w / factor:.4g} V ≤ |V_ref| ≤ {v_w * factor:.4g} V"), ()
+    worst = float(np.max(np.abs(resid)))
+    msg = (f"{int(near.sum())} calibration point(s) within a factor {factor:g} of the working "
+           f"voltage {v_w:g} V (|V_ref| from {float(np.min(np.abs(ref))):.4g} to "
+           f"{float(np.max(np.abs(ref))):.4g} V): the linearity is the largest residual of the "
+           "whole table, which may not describe the nonlinearity at the working voltage")
+    return worst, f"max |residual| of all {len(ref)} calibration points", (
+        warn("voltmeter.linearity_range", msg),)
 
 
 def _residual_figure(ctx: InputContext, ref: np.ndarray, resid: np.ndarray) -> dict:
@@ -271,27 +300,33 @@ def evaluate(ctx: InputContext) -> ModuleResult:
                                      "'gain' (certificate value)")
     name_cal = f"{ctx.name}_cal"
     if "file" in ctx.table:
-        main, max_resid, diagnostics = _from_table(ctx, name_cal)
+        main, cal, diagnostics = _from_table(ctx, name_cal)
     else:
-        (main, diagnostics), max_resid = _from_certificate(ctx, name_cal), None
+        (main, diagnostics), cal = _from_certificate(ctx, name_cal), None
     terms: list[tuple[str, Quantity]] = []
 
-    lin = ctx.option("linearity", (float, str), "from-fit" if max_resid is not None else None)
+    lin = ctx.option("linearity", (float, str), "from-fit" if cal is not None else None)
     if isinstance(lin, str):
         if lin != "from-fit":
             raise ctx.spec_error("linearity", f"must be a number or \"from-fit\"; got {lin!r}")
-        if max_resid is None:
+        if cal is None:
             raise ctx.spec_error("linearity", "\"from-fit\" needs a calibration table ('file')")
         v_w = ctx.number("working_voltage_V", positive=True)
-        terms.append(("lin", relative_term(
+        max_resid, which, lin_ws = _near_working_voltage(ctx, cal, v_w, diagnostics)
+        q_lin = relative_term(
             ctx, name=f"{ctx.name}_lin", value=0.0, half_width=max_resid / v_w,
             description="voltmeter nonlinearity (from the calibration residuals)",
-            method=(f"half-width = max |residual| / working voltage = {max_resid:.3g} V / "
+            method=(f"half-width = {which} / working voltage = {max_resid:.3g} V / "
                     f"{v_w:g} V"),
-            reason=("the largest deviation from the fitted line is taken as a bound on the "
-                    "nonlinearity error, with no preferred value inside it (JCGM 100 4.3.7)"),
+            reason=("the largest deviation from the fitted line near the working voltage is "
+                    "taken as a bound on the nonlinearity error there, with no preferred value "
+                    "inside it (JCGM 100 4.3.7)"),
             notes=("the residuals also contain the reading noise already in u(g): a "
-                   "conservative double count",))))
+                   "conservative double count",) + tuple(w.message for w in lin_ws))
+        if lin_ws:
+            q_lin = dataclasses.replace(q_lin, provenance=dataclasses.replace(
+                q_lin.provenance, warnings=q_lin.provenance.warnings + lin_ws))
+        terms.append(("lin", q_lin))
     elif lin is not None:
         if not lin >= 0:
             raise ctx.spec_error("linearity", f"must be >= 0; got {lin!r}")
