@@ -98,3 +98,50 @@ def test_glitch_warning_states_the_effect_on_U(tmp_path, capsys, glitched):
     assert "effect on the result" in err
     # the glitch spreads the differences: U with it is larger (issue 12: 0.73 → 4.8·10⁻⁶)
     assert m["expanded_uncertainty"] > 2 * u_without
+
+
+def test_on_segment_glitch_is_placed_in_its_segment(tmp_path, capsys, glitched):
+    t, y, on, start = glitched
+    rc, rec, err = run(write(tmp_path, t, y, on, settle_s=60), capsys)
+    (c,) = cycles_diag(rec)["glitches"]["cycles"]
+    seg = c["outlier_segment"]
+    # segment 73 (on) holds readings 73·120 … 74·120 − 1 (1 s sampling from t = 0): rows
+    # 8761-8880 (1-based data rows); the glitch covers start + 70 … start + 109 s
+    assert seg["state"] == "on" and seg["rows"] == "8761-8880" == c["rows"]
+    assert start + 70 <= seg["peak_time_s"] < start + 110
+    assert "outlier in the on segment r.csv rows 8761-8880" in err
+
+
+def test_off_segment_glitch_names_the_off_segment(tmp_path, capsys):
+    # the truth: a 40 s glitch of 2e-7 V inside off segment 74 (even index: off), which the
+    # linear estimator shares between cycles 37 (on segment 73) and 38 (on segment 75)
+    t, y, on = chain(np.random.default_rng(2028), 100)
+    start = 74 * 120.0
+    y = y.copy()
+    y[(t >= start + 70) & (t < start + 110)] += 2e-7
+    rc, rec, err = run(write(tmp_path, t, y, on, settle_s=60), capsys)
+    assert rc == 0
+    cyc = cycles_diag(rec)["glitches"]["cycles"]
+    assert [c["cycle"] for c in cyc] == [37, 38]
+    for c in cyc:
+        seg = c["outlier_segment"]
+        # rows of segment 74: 74·120 + 1 … 75·120 (1-based), times 8880 … 8999 s
+        assert seg["state"] == "off" and seg["rows"] == "8881-9000"
+        assert seg["time_s"] == [8880.0, 8999.0]
+        assert start + 70 <= seg["peak_time_s"] < start + 110
+    assert "outlier in the off segment r.csv rows 8881-9000 (8880-8999 s" in err
+    assert "cycle 37 (r.csv rows 8761-8880" in err and "cycle 38 (r.csv rows 9001-9120" in err
+
+
+def test_segment_scores_synthetic_truth():
+    # alternating states, flat levels 0 (off) and 1 (on) with a little scatter; one off
+    # segment raised by 50 σ: it scores highest, its same-state neighbours about half of it
+    rng = np.random.default_rng(5)
+    n = 40
+    on = np.arange(n) % 2 == 1
+    mean = on.astype(float) + 0.01 * rng.normal(size=n)
+    mean[20] += 0.5
+    s = glitches.segment_scores(mean, np.arange(n) * 10.0, on)
+    assert int(np.argmax(s)) == 20
+    assert s[18] < s[20] and s[22] < s[20]
+    assert s[18] > 5 and s[22] > 5          # ±½ of the step (derivation: r_(j±2) = −0.25)

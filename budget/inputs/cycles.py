@@ -261,43 +261,6 @@ def _reject(diff: onoff.Differences, o: dict[str, Any]) -> np.ndarray:
     return np.ones(diff.n, dtype=bool)
 
 
-def _glitch_findings(records: list[_Record], names: list[str], pooled: onoff.Differences,
-                     res: typea.TypeA, o: dict[str, Any]) -> tuple[dict[str, Any], list]:
-    """The robust screen of all cycles (budget.inputs.glitches), with the result without the
-    flagged ones when they were kept."""
-    scr = glitches.screen(pooled.d, o["rejection_limit"])
-    listed = []
-    for k in np.flatnonzero(scr.flagged).tolist():
-        r = records[int(pooled.record[k])]
-        j = int(pooled.on_seg[k])
-        listed.append({"cycle": k + 1, "file": names[int(pooled.record[k])],
-                       "rows": f"{r.first_row + r.seg.start[j] + 1}-{r.first_row + r.seg.stop[j]}",
-                       "time_s": float(pooled.t[k]), "difference": float(pooled.d[k]),
-                       "sigma_distance": float(scr.distance[k])})
-    diag: dict[str, Any] = {**scr.to_dict(), "cycles": listed[:100], "if_rejected": None}
-    ws = []
-    if listed and o["rejection"] == "none" and pooled.n - len(listed) >= 2:
-        alt = pooled.subset(~scr.flagged)
-        try:
-            r2 = typea.analyse(alt.d, onoff.white_model(alt), o["whiteness_level"])
-        except ComputationError:
-            r2 = None
-        if r2 is not None:
-            diag["if_rejected"] = {"mean_difference": r2.mean, "u": r2.u, "dof": r2.dof,
-                                   "cycles_used": r2.n}
-            unit = o["unit"]
-            which = "; ".join(f"cycle {x['cycle']} ({x['file']} rows {x['rows']}) at "
-                              f"{x['time_s']:.6g} s lies {x['sigma_distance']:.3g} σ from the "
-                              "median" for x in listed[:5]) + (" ..." if len(listed) > 5 else "")
-            ws.append(warn("cycles.glitch", f"{len(listed)} cycle difference(s) beyond "
-                           f"{o['rejection_limit']:g} robust standard deviations (σ_MAD = "
-                           f"{scr.sigma_mad:.3g} {unit}): {which}; kept in the result "
-                           f"({res.mean:.8g} ± {res.u:.3g} {unit}); without them it would be "
-                           f"{r2.mean:.8g} ± {r2.u:.3g} {unit}; consider rejection = \"mad\" "
-                           "if they are glitches"))
-    return diag, ws
-
-
 def evaluate(ctx: InputContext) -> ModuleResult:
     """Evaluate the ``cycles`` input (see the module docstring for options and method)."""
     o = _options(ctx)
@@ -353,7 +316,7 @@ def evaluate(ctx: InputContext) -> ModuleResult:
     settle_diag, settle_ws, settle_figs = settling_findings(ctx, raws, records, assess, names,
                                                             res.u_white, o)
     diagnostics["settling"] = settle_diag
-    diagnostics["glitches"], glitch_ws = _glitch_findings(records, names, pooled, res, o)
+    diagnostics["glitches"], glitch_ws = glitches.findings(records, names, pooled, res, o)
     if diagnostics["glitches"]["if_rejected"]:   # in SI too, for the effect on the result's U
         alt, scale = diagnostics["glitches"]["if_rejected"], _unit(ctx, o["unit"]).scale
         alt.update(value_si=alt["mean_difference"] * scale, u_si=alt["u"] * scale)
