@@ -71,3 +71,20 @@ standard_uncertainty = 0.2
     html = render_html(evaluate(spec))
     assert "Between measurands" not in html
     assert "y and z: correlation coefficient 1.000" in re.sub(r"\s+", " ", html)
+
+
+def test_summary_first_with_top_five_and_warnings():
+    # the summary's rules: largest shares first, at most five (issue 13 item 4); the shares
+    # of y = a + b + … with u = 0.1·i are i²/Σi² (JCGM 100 eq. 10, c = 1; by hand)
+    names = [f"x{i}" for i in range(1, 8)]
+    text = "[budget]\ntitle = \"seven terms (invented numbers)\"\n[model]\ny = \"" + \
+        " + ".join(names) + "\"\n[monte_carlo]\nenabled = false\n" + "".join(
+            f"[inputs.{n}]\nvalue = 1.0\nstandard_uncertainty = {0.1 * i:.1f}\n"
+            for i, n in enumerate(names, 1))
+    html = render_html(evaluate(parse_spec(text)))
+    head = html[html.index('id="summary"'):html.index('id="results"')]
+    top = re.findall(r'<td class="q">(x\d)</td>', head)
+    assert top == ["x7", "x6", "x5", "x4", "x3"]
+    assert "… and 2 more in the budget table" in head
+    assert "Warnings" in head and "None." in head
+    assert f"{100 * 49 / 140:.1f} %" in head          # 7²/Σ_{i=1..7} i² = 49/140

@@ -274,6 +274,23 @@ def _cautions(b: Budget) -> list[str]:
     return out
 
 
+def _summary(b: Budget, blocks: list[dict[str, Any]]) -> dict[str, Any]:
+    """The first page: each result line, the five largest terms of each measurand (signed
+    u_i(y) and share bar) and the warnings."""
+    top = []
+    for m, blk in zip(b.measurands, blocks):
+        rows = sorted((r for g in grouped_rows(b, m) for r in g.rows), key=lambda r: -r.share)
+        said = (b.run.get("outputs") or {}).get(m.name)
+        sym = said.get("symbol") if isinstance(said, dict) and said.get("symbol") else m.name
+        top.append({"label": blk["label"], "symbol": symbol_html(str(sym)),
+                    "unit": blk["unit_sfx"].strip(),
+                    "rows": [_term_row(r, m.unit) for r in rows[:5]],
+                    "more": max(len(rows) - 5, 0)})
+    warns = [{"severity": w.severity, "code": w.code, "input": w.input, "message": w.message}
+             for w in b.warnings]
+    return {"top": top, "warnings": warns}
+
+
 def _label_measurands(b: Budget, blocks: list[dict[str, Any]], view: dict[str, Any]) -> None:
     """Each measurand block's ``label`` (its name in words and its symbol, as HTML) and
     ``equation`` (the typeset model line)."""
@@ -386,7 +403,7 @@ def build_context(b: Budget, *, certificate: bool = False, draft: bool = True,
         "measurand_tied": tied,
         "cautions": _cautions(b), "files": files, "settings": settings,
         "model": [(str(k), str(v)) for k, v in (run.get("model") or {}).items()],
-        "model_view": view,
+        "model_view": view, "summary": _summary(b, measurands),
         "constants": [(str(k), sci(fmt_num(float(v), 10)))
                       for k, v in (run.get("constants") or {}).items()],
         "software": _s(run.get("software")), "spec_sha256": _s(run.get("spec_sha256")),

@@ -137,4 +137,22 @@ def model_view(b: Budget) -> dict[str, Any]:
         unit = (str(chain[2]) if len(chain) > 2 and chain[2] else _input_unit(b, name))
         rows.append((symbol_html(sym.get(name, name)), meaning, unit,
                      "input, " + (_origin(b, name) or "see the input details")))
-    return {"equations": equations, "symbols": rows}
+    chain = [{"symbol": r[0], "meaning": r[1], "unit": r[2],
+              "origin": r[3].removeprefix("input, "),
+              "files": _files_of(b, name)}
+             for name, r in zip([n for n in used if n not in model and n not in constants],
+                                [r for r in rows[len(model):] if not
+                                 str(r[3]).startswith("constant")])]
+    return {"equations": equations, "symbols": rows, "chain": chain}
+
+
+def _files_of(b: Budget, name: str) -> str:
+    """The data files an input was read from (by name), for the chain diagram."""
+    mod = (b.run.get("modules") or {}).get(name)
+    names = set(mod.get("quantities") or []) if isinstance(mod, dict) else {name}
+    files = []
+    for q in b.inputs:
+        if q.name in names or q.name == name:
+            files += [f.path.rsplit("/", 1)[-1] for f in q.provenance.files
+                      if f.path.rsplit("/", 1)[-1] not in files]
+    return ", ".join(files)
