@@ -88,3 +88,15 @@ def test_summary_first_with_top_five_and_warnings():
     assert "… and 2 more in the budget table" in head
     assert "Warnings" in head and "None." in head
     assert f"{100 * 49 / 140:.1f} %" in head          # 7²/Σ_{i=1..7} i² = 49/140
+
+
+def test_comparison_figure_names_the_runs_titles():
+    from budget.report.figures import compare_figure
+    fig = {"id": "cmp", "title": "runs", "xlabel": "run", "ylabel": "dev (µA/A)",
+           "xscale": "linear", "yscale": "linear",
+           "series": [{"label": "runs", "style": "points", "x": [1, 2], "y": [0.1, -0.2],
+                       "yerr": [0.5, 0.6]}]}
+    svg = compare_figure(fig, ["run 1", "run 2"], ["Pump A at 600 MHz (invented)",
+                                                   "Cost $5 (invented)"])
+    texts = " ".join(t.text or "" for t in ET.fromstring(svg).iter() if t.tag.endswith("text"))
+    assert "Pump A at 600 MHz (invented)" in texts and "Cost $5 (invented)" in texts

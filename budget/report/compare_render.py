@@ -153,7 +153,8 @@ def compare_html(c: Comparison, *, files: Sequence[str] = (), software: str = "q
                       en_table=macro, against=against, terms=terms, notes=list(c.notes),
                       basis_sentence=en_basis_text(c.en_basis),
                       used_k="(stated)" if c.en_basis == "stated" else "(k = 2)",
-                      figure=svg_data_uri(compare_figure(c.figure, [r.label for r in c.runs])),
+                      figure=svg_data_uri(compare_figure(c.figure, [r.label for r in c.runs],
+                                                         [r.title for r in c.runs])),
                       software=software, laboratory=laboratory, identifier=identifier,
                       date=date)
 

@@ -349,11 +349,14 @@ _COMPARE_RC = {"svg.fonttype": "none", "svg.hashsalt": "qcs-budget-compare",
        "grid.alpha": 0.3, "axes.spines.top": False, "axes.spines.right": False}
 
 
-def compare_figure(fig: dict[str, Any], run_labels: Sequence[str]) -> str:
+def compare_figure(fig: dict[str, Any], run_labels: Sequence[str],
+                   run_titles: Sequence[str] = ()) -> str:
     """SVG text of the comparison figure (``fig`` as built by :func:`budget.compare.compare_runs`):
     each run with its expanded uncertainty as an error bar over the reference (or weighted-mean)
-    band, one x tick per run labelled with ``run_labels`` (which :func:`module_figure` cannot do).
+    band, one x tick per run labelled with ``run_labels`` and, under it, the run's title from
+    ``run_titles`` (wrapped, at most three lines; which :func:`module_figure` cannot do).
     """
+    import textwrap
     import matplotlib
     from matplotlib.figure import Figure
 
@@ -372,7 +375,18 @@ def compare_figure(fig: dict[str, Any], run_labels: Sequence[str]) -> str:
                 ax.errorbar(s["x"], s["y"], yerr=s.get("yerr"), fmt="o", ms=4, lw=1.0,
                             capsize=3, color="#c0392b", label=label)
         n = len(run_labels)
-        ax.set_xticks(range(1, n + 1), list(run_labels))
+        width = max(14, 100 // max(n, 1))
+        ticks = []
+        for i, lab in enumerate(run_labels):
+            title = run_titles[i] if i < len(run_titles) else ""
+            lines = textwrap.wrap(title, width)[:3] if title else []
+            if title and len(textwrap.wrap(title, width)) > 3:
+                lines[-1] = lines[-1][: width - 1] + "…"
+            ticks.append("\n".join([lab] + lines))
+        ax.set_xticks(range(1, n + 1), ticks)
+        for t in ax.get_xticklabels():
+            t.set_parse_math(False)       # a "$" in a title is a character
+            t.set_fontsize(7.0 if run_titles else 8.0)
         ax.set_xlim(0.5, n + 0.5)
         ax.grid(axis="x", visible=False)
         ax.set_xlabel(f["xlabel"])
