@@ -278,6 +278,9 @@ def test_unequal_segments_linear_drift_cancels_exactly():
 
 # ------------------------------------------------------------------- the module end to end
 def test_module_matches_pipeline_and_reports(tmp_path):
+    # Wiring check (issue 18: not a value check): the module's quantity equals the statistics
+    # run on the same arrays (pipeline() above, the same code), read back through the CSV; the
+    # value check is the recovery of the known STEP below and the ensembles above.
     rng = np.random.default_rng(8)
     t, y, on = synth(rng, 100)
     write_csv(tmp_path / "run.csv", t, y, on)

@@ -288,7 +288,8 @@ def test_common_practice_exponential_gate_dependence(tmp_path):
 
 
 def test_best_gate_voltage_is_a_maximum():
-    # Derivation: at the returned voltage P(exactly n) is not exceeded anywhere on a fine grid.
+    # Self-consistency of the optimiser (not a value check of the model): at the returned
+    # voltage P(exactly n) is not exceeded anywhere on a fine grid of the same model.
     model = EscapeModel(3, "per-electron", V_REF)
     theta = np.concatenate([np.log(TAU0), B])[None, :]
     best = model.best_gate_voltage(theta, 3e-7, 2, (-0.36, -0.24))

@@ -188,6 +188,10 @@ def test_autocorrelation_option_dof_is_n_eff_minus_one():
         k += 1
     n_eff = n / (1 + 2 * total)
     assert res.acorr.n_eff == near(n_eff, rel=1e-12)
+    # the lag-1 autocorrelation reported beside it, and the white model's ρ_1 = (1/4)/(3/2)
+    # = 1/6 for a regular record (onoff.py docstring, derived above)
+    assert res.r1 == near(r[1], rel=1e-12)
+    assert res.r1_model == near(1 / 6, rel=1e-12)
     assert res.dof == near(n_eff - 1.0, rel=1e-12)
     s = d.std(ddof=1)
     assert res.u == near(s / math.sqrt(n_eff), rel=1e-12)
@@ -230,6 +234,7 @@ def test_planning_allan_floor_by_hand():
         res.fit = SimpleNamespace(a=2.0, b=b)
         plan = typea.planning(res, model, 0.25, 20.0, 1280.0)
         assert plan["cycles_needed"] is None and "unreachable" in plan["text"]
+        assert plan["reached"] is False
 
 
 def test_planning_white_by_hand_and_zero_mean():
@@ -245,6 +250,11 @@ def test_planning_white_by_hand_and_zero_mean():
     zero = typea.planning(SimpleNamespace(mean=0.0, method="white", n=50, u=0.3, fit=None),
                           SimpleNamespace(var_mean=1.0), 0.1, 4.0, 200.0)
     assert zero["cycles_needed"] is None and "undefined" in zero["text"]
+    assert zero["reached"] is False
+    # u exactly at the target (0.25 = 0.25·1, exact in binary) counts as reached
+    at = typea.planning(SimpleNamespace(mean=1.0, method="white", n=50, u=0.25, fit=None),
+                        SimpleNamespace(var_mean=1.0), 0.25, 4.0, 200.0)
+    assert at["reached"] is True and at["cycles_needed"] == near(50.0, rel=1e-12)
 
 
 # ------------------------------------------------------------------ segments and pooling
