@@ -65,7 +65,13 @@ def test_killed_parallel_add_leaves_the_book_and_no_worker(files, tmp_path):
     import time
     book = tmp_path / "book.sqlite"
     add_files(book, files[:3], workers=1)
-    many = [variant(files[i % 40], tmp_path / f"m{i:04d}.json", 1000 + i) for i in range(3000)]
+    # copies of the 40 variants: the add is killed while the workers read, before the
+    # duplicates would be refused
+    raws = [f.read_bytes() for f in files]
+    many = []
+    for i in range(3000):
+        many.append(tmp_path / f"m{i:04d}.json")
+        many[-1].write_bytes(raws[i % len(raws)])
     proc = subprocess.Popen([sys.executable, "-c", (
         "import sys\nfrom budget.logbook import add_files\n"
         "add_files(sys.argv[1], sys.argv[2:], workers=2)"), str(book), *map(str, many)])
