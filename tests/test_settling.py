@@ -139,6 +139,7 @@ def test_default_recovers_the_truth_and_reports_tau(tmp_path, capsys, record):
     assert 38 <= s["settle_s"] <= 60
     assert s["fit"]["tau_s"] == near(TAU, abs=0.05)
     assert "cycles.default_settle" in err and f"{s['settle_s']:.4g} s" in err
+    assert f"τ = {s['fit']['tau_s']:.3g} ± " in err           # the fitted τ on the terminal
     codes = {w["code"] for w in rec["warnings"]}
     assert "cycles.default_settle" in codes and "cycles.transient" not in codes
     assert any(f["id"] == "cycles-settling" for f in cycles_diag(rec)["figures"])
