@@ -11,6 +11,15 @@
   of the model I = n·e·f. When they differ the pump term belongs to another plateau than the
   current computed, and the result has no meaning: the warning ``pump.plateau_mismatch`` of
   severity ``"error"`` (``budget sign`` refuses it unless ``--accept-warnings``).
+* **Current against n·e·f.** Every measurand in a unit of current is compared with the
+  nominal n·e·f (:mod:`budget.nominal`: n and e from the constants, f from the frequency
+  module's nominal value, a constant ``f0``/``f`` or the input ``f``). A relative deviation
+  beyond :data:`PLAUSIBLE_DEVIATION` (1e-3, project convention: a pump on its plateau is within
+  ~1e-5) is the warning ``pump.implausible_current`` of severity ``"error"``, naming the likely
+  cause: a ratio I/(n·e·f) near −1 (deviation −2) is a reversed sign (pump column labels
+  swapped, leads or polarity reversed), near m/n a record on plateau m (n = 2 on an n = 1
+  record: deviation −1/2 = −(1 − 1/n)), near 10^(3k) a unit prefix (``unit = "mV"`` on a file
+  in volts: deviation −0.999); otherwise it lists them all.
 """
 
 from __future__ import annotations
@@ -30,7 +39,7 @@ if TYPE_CHECKING:  # pragma: no cover - annotations only
     from .result import Measurand
     from .spec import Spec
 
-__all__ = ["after_propagation"]
+__all__ = ["after_propagation", "PLAUSIBLE_DEVIATION"]
 
 
 def after_propagation(warnings: list[Warning], spec: Spec, model: Model, qs: list[Quantity],
@@ -43,7 +52,8 @@ def after_propagation(warnings: list[Warning], spec: Spec, model: Model, qs: lis
     """
     out = [_with_glitch_effect(w, spec, model, qs, resolved, measurands)
            if w.code == "cycles.glitch" else w for w in warnings]
-    return out + _plateau_check(spec, resolved.modules)
+    return (out + _plateau_check(spec, resolved.modules)
+            + _plausibility(model, qs, resolved.modules, measurands))
 
 
 def _diag(modules: dict[str, Any], name: str) -> dict[str, Any]:
@@ -100,4 +110,74 @@ def _plateau_check(spec: Spec, modules: dict[str, Any]) -> list[Warning]:
                             "the model's n·e·f and the pump's δ then describe different "
                             "currents — set n to the plateau the pump ran on",
                             severity="error", input=name))
+    return out
+
+
+#: Project convention: a current further than this from n·e·f (relative) is not a pump on its
+#: plateau. A quantized pump on its plateau is within ~1e-5 of n·e·f and the chain's
+#: calibrated instruments within ~1e-5 of nominal, so 1e-3 is a hundred times beyond any
+#: plausible pump or chain error and ten times below the smallest blunder it screens for
+#: (a wrong n is off by ≥ 1/n − 1/(n+1) of n·e·f, a unit prefix by a factor 1000).
+PLAUSIBLE_DEVIATION = 1e-3
+#: How close (relative, on the ratio I/(n·e·f)) the ratio must come to a blunder's ratio to
+#: be named as that blunder: 1 %, ten times the plausibility bound (project convention).
+_BLUNDER_MATCH = 1e-2
+
+
+def _blunders(ratio: float, n: float) -> list[str]:
+    """Likely causes of I/(n·e·f) = ``ratio``, most specific first (empty: none recognised)."""
+    out = []
+    sign = -1.0 if ratio < 0 else 1.0
+    mag = abs(ratio)
+    flip = ("the sign is reversed: pump column labels on/off swapped, or the leads or the "
+            "polarity reversed" if sign < 0 else "")
+    # a unit prefix: |ratio| ≈ 10^(3k), k ≠ 0 (e.g. unit = "mV" on a file in volts: 10⁻³)
+    k = round(math.log10(mag) / 3) if mag > 0 else 0
+    if k and abs(mag / 10.0 ** (3 * k) - 1) < _BLUNDER_MATCH:
+        out.append(f"the magnitude is off by 10^{3 * k}: a unit prefix (e.g. unit = \"mV\" "
+                   "for readings in V, or the resistor in kΩ for Ω)")
+    # another plateau: |ratio| ≈ m/n (integer m ≠ n, 1 ≤ m ≤ 2n)
+    if n > 0 and not out:
+        m = round(mag * n)
+        if m >= 1 and m != round(n) and abs(mag * n / m - 1) < _BLUNDER_MATCH:
+            out.append(f"the current is {m}/{n:g} of n·e·f: the record looks like plateau "
+                       f"n = {m}, not the spec's n = {n:g}")
+    if flip and (out or abs(mag - 1) < _BLUNDER_MATCH):
+        out.insert(0, flip)
+    return out
+
+
+def _plausibility(model: Model, qs: list[Quantity], modules: dict[str, Any],
+                  measurands: tuple[Measurand, ...]) -> list[Warning]:
+    """Each current-valued measurand against the nominal n·e·f (module docstring)."""
+    from .nominal import nominal_from
+    from .result import display_scale
+    from .units import UnitError, parse_unit
+    point = nominal_from(model.constants, modules, qs)
+    if point is None or not point.current_a or not math.isfinite(point.current_a):
+        return []
+    out = []
+    for m in measurands:
+        try:
+            unit = parse_unit(m.unit or "1")
+        except UnitError:
+            continue
+        if unit.si != "A" or unit.is_offset:
+            continue
+        conv = display_scale(m.unit)
+        value = m.value * (conv[0] if conv else 1.0)
+        ratio = value / point.current_a
+        dev = ratio - 1.0
+        if not math.isfinite(dev) or abs(dev) <= PLAUSIBLE_DEVIATION:
+            continue
+        causes = _blunders(ratio, point.n)
+        why = ("likely cause: " + "; ".join(causes)) if causes else (
+            "check the sign and polarity (pump column labels, leads), n, the reading's unit "
+            "and the frequency and resistor values")
+        out.append(warn("pump.implausible_current",
+                        f"{m.name} = {value:.7g} A is {dev:+.6g} (relative) from the nominal "
+                        f"n·e·f = {point.current_a:.7g} A (n = {point.n:g}, f = "
+                        f"{point.frequency_hz:.9g} Hz, {point.frequency_source}); a pump on "
+                        f"its plateau is within ~1e-5, the bound is {PLAUSIBLE_DEVIATION:g}: "
+                        f"{why}", severity="error"))
     return out

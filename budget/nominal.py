@@ -15,7 +15,7 @@ from typing import TYPE_CHECKING, Any
 if TYPE_CHECKING:  # pragma: no cover - annotations only
     from .result import Budget
 
-__all__ = ["NominalPoint", "nominal_point", "nominal_text"]
+__all__ = ["NominalPoint", "nominal_point", "nominal_from", "nominal_text"]
 
 
 @dataclass(frozen=True)
@@ -65,11 +65,30 @@ def nominal_point(b: Budget) -> NominalPoint | None:
     -------
     NominalPoint or None
     """
-    const = b.run.get("constants") or {}
+    modules = b.run.get("modules") if isinstance(b.run.get("modules"), dict) else {}
+    return nominal_from(b.run.get("constants") or {}, modules, b.inputs)
+
+
+def nominal_from(const: dict[str, Any], modules: dict[str, Any],
+                 inputs: Any) -> NominalPoint | None:
+    """The operating point from a budget's parts (before the Budget is made).
+
+    Parameters
+    ----------
+    const : dict
+        The model's constants (``n``, ``e``, ``f0`` or ``f``), SI.
+    modules : dict
+        The input modules' entries (``module``, ``diagnostics``), as in the record's run.
+    inputs : iterable of Quantity
+        The input quantities (an input ``f`` in Hz is the last resort for f).
+
+    Returns
+    -------
+    NominalPoint or None
+    """
     n, e = _number(const.get("n")), _number(const.get("e"))
     if n is None or e is None:
         return None
-    modules = b.run.get("modules") if isinstance(b.run.get("modules"), dict) else {}
     f = source = None
     point: dict[str, Any] = {}
     for name, mod in modules.items():
@@ -89,7 +108,7 @@ def nominal_point(b: Budget) -> NominalPoint | None:
         if f is None and _number(const.get(key)) is not None:
             f, source = _number(const[key]), f"constant {key}"
     if f is None:
-        for q in b.inputs:
+        for q in inputs:
             if q.name == "f" and q.unit == "Hz":
                 f, source = q.value, "estimate of the input f"
     if f is None:
