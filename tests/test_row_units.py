@@ -61,3 +61,13 @@ def test_report_rows_carry_the_units():
     assert rows["V_on"]["u"].endswith(" V") and rows["V_on"]["c"].endswith(" A/V")
     assert rows["R"]["u"].endswith(" Ω") and rows["R"]["c"].endswith(" A/Ω")
     assert rows["g"]["c"].endswith(" A") and not rows["g"]["u"].endswith(" 1")
+
+
+def test_monte_carlo_line_carries_the_display_unit():
+    # the Monte Carlo numbers are in the display unit as the linear ones are (pico = 1e-12)
+    from budget.text.budget_table import budget_text
+    text = SPEC.format(units='[units]\nI = "pA"').replace(
+        "enabled = false", 'trials = 2000\nseed = 5\nsampling = "random"')
+    out = budget_text(evaluate(parse_spec(text)))
+    line = next(ln for ln in out.splitlines() if "Monte Carlo (" in ln)
+    assert line.count(" pA") == 3 and "] pA" in line

@@ -107,13 +107,16 @@ def budget_text(b: Budget) -> str:
             verdict = {"validated": "validated", "inconclusive": "neither validated nor "
                        "shown not validated (INCONCLUSIVE)"}.get(mc.verdict, "NOT validated")
             how = ", adaptive" if mc.adaptive else ", fixed: not stabilised"
+            mu = unit_suffix(m.unit)    # the Monte Carlo numbers are in the display unit too
             out.append(f"  Monte Carlo ({mc.trials:,} trials{how}): "
-                       f"y = {fmt_value(mc.value, mc.standard_uncertainty)}, "
-                       f"u = {fmt_u(mc.standard_uncertainty)}, {100 * p:g} % {mc.interval_kind} "
-                       f"interval [{fmt_value(mc.interval_low, mc.standard_uncertainty)}, "
-                       f"{fmt_value(mc.interval_high, mc.standard_uncertainty)}]")
-            out.append(f"  linear result {verdict} (JCGM 101 §8: d_low = {fmt_num(mc.d_low, 2)}, "
-                       f"d_high = {fmt_num(mc.d_high, 2)}, δ = {fmt_num(mc.tolerance, 2)})")
+                       f"y = {fmt_value(mc.value, mc.standard_uncertainty)}{mu}, "
+                       f"u = {fmt_u(mc.standard_uncertainty)}{mu}, {100 * p:g} % "
+                       f"{mc.interval_kind} interval "
+                       f"[{fmt_value(mc.interval_low, mc.standard_uncertainty)}, "
+                       f"{fmt_value(mc.interval_high, mc.standard_uncertainty)}]{mu}")
+            out.append(f"  linear result {verdict} (JCGM 101 §8: d_low = {fmt_num(mc.d_low, 2)}"
+                       f"{mu}, d_high = {fmt_num(mc.d_high, 2)}{mu}, "
+                       f"δ = {fmt_num(mc.tolerance, 2)}{mu})")
     shown_as_warning = {w.message for w in b.warnings}  # printed on stderr instead
     for note in b.run.get("notes", []):
         if note not in shown_as_warning:
