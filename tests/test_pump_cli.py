@@ -76,7 +76,7 @@ def test_errors_are_one_line_with_exit_2(tmp_path, capsys):
           "--write-fit", str(out)], "--allow-extrapolation"),
         (["pump", "fit", str(tmp_path / "none.csv"), "--model", "decay-cascade"], "not found"),
         (["pump", "fit", str(f), "--model", "decay-cascade", "--figures",
-          str(tmp_path / "nofolder")], "--figures"),
+          str(f)], "is not a folder"),
         (["pump", "fit", str(f), "--model", "decay-cascade", "--hold-time", "1e-7"],
          "--hold-time"),
     ]
@@ -85,3 +85,16 @@ def test_errors_are_one_line_with_exit_2(tmp_path, capsys):
         err = capsys.readouterr().err.strip().splitlines()
         assert len(err) == 1 and expect in err[0] and "Traceback" not in err[0]
     assert not out.exists()
+
+
+def test_missing_output_folders_are_created(tmp_path, capsys):
+    # issue 13 item 8: the folders of --figures and --write-fit are created (and only then)
+    f = scan(tmp_path)
+    figs, fit = tmp_path / "out" / "figs", tmp_path / "out" / "fits" / "plateau.toml"
+    assert main(["pump", "fit", str(f), "--model", "decay-cascade", "--figures", str(figs),
+                 "--write-fit", str(fit)]) == 0
+    assert fit.is_file() and any(figs.glob("*.svg"))
+    # a refusal after the folders' check leaves none behind
+    assert main(["pump", "fit", str(f), "--model", "decay-cascade", "--hold-time", "1e-7",
+                 "--figures", str(tmp_path / "never" / "figs")]) == 2
+    assert not (tmp_path / "never").exists()

@@ -79,10 +79,13 @@ def _cmd_pump_fit(args) -> int:
     data = Path(args.data)
     if not data.is_file():
         raise UsageError("file not found", file=args.data, field="DATA")
-    if args.write_fit:
+    # missing output folders are created when the outputs are written (README "budget pump
+    # fit"); here only that they can be: the nearest existing ancestor is a folder
+    fit_folders = _folders_to_create(Path(args.write_fit).parent, "--write-fit") \
+        if args.write_fit else []
+    if args.write_fit and not fit_folders:
         check_writable(args.write_fit, force=args.force, field="--write-fit")
-    if args.figures and not Path(args.figures).is_dir():
-        raise UsageError("the folder does not exist", file=args.figures, field="--figures")
+    fig_folders = _folders_to_create(Path(args.figures), "--figures") if args.figures else []
     if args.temperatures and not Path(args.temperatures).is_file():
         raise UsageError("file not found", file=args.temperatures, field="--temperatures")
     if data.suffix.lower() in (".toml", ".json"):
@@ -121,11 +124,54 @@ def _cmd_pump_fit(args) -> int:
     if args.write_fit:
         fmt = "json" if args.write_fit.lower().endswith(".json") else "toml"
         outputs.append((args.write_fit, fit_file_text(a.record, fmt)))
-    for p, _ in figures:
-        check_writable(p, force=args.force, field="--figures")
-    write_outputs(*outputs, force=args.force)  # the fit file and the figures: all or none
+    made = _make_folders(fit_folders + [f for f in fig_folders if f not in fit_folders])
+    try:
+        if args.write_fit and fit_folders:
+            check_writable(args.write_fit, force=args.force, field="--write-fit")
+        for p, _ in figures:
+            check_writable(p, force=args.force, field="--figures")
+        write_outputs(*outputs, force=args.force)  # the fit file and the figures: all or none
+    except BaseException:
+        for folder in reversed(made):           # only the empty folders this run created
+            try:
+                folder.rmdir()
+            except OSError:
+                pass
+        raise
     if args.write_fit:
         print(f"\nfit result written to {shown_output(args.write_fit)}")
     if figures:
         print(f"figures written to {args.figures}: " + ", ".join(p.name for p, _ in figures))
     return EXIT_OK
+
+
+def _folders_to_create(folder: Path, field: str) -> list[Path]:
+    """The missing folders from the nearest existing ancestor down to ``folder`` (outermost
+    first); UsageError when that ancestor, or ``folder`` itself, is not a folder."""
+    missing = []
+    p = folder if str(folder) else Path(".")
+    while not p.exists():
+        missing.append(p)
+        if p.parent == p:
+            break
+        p = p.parent
+    if p.exists() and not p.is_dir():
+        raise UsageError("is not a folder", file=str(p), field=field)
+    return list(reversed(missing))
+
+
+def _make_folders(folders: list[Path]) -> list[Path]:
+    """Create ``folders`` (outermost first); return the ones this call created."""
+    made = []
+    for f in folders:
+        try:
+            f.mkdir()
+        except FileExistsError:
+            continue
+        except OSError as exc:
+            for g in reversed(made):
+                g.rmdir()
+            raise UsageError(f"cannot create the folder ({exc.strerror})", file=str(f),
+                             field="output") from None
+        made.append(f)
+    return made
