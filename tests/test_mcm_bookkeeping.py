@@ -80,6 +80,9 @@ def test_adaptive_cap_runs_exactly_the_whole_batches_that_fit():
     assert seen[-1][0] == 50_000
     assert [d for d, _ in seen] == sorted(d for d, _ in seen)
     assert all(d <= t <= 59_999 for d, t in seen), seen
+    # the total shown from the first batch on: the 10 batches the procedure runs at least
+    # (10⁵ trials), capped at max_trials
+    assert seen[0][1] == 59_999
     r = run({"Y": "X"}, x, trials=None, significant_digits=4, max_trials=60_000)["Y"]
     assert (r.batches, r.trials) == (6, 60_000)
 
@@ -185,3 +188,36 @@ def test_validation_holds_at_d_equal_to_delta():
     assert compare_lpu_mcm(0.0, 2.0, 47.0, -2.5, 2.25, ndig=2).validated is True
     assert compare_lpu_mcm(0.0, 2.0, 47.0, -2.5, 2.75, ndig=2).validated is False  # 0.75
     assert compare_lpu_mcm(0.0, 2.0, 47.0, -2.75, 2.5, ndig=2).validated is False
+
+
+# ------------------------------------------------------------------ small helpers, by hand
+def test_fraction_of_trials_inside_a_given_interval():
+    # Y = X ~ N(0, 1): the fraction inside ±1.959964 is 0.95 (normal quantile, any table);
+    # 2·10⁵ trials: binomial standard error √(0.95·0.05/2e5) = 4.9e-4, bound 5 of them
+    x = [q("X", Distribution.normal(0.0, 1.0))]
+    model = build_model({"Y": "X"}, quantities={"X"}, constants={})
+    z = float(stats.norm.ppf(0.975))
+    r = monte_carlo(model, x, np.eye(1), McmSettings(trials=200_000, seed=4),
+                    intervals={"Y": (-z, z)})["Y"]
+    assert r.interval_probabilities["Y"] == near(0.95, rel=0, abs=5 * 4.9e-4)
+
+
+def test_power_of_two_and_sobol_chunks():
+    # 2^k for k ≥ 0 (definition); Sobol chunks: a power of two with points × coordinates at
+    # most 2^22 (project convention, mcm.SOBOL_CELLS), 2^17 points at most
+    assert [n for n in range(0, 70) if mcm.is_power_of_two(n)] == [1, 2, 4, 8, 16, 32, 64]
+    assert mcm._sobol_chunk(1) == 1 << 17
+    assert mcm._sobol_chunk(32) == 1 << 17            # 2^17 · 32 = 2^22: fits exactly
+    assert mcm._sobol_chunk(64) == 1 << 16
+    assert mcm._sobol_chunk(100) == 1 << 15           # 2^16 · 100 > 2^22 ≥ 2^15 · 100
+
+
+def test_fixed_run_batches_keep_enough_trials_in_each_tail():
+    # project convention (mcm_batches.fixed_batches): 10 batches, fewer when a batch would hold
+    # less than ⌈10/(1 − p)⌉ = 200 trials at p = 0.95 (by hand): 1000 trials give 5 batches,
+    # 2000 give 10, 399 give 1 (accuracy not estimated); RQMC rounds down to a power of two
+    from budget.propagate.mcm_batches import fixed_batches
+    assert fixed_batches(1000, 0.95) == 5
+    assert fixed_batches(2000, 0.95) == 10
+    assert fixed_batches(399, 0.95) == 1
+    assert fixed_batches(1024, 0.95, "sobol") == 4
