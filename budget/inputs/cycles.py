@@ -92,7 +92,7 @@ from ..quantity import ModuleResult, Provenance, Quantity
 from ..stats import onoff, typea
 from ..stats.allan import edf_white_fm
 from ..warnings import warn
-from . import glitches, settling
+from . import gaps, glitches, settling
 from .context import InputContext
 from .cycles_figures import figure_allan, figure_differences
 from .cycles_settle import settling_findings
@@ -125,6 +125,8 @@ class _Record:
     settle: float
     settle_default: bool
     diff: onoff.Differences
+    gaps: tuple = ()             # budget.inputs.gaps.Gap, in the windowed readings
+    gap_dropped: int = 0         # cycles dropped because they span a gap
 
 
 def _options(ctx: InputContext) -> dict[str, Any]:
@@ -198,6 +200,15 @@ def _build(raw: _Raw, index: int, settle: float, settle_default: bool,
                         f"'{o['estimator']}' estimator needs {need}{why}", file=shown,
                         field="pump")
     diff = onoff.differences(seg, o["estimator"], record=index)
+    holes = gaps.find_gaps(raw.t, raw.on)
+    across = gaps.spanning(holes, seg.start, seg.stop, diff.w_row, diff.w_col, diff.n)
+    if across.any():
+        if across.all():
+            g = holes[0]
+            raise DataError(f"no complete cycle: every cycle spans a time gap (the first "
+                            f"{g.length_s:.6g} s after t = {g.t_before:.6g} s); no cycle spans "
+                            "a gap", file=shown, row=lo + g.index + 2, field="time_s")
+        diff = diff.subset(~across)
     empty = diff.involved[seg.kept[diff.involved] == 0]
     if len(empty):
         j = int(empty[0])
@@ -209,7 +220,7 @@ def _build(raw: _Raw, index: int, settle: float, settle_default: bool,
                         f"no reading after settle_s = {settle:g} s and tail_s = {o['tail_s']:g} s"
                         f"{fast}; lower them or check the pump column", file=shown,
                         row=lo + int(seg.start[j]) + 1, field="pump")
-    return _Record(table, lo, seg, settle, settle_default, diff)
+    return _Record(table, lo, seg, settle, settle_default, diff, holes, int(across.sum()))
 
 
 def _u_white(records: list[_Record], o: dict[str, Any]) -> float:
@@ -305,7 +316,9 @@ def evaluate(ctx: InputContext) -> ModuleResult:
                          "segments": seg.count, "cycles": int(np.sum(used.record == i)),
                          "cycles_rejected": int(np.sum((pooled.record == i) & ~keep)),
                          "sampling_interval_s": seg.dt, "settle_s": r.settle,
-                         "settle_default": r.settle_default})
+                         "settle_default": r.settle_default,
+                         "time_gaps": [g.to_dict(r.first_row) for g in r.gaps],
+                         "cycles_across_gaps": r.gap_dropped})
     cycle_s = float(np.median(np.concatenate(cycle_periods))) if cycle_periods else math.nan
     unit = o["unit"]
     rejected = _rejected_list(records, [f.path for f in files], pooled, keep)
@@ -320,12 +333,34 @@ def evaluate(ctx: InputContext) -> ModuleResult:
     if diagnostics["glitches"]["if_rejected"]:   # in SI too, for the effect on the result's U
         alt, scale = diagnostics["glitches"]["if_rejected"], _unit(ctx, o["unit"]).scale
         alt.update(value_si=alt["mean_difference"] * scale, u_si=alt["u"] * scale)
-    settle_ws = settle_ws + glitch_ws
+    settle_ws = _gap_warnings(records, names) + settle_ws + glitch_ws
     diagnostics["figures"] = [figure_differences(records, names, pooled, keep, res, unit),
                               figure_allan(res, cycle_s, unit), *settle_figs]
     return ModuleResult(quantities=(_quantity(ctx, res, o, records, files, rejected,
                                               settle_ws),),
                         diagnostics=diagnostics)
+
+
+def _gap_warnings(records: list[_Record], names: list[str]) -> list:
+    """``cycles.time_gap`` per record with gaps (budget.inputs.gaps)."""
+    out = []
+    for r, name in zip(records, names):
+        if not r.gaps:
+            continue
+        parts = []
+        for g in r.gaps[:5]:
+            d = g.to_dict(r.first_row)
+            missing = (f"; the pump is '{'on' if r.table.on[r.first_row + g.index] else 'off'}'"
+                       " on both sides: a whole segment may be missing" if g.same_state else "")
+            parts.append(f"{g.length_s:.6g} s between rows {d['rows'][0]} and {d['rows'][1]} "
+                         f"({g.t_before:.6g} s → {g.t_after:.6g} s){missing}")
+        more = f" and {len(r.gaps) - 5} more" if len(r.gaps) > 5 else ""
+        out.append(warn("cycles.time_gap",
+                        f"{name}: {len(r.gaps)} time gap(s) longer than {gaps.GAP_FACTOR:g} "
+                        f"median sampling intervals ({r.seg.dt:.3g} s): " + "; ".join(parts)
+                        + f"{more}; no cycle spans a gap: {r.gap_dropped} cycle(s) across "
+                        "them dropped — check the record for lost readings or segments"))
+    return out
 
 
 def _rejected_list(records: list[_Record], names: list[str], pooled: onoff.Differences,
