@@ -149,7 +149,8 @@ def test_short_settle_warns_with_a_better_time(tmp_path, capsys, record):
     rc, rec, err = run(write(tmp_path, *record, settle_s=10), capsys)
     assert rc == 0
     (w,) = [w for w in rec["warnings"] if w["code"] == "cycles.transient"]
-    assert w["severity"] == "warning" and "settle_s = 10 s" in w["message"]
+    # tens of u left (test_former_default_…): at least settling.ERROR_RATIO u → "error"
+    assert w["severity"] == "error" and "settle_s = 10 s" in w["message"]
     suggested = cycles_diag(rec)["settling"][0]["suggested_settle_s"]
     assert suggested >= 38 and f"settle_s = {suggested:.4g} s would remove it" in err
     # the number it warns about is wrong beyond its U

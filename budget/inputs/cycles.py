@@ -31,8 +31,10 @@ settle_s : float
     intervals, 5 % of the median segment), at most half the median segment. The value used,
     the step response, τ and the test are in the diagnostics (``settling``).
 settle_policy : str
-    ``"warn"`` (default): a given ``settle_s`` that leaves a transient the early/late test
-    detects gives the warning ``cycles.transient`` with a settle time that would remove it.
+    ``"warn"`` (default): a settle time (given or derived) that leaves a residual transient
+    above ``transient_fraction`` of u (detected by the early/late test, or predicted by the
+    fit) gives a warning with its size in u and the settle time or segment length that would
+    remove it (severity "error" from 1 u on; :mod:`budget.inputs.cycles_settle`).
     ``"refuse"``: that is an error (exit 2).
 transient_fraction : float
     Residual transient allowed by the default settle time, as a fraction of the Type A
@@ -239,8 +241,8 @@ def _settled_records(raws: list[_Raw], o: dict[str, Any]) -> tuple[list[_Record]
     assess = []
     for raw in raws:
         resp = settling.step_response(raw.t, raw.y, raw.on, o["tail_s"])
-        assess.append({"response": resp, "fit": settling.fit_exponential(resp) if resp else None,
-                       "choice": None})
+        fit = settling.fit_step(raw.t, raw.y, raw.on, resp, o["tail_s"]) if resp else None
+        assess.append({"response": resp, "fit": fit, "choice": None})
     if o["settle_s"] is not None:
         return [_build(r, i, o["settle_s"], False, o) for i, r in enumerate(raws)], assess
     settles = []

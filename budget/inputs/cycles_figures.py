@@ -1,5 +1,6 @@
 """Figure data of the ``cycles`` input (drawn by :func:`budget.report.figures.module_figure`):
-the cycle differences against time and their Allan deviation."""
+the cycle differences against time, their Allan deviation and the mean step response after a
+switch."""
 
 from __future__ import annotations
 
@@ -10,8 +11,9 @@ import numpy as np
 
 from ..stats import onoff, typea
 from ..stats.allan import edf_white_fm
+from . import settling
 
-__all__ = ["figure_differences", "figure_allan", "MAX_POINTS"]
+__all__ = ["figure_differences", "figure_allan", "figure_settling", "MAX_POINTS"]
 
 MAX_POINTS = 400
 
@@ -69,3 +71,32 @@ def figure_allan(res: typea.TypeA, cycle_s: float, unit: str) -> dict[str, Any]:
             "ylabel": f"Allan deviation ({unit})", "xscale": "log", "yscale": "log",
             "series": series}
 
+
+def figure_settling(resp: settling.StepResponse, fit: settling.ExpFit, settle_s: float,
+                    unit: str, label: str = "", index: int = 0) -> dict[str, Any]:
+    """Figure data (report/figures.py ``module_figure``): the antisymmetric step response (the
+    transient, drift removed) on a log scale, the fitted exponential, the noise of the mean
+    response and the settle time."""
+    sel = settling.thin(len(resp.lag_s))
+    x = resp.lag_s[sel]
+    a = np.abs(resp.anti[sel])
+    ok = a > 0
+    series = [{"label": "|transient|: half of (off→on − on→off) mean excess", "style": "points",
+               "x": x[ok].tolist(), "y": a[ok].tolist()}]
+    noise = resp.anti_se[sel]
+    series.append({"label": "standard error of the mean response", "style": "line",
+                   "x": x.tolist(), "y": noise.tolist()})
+    lows = [v for s in series for v in s["y"] if v > 0]
+    y_lo, y_hi = (min(lows), max(lows)) if lows else (1e-30, 1.0)
+    if fit.usable:
+        yf = np.abs(fit.amplitude) * np.exp(-x / fit.tau_s)
+        keep = yf >= y_lo / 10
+        series.append({"label": f"fit |A|·exp(−t/τ), τ = {fit.tau_s:.3g} s", "style": "line",
+                       "x": x[keep].tolist(), "y": yf[keep].tolist()})
+    series.append({"label": f"settle time {settle_s:.4g} s", "style": "line",
+                   "x": [settle_s, settle_s], "y": [y_lo, y_hi]})
+    title = "Mean step response after a switch" + (f" ({label})" if label else "")
+    return {"id": "cycles-settling" + (f"-{index + 1}" if index else ""), "title": title,
+            "xlabel": "time since the switch (s)",
+            "ylabel": f"|excess over the segment's late level| ({unit})",
+            "xscale": "linear", "yscale": "log", "series": series}

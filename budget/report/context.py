@@ -433,8 +433,16 @@ def build_context(b: Budget, *, certificate: bool = False, draft: bool = True,
             auto = f"Monte Carlo check by {RQMC_DEVIATION}."
             deviations = f"{deviations} {auto}" if deviations else auto
         ctx["cert_deviations"] = deviations
-        ctx["cert_mc_cautions"] = _certificate_mc_cautions(b)
+        ctx["cert_mc_cautions"] = _certificate_mc_cautions(b) + _certificate_error_cautions(b)
     return ctx
+
+
+def _certificate_error_cautions(b: Budget) -> list[str]:
+    """Draft cautions for the record's warnings of severity 'error' (other than the Monte
+    Carlo one said above): signing refuses them without --accept-warnings."""
+    return [f"{w.input + ': ' if w.input else ''}{w.message} (warning {w.code} has severity "
+            "'error', so signing needs --accept-warnings.)"
+            for w in b.warnings if w.severity == "error" and w.code != "monte_carlo.not_stabilised"]
 
 
 def _certificate_mc_cautions(b: Budget) -> list[str]:
