@@ -79,7 +79,7 @@ def season(book: Path) -> str:
         sys.exit(f"demo stopped: the trend did not flag the invented recalibration ({named})")
     f = steps[0]
     return (f"{f['chain']} stepped at the recalibration “{named}”: E_n = {f['value']:.1f} "
-            f"(the invented hidden error of 0.7 ppm) → {rel(OUT / 'trend.pdf')}")
+            f"(the invented hidden error of 0.7 µA/A) → {rel(OUT / 'trend.pdf')}")
 
 
 def main() -> None:
@@ -136,17 +136,20 @@ def main() -> None:
           "trend", flush=True)
     flag = season(OUT / "logbook.sqlite")
 
-    record = json.loads((OUT / "result.json").read_text(encoding="utf-8"))
-    dev = next(m for m in record["measurands"] if m["name"].startswith("dev"))
+    # the record stores SI numbers with the display unit beside them; reading it through the
+    # library shows them in that unit (formatting the raw JSON as ppm printed 0.00)
+    from budget.record import load_record
+    dev = next(m for m in load_record(OUT / "result.json").measurands
+               if m.name.startswith("dev"))
     print("\n" + "=" * 72)
     print(f"Demo finished in {time.monotonic() - start:.0f} s. Written under {rel(OUT)}/:")
     for p in sorted(OUT.rglob("*")):
         if p.is_file():
             print(f"  {rel(p)}")
     print(f"\nHeadline (invented data): relative deviation from n·e·f = "
-          f"{dev['value']:+.2f} ppm with expanded uncertainty U = "
-          f"{dev['expanded_uncertainty']:.2f} ppm (k = {dev['coverage_factor']:.2f}, "
-          f"p ≈ {100 * dev['coverage_probability']:g} %)")
+          f"{dev.value:+.2f} {dev.unit} with expanded uncertainty U = "
+          f"{dev.expanded_uncertainty:.2f} {dev.unit} (k = {dev.coverage_factor:.2f}, "
+          f"p ≈ {100 * dev.coverage_probability:g} %)")
     print(f"Logbook (invented season): {flag}")
     print("The signed documents are demonstrations: a real certificate is reviewed and "
           "authorised under the laboratory's own quality procedures.")
