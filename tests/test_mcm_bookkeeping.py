@@ -221,3 +221,12 @@ def test_fixed_run_batches_keep_enough_trials_in_each_tail():
     assert fixed_batches(2000, 0.95) == 10
     assert fixed_batches(399, 0.95) == 1
     assert fixed_batches(1024, 0.95, "sobol") == 4
+
+
+def test_rqmc_batch_when_the_batch_size_is_already_a_power_of_two():
+    # M = ⌈100/(1 − p)⌉ = 16 384 = 2^14 exactly at p = 1 − 100/16 384 = 0.993896484375 (exact
+    # in binary, JCGM 101 §7.9.4): RQMC keeps M itself, the next power of two at or above M
+    from budget.propagate.mcm_batches import adaptive_batch_size
+    p = 1 - 100 / 16_384
+    assert adaptive_batch_size(p, "sobol") == 16_384
+    assert adaptive_batch_size(p, "random") == 16_384
