@@ -21,11 +21,12 @@ Input names (rename them with ``inputs_map``):
   2019 SI) are constants the engine provides from ``[constants]``; ``n`` may also be given in
   the ``[model]`` table, and is then returned in :attr:`ChainModel.constants`.
 
-Numerical care. The deviation is written as *one* quotient minus one, ``q − 1``, then scaled
-by an exactly representable power of ten (10^6, 10^8; never divided by 1e-6, which binary
-cannot represent). For 0.5 ≤ q ≤ 2 the subtraction is exact (Sterbenz lemma), so the only
-error is the few roundings of q, a few times 1e-16 absolute: a deviation of 1e-9 keeps six or
-more significant digits (checked against exact rational arithmetic in tests/test_chains.py).
+Numerical care. The deviation is written as *one* quotient minus one, ``q − 1``, a pure
+number; its display unit (µA/A, ×10⁻⁸, nA/A) is applied by one exactly representable power of
+ten (10^6, 10^8, 10^9; never a division by 1e-6, which binary cannot represent). For
+0.5 ≤ q ≤ 2 the subtraction is exact (Sterbenz lemma), so the only error is the few roundings
+of q, a few times 1e-16 absolute: a deviation of 1e-9 keeps six or more significant digits
+(checked against exact rational arithmetic in tests/test_chains.py).
 
 Spec keys of the ``[model]`` table with ``chain``
 -------------------------------------------------
@@ -68,23 +69,23 @@ INPUT_UNITS = {"g": "1", "dV": "V", "R": "Ω", "A_TR": "Ω", "f": "Hz", "I_read"
                "delta_pump": "1"}
 CONSTANT_NAMES = ("n", "e")
 
-# name -> (description, [(output, expression, unit)], deviation expression with S for the scale)
+# name -> (description, [(output, expression, unit)], deviation expression (a pure number))
 _DEFS: dict[str, tuple[str, list[tuple[str, str, str]], str]] = {
     "resistor-voltmeter": (
         "resistor-voltmeter chain: the pump current through a reference resistor R, the "
         "voltage difference dV read by a voltmeter with gain correction g, I = g*dV/R",
         [("I", "g * dV / R", "A")],
-        "(g * dV / (n * e * f * R) - 1) * S"),
+        "g * dV / (n * e * f * R) - 1"),
     "amplifier-voltmeter": (
         "amplifier-voltmeter chain: a current amplifier of transresistance A_TR feeds a "
         "voltmeter with gain correction g, I = g*dV/A_TR",
         [("I", "g * dV / A_TR", "A")],
-        "(g * dV / (n * e * f * A_TR) - 1) * S"),
+        "g * dV / (n * e * f * A_TR) - 1"),
     "ammeter-under-test": (
         "ammeter under test against the pump as reference: gain error "
         "eps = I_read/(n*e*f*(1 + delta_pump)) - 1",
         [("eps", "I_read / (n * e * f * (1 + delta_pump)) - 1", "1")],
-        "(I_read / (n * e * f) - 1) * S"),
+        "I_read / (n * e * f) - 1"),
 }
 
 #: The chains :func:`build_chain` knows.
@@ -102,7 +103,9 @@ class ChainModel:
     outputs : dict
         Ordered ``output name -> expression`` over input names (and earlier outputs).
     units : dict
-        ``output name -> unit``.
+        ``output name -> unit`` shown (the deviation's display unit, e.g. ``"µA/A"``).
+    working_units : dict
+        ``output name -> unit`` the expression computes in (the deviation: ``"1"``).
     description : str
         One sentence for the report.
     chain : str
@@ -126,11 +129,13 @@ class ChainModel:
     input_units: dict[str, str] = field(default_factory=dict)
     constants: dict[str, int] = field(default_factory=dict)
     renamed: dict[str, str] = field(default_factory=dict)
+    working_units: dict[str, str] = field(default_factory=dict)
 
     def to_dict(self) -> dict[str, Any]:
         return {"chain": self.chain, "outputs": dict(self.outputs), "units": dict(self.units),
                 "description": self.description, "inputs": list(self.inputs),
-                "input_units": dict(self.input_units), "constants": dict(self.constants)}
+                "input_units": dict(self.input_units), "constants": dict(self.constants),
+                "working_units": dict(self.working_units)}
 
 
 def validate_n(value: Any, *, file: str | None = None, line: int | None = None,
@@ -188,10 +193,10 @@ def build_chain(table: dict[str, Any], *, file: str, lines: dict[str, int]) -> C
         if not isinstance(table["description"], str):
             raise err("description", f"must be a string; got {table['description']!r}")
         description = table["description"]
-    scale, suffix, unit_label = DEVIATION_UNITS[unit_key]
+    _scale, suffix, unit_label = DEVIATION_UNITS[unit_key]
 
     every = set(_names(dev_text)).union(*(_names(text) for _, text, _ in base))
-    used = sorted(every - set(CONSTANT_NAMES) - {"S"})
+    used = sorted(every - set(CONSTANT_NAMES))
     in_map = _renames(table, "inputs_map", used, err)
     default_outputs = [o for o, _, _ in base] + [f"dev_{suffix}"]
     out_map = _renames(table, "outputs_map", default_outputs, err)
@@ -204,7 +209,6 @@ def build_chain(table: dict[str, Any], *, file: str, lines: dict[str, int]) -> C
                        f"{', '.join(sorted(clash) or final_outputs)}")
 
     mapping = {old: Var(new) for old, new in in_map.items()}
-    mapping["S"] = parse(repr(scale))
 
     def render(text: str) -> str:
         return to_text(substitute(parse(text), mapping))
@@ -216,7 +220,12 @@ def build_chain(table: dict[str, Any], *, file: str, lines: dict[str, int]) -> C
         units[final] = unit
     outputs[final_outputs[-1]] = render(dev_text)
     units[final_outputs[-1]] = unit_label
+    # the model computes the deviation as a pure number (coherent SI, working unit "1"); the
+    # chosen scale is only its display unit, applied by one exact power-of-ten factor, so the
+    # typeset model carries no factor 10^6 beside a value stated in µA/A
+    working = {**units, final_outputs[-1]: "1"}
     return ChainModel(outputs=outputs, units=units, description=description, chain=name,
+                      working_units=working,
                       inputs=tuple(final_inputs),
                       input_units={in_map.get(v, v): INPUT_UNITS[v] for v in used},
                       constants=constants,

@@ -221,6 +221,7 @@ def parse_spec(text: str, *, file: str = "<string>", folder: Path | None = None,
                         "name = \"expression\")", file=file, field="model")
     chain = None
     units_from_chain: dict[str, str] = {}
+    chain_working: dict[str, str] = {}
     chain_constants: dict[str, float] = {}
     described: dict[str, dict[str, str]] = {}
     input_info: dict[str, tuple[str, str, str]] = {}
@@ -230,6 +231,7 @@ def parse_spec(text: str, *, file: str = "<string>", folder: Path | None = None,
         built = build_chain(model, file=file, lines=lines.get(("model",), {}))
         outputs = dict(built.outputs)
         units_from_chain = dict(built.units)
+        chain_working = dict(built.working_units)
         chain_constants = {k: float(v) for k, v in built.constants.items()}
         described = chain_defaults(chain, built.renamed)
         input_info = {new: (*CHAIN_INPUTS[old], built.input_units.get(new, ""))
@@ -332,7 +334,7 @@ def parse_spec(text: str, *, file: str = "<string>", folder: Path | None = None,
                 correlation_pairs=tuple(pairs), from_observations=tuple(groups), trials=trials,
                 seed=seed, interval=interval, significant_digits=ndig, max_trials=max_trials,
                 monte_carlo_enabled=enabled, report=report, t_for_finite_dof=t_dof, chain=chain,
-                sampling=sampling, working_units=units_from_chain,
+                sampling=sampling, working_units=chain_working,
                 constant_units=constant_units, lines=lines, output_info=output_info,
                 input_info=input_info)
 

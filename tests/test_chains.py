@@ -19,6 +19,7 @@ from budget.chains import CHAINS, ChainModel, build_chain, validate_n
 from budget.errors import SpecError
 from budget.expression import compile_node, names, parse
 from budget.model import BUILTIN_CONSTANTS
+from budget.units import display_factor, parse_unit
 
 E = 1.602176634e-19   # C, SI Brochure 2019 (exact)
 
@@ -56,7 +57,9 @@ def test_resistor_voltmeter_outputs():
     env = {"g": 1.0, "dV": 0.1602176634, "R": 1e9, "f": 1e9, "n": 1, "e": E}
     out = evaluate(m, env)
     assert out["I"] == near(160.2176634e-12, rel=1e-15)
-    assert abs(out["dev_ppm"]) < 1e-9      # zero up to float rounding (≈ 1e-16 · 1e6)
+    # the model's deviation is a pure number (working unit "1"); µA/A is its display unit
+    assert m.working_units == {"I": "A", "dev_ppm": "1"}
+    assert abs(out["dev_ppm"]) < 1e-15     # zero up to float rounding (≈ 1e-16)
 
 
 def test_amplifier_and_ammeter_chains():
@@ -66,7 +69,7 @@ def test_amplifier_and_ammeter_chains():
     # n = 2 at 500 MHz gives 160.2176634 pA too (REFERENCES.md, SI constants)
     env = {"g": 1.0 + 1e-8, "dV": 0.1602176634, "A_TR": 1e9, "f": 500e6, "n": 2, "e": E}
     out = evaluate(a, env)
-    assert out["dev_1e8"] == near(1.0, rel=1e-6)   # g = 1 + 1e-8 ⇒ +1 part in 10^8
+    assert out["dev_1e8"] == near(1e-8, rel=1e-6)  # g = 1 + 1e-8 ⇒ +1 part in 10^8
     t = build_chain({"chain": "ammeter-under-test"}, file="s.toml", lines={})
     assert list(t.outputs) == ["eps", "dev_ppm"]
     assert set(t.inputs) == {"I_read", "f", "delta_pump"}
@@ -75,7 +78,7 @@ def test_amplifier_and_ammeter_chains():
     out = evaluate(t, env)
     # ε = (1 + 3e-7)/(1 + 1e-7) − 1 (definition)
     assert out["eps"] == near((1 + 3e-7) / (1 + 1e-7) - 1, rel=1e-7)
-    assert out["dev_ppm"] == near(0.3, rel=1e-7)
+    assert out["dev_ppm"] == near(3e-7, rel=1e-7)
 
 
 @pytest.mark.parametrize("chain", CHAINS)
@@ -96,7 +99,7 @@ def test_deviation_near_1e9_keeps_its_digits(chain):
                  / (n * Fraction(E) * Fraction(f) * Fraction(1e9)) - 1)
     dev = evaluate(m, env)["dev_ppm"]
     assert float(exact) == near(d, rel=1e-6)        # the inputs carry the deviation
-    assert dev == near(float(exact) * 1e6, rel=1e-6)
+    assert dev == near(float(exact), rel=1e-6)
     # vectorised (Monte Carlo) evaluation gives the same digits
     vec = evaluate(m, {k: np.full(4, v) if isinstance(v, float) else v for k, v in env.items()})
     np.testing.assert_allclose(vec["dev_ppm"], dev, rtol=1e-12)
@@ -160,6 +163,7 @@ def test_deviation_units(key, name, unit, per):
     # g = 1 + 1e-6 ⇒ one part in 10⁶ = 100 parts in 10⁸ = 1000 parts in 10⁹ (derivation)
     c = build_chain({"chain": "amplifier-voltmeter", "deviation_unit": key}, file="s.toml",
                     lines={})
-    assert c.units[name] == unit
+    assert c.units[name] == unit and c.working_units[name] == "1"
     env = {"g": 1.0 + 1e-6, "dV": 0.1602176634, "A_TR": 1e9, "f": 500e6, "n": 2, "e": E}
-    assert evaluate(c, env)[name] == near(per, rel=1e-6)
+    shown = display_factor(parse_unit("1"), parse_unit(unit))   # 10⁶, 10⁸, 10⁹ exactly
+    assert evaluate(c, env)[name] * shown == near(per, rel=1e-6)
