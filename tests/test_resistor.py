@@ -376,3 +376,29 @@ def test_prediction_past_the_calibration_interval(tmp_path):
     (q,) = run_module(ctx(tmp_path, at=AT, calibration_interval_days=100)).quantities
     (w,) = [w for w in q.provenance.warnings if w.code == "history.past_interval"]
     assert "100.0 days (calibration_interval_days)" in w.message
+
+
+def test_far_extrapolation_is_an_error(tmp_path):
+    # write_history: 12 calibrations 91 days apart from 2023-01-15 (span 11·91 = 1001 days,
+    # last 2025-10-13). The rule (budget/inputs/history_checks.py, project convention): an
+    # error beyond FAR_SPAN = 1 span or FAR_INTERVALS = 3 intervals past the last calibration.
+    from budget.inputs.history_checks import FAR_INTERVALS, FAR_SPAN
+    assert (FAR_SPAN, FAR_INTERVALS) == (1.0, 3.0)
+    write_history(tmp_path)
+
+    def extrapolation(at, **kw):
+        (q,) = run_module(ctx(tmp_path, at=at, **kw)).quantities
+        (w,) = [w for w in q.provenance.warnings if w.code == "history.extrapolation"]
+        return w
+
+    # 111.6 days past (AT): past one interval, within three — a warning, as before
+    assert extrapolation(AT).severity == "warning"
+    # 2026-10-13 is 365 days past (> 3·91 = 273, < 1001): an error naming the intervals
+    w = extrapolation("2026-10-13")
+    assert w.severity == "error" and "more than 3 calibration intervals of 91.0 days" in w.message
+    assert "span" not in w.message
+    # a stated interval of 365 days: 3·365 = 1095 > 365 and 365 < 1001 — back to a warning
+    assert extrapolation("2026-10-13", calibration_interval_days=365).severity == "warning"
+    # ten years past (2035-10-13, 3652 days): beyond the span of 1001 days as well
+    w = extrapolation("2035-10-13", calibration_interval_days=365)
+    assert w.severity == "error" and "span of 1001.0 days" in w.message

@@ -79,7 +79,7 @@ from ..units import Unit
 from ..warnings import Warning, warn
 from .column_units import ColumnUnit, column_unit, to_si
 from .context import InputContext
-from .history_checks import INTERVAL_KEYS, past_interval
+from .history_checks import INTERVAL_KEYS, extrapolation
 from .history_dof import dof_from_certificates, row_dofs
 from .tables import date_column, numeric_column, parse_iso, read_table, row_ranges
 
@@ -321,10 +321,7 @@ def predict_drift(ctx: InputContext, hist: History, values: np.ndarray, at: pd.T
         notes.append(f"history values stated in {hist.unit.text}; converted to {hist.unit.si} "
                      f"(× {hist.unit.scale:.17g}) when read")
     if past > 0:
-        notes.append(f"prediction at {at.isoformat()} extrapolates the drift line {past:.1f} "
-                     f"days past the last {event} ({last.date().isoformat()})")
-        ws.append(warn("history.extrapolation", notes[-1]))
-        past_interval(ctx, hist.dates, past, event, notes, ws)
+        extrapolation(ctx, hist.dates, at, past, event, notes, ws)
     if f.inflated:
         notes.append(f"scatter of the {event}s exceeds their stated uncertainties: {f.verdict}")
         ws.append(warn("history.inflated", notes[-1] + "; the covariance was scaled up"))
