@@ -22,8 +22,8 @@ from typing import Any
 
 from ..warnings import warn
 from . import settling
-from .cycles_figures import figure_settling
 from .context import InputContext
+from .cycles_figures import figure_settling
 
 __all__ = ["settling_findings"]
 

@@ -260,7 +260,7 @@ def step_response(time: np.ndarray, reading: np.ndarray, on: np.ndarray,
 
 def fit_exponential(resp: StepResponse) -> ExpFit:
     """Fit A·exp(−t/τ) + c to the antisymmetric step response (module docstring)."""
-    from scipy import optimize, special
+    from scipy import optimize
 
     t, r, se = resp.lag_s, resp.anti, resp.anti_se
     if len(t) < MIN_LAGS:

@@ -357,6 +357,7 @@ def compare_figure(fig: dict[str, Any], run_labels: Sequence[str],
     ``run_titles`` (wrapped, at most three lines; which :func:`module_figure` cannot do).
     """
     import textwrap
+
     import matplotlib
     from matplotlib.figure import Figure
 
