@@ -87,8 +87,12 @@ def apply_units(spec, model: Model, qs: list[Quantity], unstated: set[str],
             for ref in ex.names(parsed[o]) & set(parsed):
                 if ref not in stack:
                     env[ref] = dims_of(ref, stack + (o,))
-            done[o] = infer(parsed[o], env, where=f"model.{o}", file=spec.path,
-                            line=lines.get(o))
+            try:
+                done[o] = infer(parsed[o], env, where=f"model.{o}", file=spec.path,
+                                line=lines.get(o))
+            except ModelError:
+                _blame_chain_input(spec, env)   # a chain input's unit, when that is the cause
+                raise
         return done[o]
 
     working_units = getattr(spec, "working_units", {}) or {}
@@ -100,6 +104,7 @@ def apply_units(spec, model: Model, qs: list[Quantity], unstated: set[str],
         work_text = working_units.get(o)
         work = parse_unit(work_text) if work_text is not None else None
         if work is not None and d is not None and work.dims != d:
+            _blame_chain_input(spec, env)
             raise ModelError(f"the chain's output {o} is {dim_text(work.dims)} but its inputs "
                              f"make it {dim_text(d)}: check the inputs' units", file=spec.path,
                              line=lines.get("chain"), field=f"model.{o}")
@@ -137,6 +142,22 @@ def apply_units(spec, model: Model, qs: list[Quantity], unstated: set[str],
     if trees != model.trees:
         model = replace(model, trees=trees, _compiled={})
     return model, labels
+
+
+def _blame_chain_input(spec, env: dict[str, Dims]) -> None:
+    """Name the chain input whose unit has the wrong dimension, when one has (the chain's
+    output check alone would point at the output, away from the input's ``unit`` key)."""
+    for name, info in (getattr(spec, "input_info", {}) or {}).items():
+        expected = info[2] if len(info) > 2 else ""
+        have = env.get(name)
+        if not expected or have is None:
+            continue
+        want = _dims(expected)
+        if want is not None and have != want:
+            raise SpecError(f"input {name} of the chain must be {dim_text(want)}; its unit "
+                            f"makes it {dim_text(have)}",
+                            file=spec.path, line=spec.line_of(("inputs", name), "unit"),
+                            field=f"inputs.{name}.unit")
 
 
 def _refuse_double_scale(spec, o: str, tree: ex.Node, text: str, scale: float,
