@@ -5,7 +5,10 @@
   u and ν without them (``glitches.if_rejected``). The budget is propagated once more (the
   same linear propagation, options and correlations) with that input replaced by a scaled and
   shifted t with those values, and the warning is extended with each measurand's value and
-  expanded uncertainty U with and without the flagged cycles.
+  expanded uncertainty U with and without the flagged cycles. Where that cannot be done (the
+  module could not evaluate the cycles left, or the propagation without them fails, e.g. the
+  model is undefined there) the warning says that the effect is unknown and why; it is never
+  silently left out.
 * **Plateau against n.** A ``pump`` input characterises the pump on one plateau (its
   ``plateau``, diagnostics ``plateau``); the spec's constant ``n`` is the electrons per cycle
   of the model I = n·e·f. When they differ the pump term belongs to another plateau than the
@@ -64,23 +67,30 @@ def _diag(modules: dict[str, Any], name: str) -> dict[str, Any]:
 
 def _with_glitch_effect(w: Warning, spec: Spec, model: Model, qs: list[Quantity],
                         resolved: Any, measurands: tuple[Measurand, ...]) -> Warning:
-    alt = (_diag(resolved.modules, w.input).get("glitches") or {}).get("if_rejected")
-    if not alt or "value_si" not in alt:
-        return w
-    value, u, dof = float(alt["value_si"]), float(alt["u_si"]), float(alt["dof"])
-    swapped = [replace(q, value=value, standard_uncertainty=u, dof=dof,
-                       distribution=Distribution.student_t(value, u, dof))
-               if q.name == w.input else q for q in qs]
+    g = _diag(resolved.modules, w.input).get("glitches") or {}
+    alt = g.get("if_rejected")
+    if not alt:
+        # the module's warning already says why the result without them is unknown
+        return w if g.get("if_rejected_unavailable") else _unknown_effect(
+            w, "the module gave no result without the flagged cycles")
     try:
+        value, u, dof = float(alt["value_si"]), float(alt["u_si"]), float(alt["dof"])
+        swapped = [replace(q, value=value, standard_uncertainty=u, dof=dof,
+                           distribution=Distribution.student_t(value, u, dof))
+                   if q.name == w.input else q for q in qs]
         lin, _ = propagate_linear(model, swapped, resolved.corr,
                                   coverage_probability=spec.coverage_probability,
                                   order=spec.propagation_order, dof_rounding=spec.dof_rounding,
                                   fixed_k=spec.coverage_factor, dof_groups=resolved.dof_groups)
-    except BudgetError:
-        return w
-    parts = []
+    except (BudgetError, KeyError, TypeError, ValueError) as e:
+        why = e.one_line() if isinstance(e, BudgetError) else f"{type(e).__name__}: {e}"
+        return _unknown_effect(w, f"the budget propagated without them failed: {why}")
+    parts, missing = [], []
     for m in measurands:
-        if w.input not in {t.name for t in m.terms} or m.name not in lin:
+        if w.input not in {t.name for t in m.terms}:
+            continue
+        if m.name not in lin:
+            missing.append(m.name)
             continue
         r = lin[m.name]
         unit = f" {m.unit}" if m.unit and m.unit != "1" else ""
@@ -88,9 +98,18 @@ def _with_glitch_effect(w: Warning, spec: Spec, model: Model, qs: list[Quantity]
                      f"(k = {m.coverage_factor:.3g}) with them, {r.value:.6g} with U = "
                      f"{r.expanded_uncertainty:.2g}{unit} (k = {r.coverage_factor:.3g}) "
                      "without them")
+    if missing:
+        return _unknown_effect(w, "the propagation without them gave no result for "
+                               + ", ".join(missing))
     if not parts:
-        return w
+        return replace(w, message=w.message + f"; no measurand depends on {w.input}")
     return replace(w, message=w.message + "; effect on the result: " + "; ".join(parts))
+
+
+def _unknown_effect(w: Warning, why: str) -> Warning:
+    """The glitch warning saying that the effect on the result is unknown, and why."""
+    return replace(w, message=w.message + f"; effect on the result and its U NOT computed: "
+                   f"{why} — the size of the flagged cycles' effect is unknown")
 
 
 def _plateau_check(spec: Spec, modules: dict[str, Any]) -> list[Warning]:

@@ -145,3 +145,47 @@ def test_segment_scores_synthetic_truth():
     assert int(np.argmax(s)) == 20
     assert s[18] < s[20] and s[22] < s[20]
     assert s[18] > 5 and s[22] > 5          # ±½ of the step (derivation: r_(j±2) = −0.25)
+
+
+def test_effect_is_stated_unknown_when_the_model_fails_without_them(tmp_path, capsys, glitched):
+    # A model defined only above a threshold c: y = sqrt(dV − c). With c between the mean
+    # without the flagged cycle and the mean with it (the glitch raises an on segment, so
+    # the mean with it is larger), y is defined at the budget's estimate but sqrt of a
+    # negative number without it (derivation): the second propagation must fail, and the
+    # warning must say that the effect is unknown and why instead of dropping it.
+    t, y, on, _ = glitched
+    rc, rec, _ = run(write(tmp_path, t, y, on, settle_s=60), capsys)
+    assert rc == 0
+    with_it = cycles_diag(rec)["mean_difference"]
+    without = cycles_diag(rec)["glitches"]["if_rejected"]["mean_difference"]
+    assert without < with_it
+    c = (with_it + without) / 2
+    spec = tmp_path / "spec.toml"
+    text = spec.read_text(encoding="utf-8")
+    text = text.replace(f'dev = "(dV / {STEP!r} - 1) * 1e6"', f'y = "sqrt(dV - {c!r})"')
+    text = text.replace("[monte_carlo]\n", "[monte_carlo]\nenabled = false\n")
+    spec.write_text(text, encoding="utf-8")
+    rc, rec, err = run(spec, capsys)
+    assert rc == 0
+    (w,) = [w for w in rec["warnings"] if w["code"] == "cycles.glitch"]
+    assert "effect on the result and its U NOT computed" in w["message"]
+    assert "propagated without them failed" in w["message"] and "non-finite" in w["message"]
+    assert "effect on the result: y =" not in w["message"]
+    assert "NOT computed" in err                      # on the terminal too
+
+
+def test_effect_is_stated_unknown_when_too_few_cycles_remain(tmp_path, capsys):
+    # rejection_limit = 1e-6: |d − median| > 1e-6·σ_MAD holds for every difference but the
+    # median one of an odd count of continuous values (derivation), so one cycle would remain
+    # and no Type A result exists without the flagged ones (n ≥ 2 is needed for s).
+    t, y, on = chain(np.random.default_rng(2029), 11)
+    rc, rec, err = run(write(tmp_path, t, y, on, settle_s=60, rejection_limit=1e-6), capsys)
+    assert rc == 0
+    g = cycles_diag(rec)["glitches"]
+    n = cycles_diag(rec)["cycles_used"]
+    assert n % 2 == 1 and g["flagged"] == n - 1
+    assert g["if_rejected"] is None
+    assert "only 1 cycle difference(s) would remain" in g["if_rejected_unavailable"]
+    (w,) = [w for w in rec["warnings"] if w["code"] == "cycles.glitch"]
+    assert "cannot be stated (only 1 cycle difference(s) would remain" in w["message"]
+    assert "unknown" in w["message"] and "cycles.glitch" in err

@@ -148,24 +148,40 @@ def findings(records: Sequence[Any], names: list[str], pooled: onoff.Differences
                            scores[i][used])]) if len(used) else j)})
     diag: dict[str, Any] = {**scr.to_dict(), "cycles": listed[:100], "if_rejected": None}
     ws = []
-    if listed and o["rejection"] == "none" and pooled.n - len(listed) >= 2:
-        alt = pooled.subset(~scr.flagged)
-        try:
-            r2 = typea.analyse(alt.d, onoff.white_model(alt), o["whiteness_level"])
-        except ComputationError:
-            r2 = None
+    if listed and o["rejection"] == "none":
+        unit = o["unit"]
+        head = (f"{len(listed)} cycle difference(s) beyond {o['rejection_limit']:g} robust "
+                f"standard deviations (σ_MAD = {scr.sigma_mad:.3g} {unit}): "
+                f"{_glitch_places(listed)}; kept in the result ({res.mean:.8g} ± "
+                f"{res.u:.3g} {unit}); ")
+        r2, why = _without_flagged(pooled, scr, o)
         if r2 is not None:
             diag["if_rejected"] = {"mean_difference": r2.mean, "u": r2.u, "dof": r2.dof,
                                    "cycles_used": r2.n}
-            unit = o["unit"]
-            which = _glitch_places(listed)
-            ws.append(warn("cycles.glitch", f"{len(listed)} cycle difference(s) beyond "
-                           f"{o['rejection_limit']:g} robust standard deviations (σ_MAD = "
-                           f"{scr.sigma_mad:.3g} {unit}): {which}; kept in the result "
-                           f"({res.mean:.8g} ± {res.u:.3g} {unit}); without them it would be "
-                           f"{r2.mean:.8g} ± {r2.u:.3g} {unit}; consider rejection = \"mad\" "
-                           "if they are glitches"))
+            tail = (f"without them it would be {r2.mean:.8g} ± {r2.u:.3g} {unit}; consider "
+                    "rejection = \"mad\" if they are glitches")
+        else:
+            # never silently omit the effect: say that it is unknown, and why
+            diag["if_rejected_unavailable"] = why
+            tail = (f"the result without them cannot be stated ({why}), so their effect on "
+                    "the result and its U is unknown; look at the flagged cycles before "
+                    "relying on it")
+        ws.append(warn("cycles.glitch", head + tail))
     return diag, ws
+
+
+def _without_flagged(pooled: onoff.Differences, scr: Screen, o: dict[str, Any]
+                     ) -> tuple[typea.TypeA | None, str]:
+    """The Type A result of the unflagged cycles, or None and the reason it cannot be had."""
+    left = pooled.n - int(scr.flagged.sum())
+    if left < 2:
+        return None, (f"only {left} cycle difference(s) would remain; a Type A evaluation "
+                      "needs at least 2")
+    try:
+        alt = pooled.subset(~scr.flagged)
+        return typea.analyse(alt.d, onoff.white_model(alt), o["whiteness_level"]), ""
+    except ComputationError as e:
+        return None, f"the evaluation of the {left} remaining cycles failed: {e}"
 
 
 def _outlier_segment(r: Any, j: int) -> dict[str, Any]:
