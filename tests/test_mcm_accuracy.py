@@ -72,6 +72,21 @@ def test_three_valued_verdict_by_hand():
     assert out.validated is False and out.to_dict()["verdict"] == "inconclusive"
 
 
+def test_three_valued_verdict_margin_at_each_end_alone():
+    # The margin k·s (k = 2, JCGM 101 §7.9.4; the three-valued rule is project convention,
+    # validate.py) is added at each end separately: one end exact (d = 0, s = 0), the other
+    # with d = 0.03, s = 0.02 against δ = 0.05 (u = 1, ndig = 2, §7.9.2). There
+    # d + 2s = 0.07 > δ ≥ d − 2s = −0.01: inconclusive. (d + s/2 = 0.045 and d − 2s would both
+    # pass δ: a margin divided by k or subtracted would claim "validated".)
+    low_end = compare_lpu_mcm(0.0, 1.96, 1.0, -1.93, 1.96, 2, 0.02, 0.0)
+    assert (low_end.d_low, low_end.d_high) == (near(0.03, abs=1e-12), 0.0)
+    assert low_end.verdict == "inconclusive"
+    assert compare_lpu_mcm(0.0, 1.96, 1.0, -1.96, 1.93, 2, 0.0, 0.02).verdict == "inconclusive"
+    # s = 0.005 at that end: d + 2s = 0.04 ≤ δ, validated
+    assert compare_lpu_mcm(0.0, 1.96, 1.0, -1.93, 1.96, 2, 0.005, 0.0).verdict == "validated"
+    assert compare_lpu_mcm(0.0, 1.96, 1.0, -1.96, 1.93, 2, 0.0, 0.005).verdict == "validated"
+
+
 # ------------------------------------------------------------------ accuracy of a fixed run
 def test_fixed_run_accuracy_matches_the_order_statistic_standard_error():
     # N(0, 1), M = 200 000 fixed pseudo-random trials in 10 batches of 20 000. SE of the 97.5 %

@@ -230,3 +230,72 @@ def test_rqmc_batch_when_the_batch_size_is_already_a_power_of_two():
     p = 1 - 100 / 16_384
     assert adaptive_batch_size(p, "sobol") == 16_384
     assert adaptive_batch_size(p, "random") == 16_384
+
+
+def test_accuracy_of_each_statistic_is_its_batch_standard_deviation_over_root_h():
+    # JCGM 101 §7.9.4 d): the standard deviation of the h batch results divided by √h, for
+    # each statistic separately (mean, u, both ends of both intervals). h = 4, by hand:
+    # [1, 2, 3, 4]: s = √(5/3), /2 = 0.645497…; [2, 2, 2, 4]: s = 1 → 0.5; [0, 0, 0, 0] → 0;
+    # [0, 0, 0, 4]: s = 2 → 1; [0, 0, 2, 2]: s = √(4/3) → 0.577350…; [0, 0, 0, 6]: s = 3 → 1.5
+    from budget.propagate.mcm_batches import accuracy_of
+    cols = [[1, 2, 3, 4], [2, 2, 2, 4], [0, 0, 0, 0], [0, 0, 0, 4], [0, 0, 2, 2], [0, 0, 0, 6]]
+    acc = accuracy_of([tuple(float(c[r]) for c in cols) for r in range(4)])
+    assert acc.batches == 4
+    assert acc.value == near(math.sqrt(5 / 3) / 2, rel=1e-14)
+    assert acc.standard_uncertainty == near(0.5, rel=1e-14)
+    assert acc.symmetric == (0.0, near(1.0, rel=1e-14))
+    assert acc.shortest == (near(math.sqrt(4 / 3) / 2, rel=1e-14), near(1.5, rel=1e-14))
+    assert accuracy_of([tuple(float(c[0]) for c in cols)]) is None   # one batch: unknown
+
+
+def _batches(sd: float, h: int = 10, m: int = 100, seed: int = 3, shift: float = 0.0):
+    """h batches of m normal values rescaled so that all h·m of them have sample sd ``sd``."""
+    y = np.random.default_rng(seed).normal(size=h * m)
+    y = (y - y.mean()) / y.std(ddof=1) * sd + shift * np.repeat(np.arange(h) % 2, m)
+    return y, [y[i * m:(i + 1) * m] for i in range(h)]
+
+
+@pytest.mark.parametrize("sd, delta", [(0.9935, 0.005), (0.9965, 0.05), (0.0996, 0.005)])
+def test_stop_tolerance_from_the_u_of_all_trials(sd, delta):
+    # JCGM 101 §7.9.4 f)–g) (memory): δ comes from u(y) of all h·M values. That u is computed
+    # here directly, np.std of the 1000 values (ddof = 1); on either side of 0.995, where
+    # §7.9.2 switches δ: 0.9935 = 99 × 10⁻² → δ = 0.005, 0.9965 → 1.0 = 10 × 10⁻¹ → δ = 0.05;
+    # and just below 0.0995's switch (0.0996 → 10 × 10⁻² → δ = 0.005), where u ≠ 1 so that a
+    # pooled u built from s³ instead of s² would move far.
+    # The tool records δ/5 (its stricter stop, mcm_batches.VALIDATION_DIVISOR).
+    from budget.propagate.mcm_batches import batch_stats, stable
+    y, parts = _batches(sd)
+    assert float(np.std(y, ddof=1)) == near(sd, rel=1e-12)
+    assert numerical_tolerance(sd, 2) == delta
+    used: dict = {}
+    stable(100, [{"Y": batch_stats(b, 0.95)} for b in parts], ["Y"], 2, used=used)
+    assert used["Y"] == near(delta / 5, rel=1e-12)
+
+
+def test_stop_tolerance_recorded_for_every_output_even_after_one_fails():
+    # the δ/5 of each output is recorded (it goes into the result's stop_tolerance), also
+    # after an earlier output has failed the test: A's batch means alternate by 10 (2·s of
+    # its mean ≫ δ/5), B is the sample of the test above with δ/5 = 0.01
+    from budget.propagate.mcm_batches import batch_stats, stable
+    _, a = _batches(1.0, shift=10.0)
+    _, b = _batches(0.9965)
+    stats = [{"A": batch_stats(x, 0.95), "B": batch_stats(z, 0.95)} for x, z in zip(a, b)]
+    used: dict = {}
+    assert stable(100, stats, ["A", "B"], 2, used=used) is False
+    assert set(used) == {"A", "B"}
+    assert used["B"] == near(0.05 / 5, rel=1e-12)
+    assert stable(100, stats, ["A", "B"], 2) is False          # without recording: same answer
+
+
+def test_stop_tolerance_recorded_when_the_cap_stops_after_two_batches():
+    # max_trials = 2M (M = 10⁴ at p = 0.95, JCGM 101 §7.9.4): the cap ends the procedure after
+    # two batches, before the 10 the stop test needs (project convention); the δ/5 that the
+    # two batches give is still recorded: u ≈ 2 (N(0, 2²)), any u in [0.995, 9.95) has
+    # δ = 0.05 at ndig = 2 (§7.9.2), δ/5 = 0.01. One batch has no s: nothing recorded (0).
+    x = [q("X", Distribution.normal(0.0, 2.0))]
+    r = run({"Y": "X"}, x, trials=None, max_trials=20_000)["Y"]
+    assert (r.batches, r.stabilised) == (2, False)
+    assert r.standard_uncertainty == near(2.0, abs=0.1)
+    assert r.stop_tolerance == near(0.01, rel=1e-12)
+    r = run({"Y": "X"}, x, trials=None, max_trials=19_999)["Y"]
+    assert (r.batches, r.stop_tolerance) == (1, 0.0)

@@ -159,7 +159,7 @@ def _text(node: ast.AST) -> str | None:
 
 
 # --------------------------------------------------------------------------- properties
-FUZZ = settings(max_examples=400, deadline=None,
+FUZZ = settings(max_examples=400, deadline=None, derandomize=True,
                 suppress_health_check=[HealthCheck.too_slow, HealthCheck.filter_too_much])
 
 
@@ -343,7 +343,7 @@ def test_fuzzer_reaches_accepted_trees():
     """Some generated trees are inside the whitelist, so the accepting branch is exercised."""
     seen = []
 
-    @settings(max_examples=300, deadline=None, database=None)
+    @settings(max_examples=300, deadline=None, derandomize=True)
     @given(trees)
     def collect(node):
         text = _text(node)

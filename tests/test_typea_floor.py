@@ -156,6 +156,40 @@ def test_allan_floor_fit_recovers_a_and_b_and_satterthwaite_dof():
     assert fit8.dof == near(nu8, rel=1e-9)
 
 
+def test_allan_floor_fit_weights_are_the_inverse_chi_square_variances():
+    # A noisy curve: AVAR_i = (a·A_i + b)(1 + ε_i), ε invented, ±4…6 %. The fit weights each
+    # point by 1/var(AVAR_i) with var(AVAR) = 2·AVAR²/edf (σ̂² ~ σ²·χ²_edf/edf, NIST SP 1065
+    # §5.2 / Table 5 edf (memory)), AVAR taken from the fitted values and the edf the smaller
+    # of SP 1065's white-FM and flicker-FM values (project convention: the noise type is not
+    # known). Reference: numpy.polyfit with w = 1/σ (its documented weighting of the unsquared
+    # residuals), re-weighted to its fixed point. Unweighted (OLS) and inverse weights give a
+    # and b 2 % … 120 % away, so the check tells the weightings apart.
+    n = 64
+    model = onoff.white_model(regular(n))
+    a, b = 3.0e-6, 2.0e-8                              # reading² s and reading² (invented)
+    m = np.array([1, 2, 4, 8, 16])
+    x = np.array([avar_by_quadratic_form(model.gamma, int(k)) for k in m])
+    y = (a * x + b) * (1.0 + np.array([0.06, -0.04, 0.05, -0.06, 0.04]))
+    curve = allan.AllanCurve(kind="oadev", m=m, deviation=np.sqrt(y), terms=n - 2 * m + 1, n=n)
+    flicker_1 = 2 * (n - 1) ** 2 / (2.3 * (n + 1) - 4.9)   # SP 1065 Table 5, m = 1, N = n + 1
+    edf = np.array([min(sp1065_white_edf(n, int(k)),
+                        sp1065_flicker_edf(n, int(k)) if k >= 2 else flicker_1) for k in m])
+    yhat, passes = y.copy(), []
+    for _ in range(50):
+        slope, icept = np.polyfit(x, y, 1, w=1.0 / (np.sqrt(2.0 / edf) * yhat))
+        yhat = slope * x + icept
+        passes.append((slope, icept))
+    a_ref, b_ref = passes[-1]
+    # typea.py re-weights three times; the reference's own third pass is within 1e-4 of its
+    # fixed point here (asserted), so 1e-4 is the tolerance of the comparison
+    assert passes[2][0] == near(a_ref, rel=1e-4) and passes[2][1] == near(b_ref, rel=1e-4)
+    fit = typea._allan_fit(curve, model, 16, n)
+    assert fit.a == near(a_ref, rel=1e-4)
+    assert fit.b == near(b_ref, rel=1e-4)
+    a_ols, b_ols = np.polyfit(x, y, 1)
+    assert abs(b_ols / b_ref - 1) > 0.02 and abs(a_ols / a_ref - 1) > 0.01   # the check bites
+
+
 def test_allan_floor_without_a_floor_keeps_the_white_dof():
     # b = 0: Welch–Satterthwaite gives back ν_w (JCGM 100 G.4.1 with one component)
     n = 64
