@@ -62,18 +62,26 @@ def main() -> int:
     for ex in args.examples:
         spec = load_spec(HERE.parent / "worked_examples" / ex / "spec.toml")
         t_ref, ref = run(spec, ref_trials, 10 ** 6 + 7, "random")
-        out = spec.outputs and list(spec.outputs)[0]
-        rm = ref.mc(out)
-        delta = numerical_tolerance(rm.standard_uncertainty, spec.significant_digits)
-        print(f"{ex}: reference {ref_trials:.0e} trials in {t_ref:.0f} s, "
-              f"[{rm.interval_low!r}, {rm.interval_high!r}], δ = {delta:.3g}", flush=True)
+        outs = [o for o in spec.outputs if ref.mc(o) is not None]
+        deltas = {}
+        for o in outs:
+            rm = ref.mc(o)
+            # δ as the adaptive stop takes it: min(δ(u_MC), δ(u_c)) (budget/propagate/mcm.py)
+            d_mc = numerical_tolerance(rm.standard_uncertainty, spec.significant_digits)
+            d_c = numerical_tolerance(ref.measurand(o).standard_uncertainty,
+                                      spec.significant_digits)
+            deltas[o] = min(d for d in (d_mc, d_c) if d > 0)
+            print(f"{ex}/{o}: reference {ref_trials:.0e} trials in {t_ref:.0f} s, "
+                  f"[{rm.interval_low!r}, {rm.interval_high!r}], δ = {deltas[o]:.3g}",
+                  flush=True)
         res = {"random": ([], [], []), "sobol": ([], [], [])}
         for seed in seeds:
             for sampling in ("random", "sobol"):            # paired: alternate per seed
                 t, b = run(spec, None, seed, sampling)
-                m = b.mc(out)
-                err = max(abs(m.interval_low - rm.interval_low),
-                          abs(m.interval_high - rm.interval_high)) / delta
+                m = b.mc(outs[0])
+                err = max(max(abs(b.mc(o).interval_low - ref.mc(o).interval_low),
+                              abs(b.mc(o).interval_high - ref.mc(o).interval_high)) / deltas[o]
+                          for o in outs)
                 for lst, v in zip(res[sampling], (m.trials, t, err)):
                     lst.append(v)
                 print(f"  {sampling:6s} seed {seed}: {m.trials:>9,} trials {t:6.2f} s "
