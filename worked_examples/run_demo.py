@@ -4,10 +4,16 @@ Every scenario here is invented (see each folder's README); the numbers are not 
 The demo approver identity is created with a passphrase that the demo itself sets — acceptable
 only because the identity is a throw-away for the demonstration; a real approver keeps theirs
 secret (``budget identity create`` asks for it when BUDGET_PASSPHRASE is not set).
+
+The steps that share no files run in two processes (:data:`WORKER_STEPS` in a forked second
+one), and their output is written in step order, so the terminal shows what a run one after the
+other shows; ``--one-process`` runs them one after the other.
 """
 
 from __future__ import annotations
 
+import contextlib
+import io
 import json
 import os
 import shutil
@@ -82,7 +88,138 @@ def season(book: Path) -> str:
             f"(the invented hidden error of 0.7 µA/A) → {rel(OUT / 'trend.pdf')}")
 
 
-def main() -> None:
+#: Steps run in a second process while this one runs the others (they share no files): the
+#: validation, the pump fits, the three runs with the amplifier chain, and their comparison.
+#: The resistor-chain record, its report, signatures and check, and the season stay here.
+WORKER_STEPS = (1, 2, 7, 8)
+
+
+class _Tape(io.TextIOBase):
+    """Keeps what a step writes to stdout (1) or stderr (2), in order, to be written later."""
+
+    def __init__(self, chunks: list, fd: int):
+        super().__init__()
+        self._chunks, self._fd = chunks, fd
+
+    @property
+    def encoding(self) -> str:
+        return "utf-8"
+
+    def writable(self) -> bool:
+        return True
+
+    def isatty(self) -> bool:
+        return False   # no progress bar: its carriage returns would be replayed as text
+
+    def write(self, text: str) -> int:
+        self._chunks.append((self._fd, text))
+        return len(text)
+
+
+def _taped(step) -> tuple[list, object]:
+    """Run one step with its output kept: (chunks, None) or (chunks, exit message)."""
+    chunks: list = []
+    with contextlib.redirect_stdout(_Tape(chunks, 1)), \
+            contextlib.redirect_stderr(_Tape(chunks, 2)):
+        try:
+            step()
+        except SystemExit as exc:   # budget() stops the demo with sys.exit(message)
+            return chunks, exc.code if exc.code is not None else 1
+    return chunks, None
+
+
+def _play(chunks: list) -> None:
+    for fd, text in chunks:
+        (sys.stdout if fd == 1 else sys.stderr).write(text)
+    sys.stdout.flush()
+    sys.stderr.flush()
+
+
+def _worker(queue, work: dict, numbers) -> None:
+    for i in numbers:
+        chunks, stop = _taped(work[i])
+        queue.put((i, chunks, stop))
+        if stop is not None:
+            return
+
+
+def run_steps(work: dict, in_worker) -> None:
+    """Run the numbered steps, those in ``in_worker`` in a forked second process, and write
+    every step's output in step order, as a run one after the other would.
+
+    The two halves share no files (each step reads only what an earlier step of its own half
+    wrote), so the files written are the same; a step's stdout and stderr keep their streams
+    and their order. Where ``fork`` is not available, or on one CPU, the steps run one after
+    the other in this process (and with an empty ``in_worker``: ``--one-process``).
+    """
+    import multiprocessing as mp
+    if not in_worker or "fork" not in mp.get_all_start_methods() or (os.cpu_count() or 1) < 2:
+        for i in sorted(work):
+            work[i]()
+        return
+    import queue as queues
+
+    # imported once here and shared by both processes (each would import them otherwise)
+    import matplotlib.figure  # noqa: F401
+    import weasyprint  # noqa: F401
+
+    import budget.cli  # noqa: F401
+    import budget.engine  # noqa: F401
+    import budget.report.render  # noqa: F401
+    ctx = mp.get_context("fork")
+    queue = ctx.Queue()
+    theirs = [i for i in sorted(work) if i in in_worker]
+    sys.stdout.flush()   # nothing buffered may be written twice (the child flushes at exit)
+    sys.stderr.flush()
+    child = ctx.Process(target=_worker, args=(queue, work, theirs))
+    child.start()
+    done: dict = {}
+    nxt = min(work)
+
+    def receive(timeout: float | None) -> bool:
+        try:
+            i, chunks, stop = queue.get(timeout=timeout) if timeout else queue.get_nowait()
+        except queues.Empty:
+            return False
+        done[i] = (chunks, stop)
+        return True
+
+    def show() -> int:
+        n = nxt
+        while n in done:
+            chunks, stop = done.pop(n)
+            _play(chunks)
+            if stop is not None:
+                sys.exit(stop)
+            n += 1
+        return n
+
+    try:
+        for i in sorted(work):
+            if i in in_worker:
+                continue
+            done[i] = _taped(work[i])
+            while receive(None):
+                pass
+            nxt = show()
+        while nxt <= max(work):
+            if not receive(1.0) and nxt not in done and not child.is_alive() \
+                    and not receive(None):
+                sys.exit("demo stopped: the worker process ended unexpectedly")
+            nxt = show()
+    finally:
+        if child.is_alive() and nxt <= max(work):   # stopped early: leave no worker behind
+            child.terminate()
+        child.join()
+
+
+def main(argv: list[str] | None = None) -> None:
+    import argparse
+    ap = argparse.ArgumentParser(description="The demo behind 'make demo' (invented data).")
+    ap.add_argument("--one-process", action="store_true",
+                    help="run every step in this process, one after the other (by default "
+                         "the independent steps run in a second, forked process)")
+    one_process = ap.parse_args(argv).one_process
     start = time.monotonic()
     os.chdir(ROOT)
     os.environ["BUDGET_PASSPHRASE"] = DEMO_PASSPHRASE   # demonstration only (docstring)
@@ -128,13 +265,24 @@ def main() -> None:
            OUT / "amplifier.json", "--pairwise", "--pdf", OUT / "compare.pdf")], False),
     ]
     total = len(steps) + 1
-    for i, (what, commands, quiet) in enumerate(steps, start=1):
-        print(f"\n[{i}/{total}] {what}", flush=True)
-        for args in commands:
-            budget(*args, quiet=quiet)
-    print(f"\n[{total}/{total}] keep a year of invented runs in the logbook and watch the "
-          "trend", flush=True)
-    flag = season(OUT / "logbook.sqlite")
+
+    def command_step(i: int, what: str, commands, quiet: bool):
+        def step() -> None:
+            print(f"\n[{i}/{total}] {what}", flush=True)
+            for args in commands:
+                budget(*args, quiet=quiet)
+        return step
+
+    flag: list[str] = []
+
+    def season_step() -> None:
+        print(f"\n[{total}/{total}] keep a year of invented runs in the logbook and watch the "
+              "trend", flush=True)
+        flag.append(season(OUT / "logbook.sqlite"))
+
+    work = {i: command_step(i, *s) for i, s in enumerate(steps, start=1)}
+    work[total] = season_step
+    run_steps(work, () if one_process else WORKER_STEPS)
 
     # the record stores SI numbers with the display unit beside them; reading it through the
     # library shows them in that unit (formatting the raw JSON as ppm printed 0.00)
@@ -150,7 +298,7 @@ def main() -> None:
           f"{dev.value:+.2f} {dev.unit} with expanded uncertainty U = "
           f"{dev.expanded_uncertainty:.2f} {dev.unit} (k = {dev.coverage_factor:.2f}, "
           f"p ≈ {100 * dev.coverage_probability:g} %)")
-    print(f"Logbook (invented season): {flag}")
+    print(f"Logbook (invented season): {flag[0]}")
     print("The signed documents are demonstrations: a real certificate is reviewed and "
           "authorised under the laboratory's own quality procedures.")
 
