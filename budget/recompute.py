@@ -14,6 +14,7 @@ from . import __version__
 from .archive import hash_file
 from .errors import BudgetError, UsageError
 from .record import record_data
+from .result import SCHEMA
 
 __all__ = ["recompute", "FileCheck", "RecheckResult"]
 
@@ -49,12 +50,16 @@ class RecheckResult:
         Where the records differ (JSON paths with both values), at most a few.
     problems : tuple of str
         Everything that failed, as sentences; empty when all is well.
+    older_format : str
+        The signed record's format when it is an older one than this version writes (the
+        spec is then not re-run: its bytes could not be reproduced); "" otherwise.
     """
 
     files: tuple[FileCheck, ...]
     record_identical: bool
     differences: tuple[str, ...]
     problems: tuple[str, ...]
+    older_format: str = ""
 
     @property
     def ok(self) -> bool:
@@ -63,7 +68,8 @@ class RecheckResult:
     def to_dict(self) -> dict[str, Any]:
         return {"files": [f.to_dict() for f in self.files],
                 "record_identical": self.record_identical,
-                "differences": list(self.differences), "problems": list(self.problems)}
+                "differences": list(self.differences), "problems": list(self.problems),
+                "older_format": self.older_format}
 
 
 def _diff(a: Any, b: Any, path: str, out: list[str], limit: int = 6) -> None:
@@ -109,7 +115,9 @@ def recompute(spec_bytes: bytes, record_json: str, manifest: dict[str, Any],
         Folder standing for the spec's folder: relative data-file paths resolve against it.
 
     The run uses the original seed, trial setting, sampling and Monte Carlo switch from the
-    record. A
+    record. A record of an older format (:data:`budget.result.OLDER_SCHEMAS`) is not re-run:
+    its file digests are still compared, and a problem says that its bytes cannot be
+    reproduced by this version. A
     spec or data problem during the run is reported as a problem, not raised: for a verifier
     it is a failed check.
     """
@@ -136,6 +144,16 @@ def recompute(spec_bytes: bytes, record_json: str, manifest: dict[str, Any],
                             f"{f.get('sha256')})")
     rec = record_data(record_json, file="record")
     run = rec["run"]
+    if rec["schema"] != SCHEMA:
+        # an older format: this version writes other bytes for the same inputs, so a byte
+        # comparison would report a confusing mismatch; say why it cannot be compared instead
+        problems.append(f"the signed record was written in the older record format "
+                        f"{rec['schema']} (by {run.get('software') or 'an older version'}; "
+                        f"this version writes {SCHEMA}), so a recompute cannot be compared "
+                        "with it byte for byte; re-verify the inputs with the version that "
+                        "wrote it")
+        return RecheckResult(tuple(checks), False, (), tuple(problems),
+                             older_format=str(rec["schema"]))
     spec_name = (manifest.get("spec") or {}).get("file") or \
         (manifest.get("spec") or {}).get("path") or run.get("spec_file") or "spec.toml"
     differences: list[str] = []

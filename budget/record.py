@@ -9,7 +9,9 @@ at fault (``measurands[0].terms[2].sensitivity``) instead of a KeyError.
 Checked, in this order:
 
 * the bytes are UTF-8 text (a byte-order mark is dropped) and JSON, without NaN or Infinity;
-* the top level is an object whose ``schema`` is :data:`budget.result.SCHEMA`;
+* the top level is an object whose ``schema`` is :data:`budget.result.SCHEMA` or one of the
+  older formats still read, :data:`budget.result.OLDER_SCHEMAS` (any other is refused: this
+  version cannot know what its fields mean);
 * the record against the JSON Schema shipped with the package,
   ``budget/schemas/record.schema.json`` (README "The result record"): every known field has its
   declared type and range (numbers finite float64 values, ν positive or null, probabilities in
@@ -27,7 +29,7 @@ from typing import Any
 
 from .errors import BudgetError, DataError
 from .numbers import NumberError, checked, shown
-from .result import SCHEMA, Budget
+from .result import OLDER_SCHEMAS, SCHEMA, Budget
 from .schema import SchemaViolation, load_schema, path_text, validate
 
 __all__ = ["load_record", "record_from_text", "record_from_dict", "record_data",
@@ -49,8 +51,9 @@ def _check_record(data: Any, file: str | None) -> None:
         raise DataError("must be a JSON object (a result record from 'budget run --json')",
                         file=file)
     schema = data.get("schema")
-    if schema != SCHEMA:
-        raise DataError(f"is {shown(schema)}, this version reads {SCHEMA!r}", file=file,
+    if schema != SCHEMA and schema not in OLDER_SCHEMAS:
+        older = " and the older " + ", ".join(map(repr, OLDER_SCHEMAS)) if OLDER_SCHEMAS else ""
+        raise DataError(f"is {shown(schema)}, this version reads {SCHEMA!r}{older}", file=file,
                         field="schema")
     try:
         validate(data, load_schema("record.schema.json"))

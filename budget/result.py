@@ -24,10 +24,21 @@ from typing import Any
 from .quantity import Quantity
 from .warnings import Warning, warnings_from_list
 
-__all__ = ["SCHEMA", "Term", "Measurand", "MonteCarlo", "Budget", "dof_out", "dof_in",
+__all__ = ["SCHEMA", "OLDER_SCHEMAS", "Term", "Measurand", "MonteCarlo", "Budget", "dof_out", "dof_in",
            "display_scale", "in_unit"]
 
-SCHEMA = "qcs-budget/record-1"
+#: The record format this version writes. Raise it whenever the same spec, inputs and seed
+#: would give other bytes than before (a field added, renamed or computed differently), since
+#: ``verify --inputs`` compares a recomputed record with the signed one byte for byte.
+#: record-2: Monte Carlo ``numerical_accuracy`` (s/√h of y, u and the interval ends),
+#: ``verdict`` (three-valued §8 comparison), ``procedure``, ``stabilised``,
+#: ``stop_tolerance``, ``run.sampling``; the chains' deviation computed as q − 1 (working unit
+#: 1, ``run.model`` without the factor 10⁶) and scaled only for display.
+SCHEMA = "qcs-budget/record-2"
+#: Older formats still read (by compare, explain, report, the logbook, verify): their fields
+#: are a subset of the current ones with the same meaning and the same SI numbers. Their bytes
+#: cannot be reproduced by this version, so ``verify --inputs`` does not compare them.
+OLDER_SCHEMAS = ("qcs-budget/record-1",)
 
 
 def dof_out(nu: float) -> float | None:

@@ -146,8 +146,13 @@ def test_another_schema_version(book, tmp_path, records):
     d["schema"] = "qcs-budget/record-0"
     p = tmp_path / "old.json"
     p.write_text(json.dumps(d), encoding="utf-8")
-    e = _refused(book, [p], "this version reads 'qcs-budget/record-1'")
+    e = _refused(book, [p], "this version reads 'qcs-budget/record-2'")
     assert e.field == "schema"
+    # a newer format than the code knows is refused the same way (its fields' meaning is
+    # unknown); the older format it still reads is not "another schema version"
+    d["schema"] = "qcs-budget/record-3"
+    p.write_text(json.dumps(d), encoding="utf-8")
+    assert _refused(book, [p], "and the older 'qcs-budget/record-1'").field == "schema"
 
 
 def test_tampered_record_stated_digest(book, tmp_path, records):

@@ -126,3 +126,32 @@ def test_validator_agrees_with_jsonschema(data):
         ours = False
     theirs = jsonschema.Draft202012Validator(load_schema("record.schema.json")).is_valid(rec)
     assert ours == (theirs and _finite_everywhere(rec))
+
+
+def test_record_format_version_and_the_older_one_still_read(tmp_path):
+    # The schema file declares exactly the formats the reader accepts (one place for key
+    # types, DEVELOPERS.md "schema.py"): the current one and the older ones still read.
+    from budget.result import OLDER_SCHEMAS, SCHEMA
+    shipped = load_schema("record.schema.json")
+    assert shipped["properties"]["schema"]["enum"] == [SCHEMA, *OLDER_SCHEMAS]
+    assert shipped["$id"] == SCHEMA
+    rec = base_record()
+    assert rec["schema"] == SCHEMA == "qcs-budget/record-2"
+    # a record-1 record, as older versions wrote it (no Monte Carlo verdict nor numerical
+    # accuracy): still read, its numbers as they stand
+    old = base_record()
+    old["schema"] = "qcs-budget/record-1"
+    for mc in old["monte_carlo"]:
+        for k in ("verdict", "procedure", "stabilised", "numerical_accuracy", "stop_tolerance"):
+            mc.pop(k, None)
+    b = record_from_text(json.dumps(old))
+    assert b.schema == "qcs-budget/record-1"
+    assert b.measurands[0].value == rec["measurands"][0]["value"]
+    # a format this version does not know is refused, naming what it reads
+    from budget.errors import DataError
+    for unknown in ("qcs-budget/record-0", "qcs-budget/record-3"):
+        old["schema"] = unknown
+        with pytest.raises(DataError, match="this version reads 'qcs-budget/record-2' and "
+                                            "the older 'qcs-budget/record-1'") as info:
+            record_from_text(json.dumps(old))
+        assert info.value.field == "schema"

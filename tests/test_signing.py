@@ -321,6 +321,41 @@ def test_inputs_reverification(setup, signed, capsys, monkeypatch, tmp_path):
     assert code == 1 and "missing" in o
 
 
+def test_inputs_reverification_of_an_older_record_format(setup, capsys, monkeypatch,
+                                                        tmp_path):
+    # A record written in the older format qcs-budget/record-1: this version writes other
+    # bytes for the same inputs (record-2 added Monte Carlo fields), so a byte comparison
+    # cannot succeed. verify must say so in one line (exit 1, a failed check as for any
+    # failed recompute: DESIGN.md exit codes) instead of listing field differences, and still
+    # compare the input files' digests.
+    s = setup
+    old = s["record"].read_text("utf-8").replace('"schema": "qcs-budget/record-2"',
+                                                 '"schema": "qcs-budget/record-1"', 1)
+    assert '"qcs-budget/record-1"' in old
+    pdf = tmp_path / "old-signed.pdf"
+    pdf.write_bytes(signing.sign_pdf((s["root"] / "report.pdf").read_bytes(), s["a"].p12_path,
+                                     PASSPHRASE, reason="approved", location="Invented Lab",
+                                     record_json=old, spec_text=s["spec"].read_bytes()))
+    code, o, e = _verify(setup, pdf, capsys, monkeypatch)
+    assert code == 0, o                                 # the signature itself is intact
+    lab = tmp_path / "lab"
+    shutil.copytree(s["spec"].parent, lab)
+    code, o, e = _verify(setup, pdf, capsys, monkeypatch, extra=["--inputs", lab])
+    assert code == 1
+    failed = [ln for ln in o.splitlines() if ln.startswith("FAILED")]
+    assert len(failed) == 1, o
+    assert ("older record format qcs-budget/record-1" in failed[0]
+            and "cannot be compared with it byte for byte" in failed[0])
+    assert "differs" not in o and "DIFFERENT" not in o
+    assert "input data/cal.csv: same" in o
+    assert "recomputed record: not compared (older record format qcs-budget/record-1)" in o
+    # a changed input file is still found
+    cal = lab / "data" / "cal.csv"
+    cal.write_text(cal.read_text("utf-8").replace("5.0000062", "5.0000063"), encoding="utf-8")
+    code, o, e = _verify(setup, pdf, capsys, monkeypatch, extra=["--inputs", lab])
+    assert code == 1 and "data/cal.csv has changed" in o
+
+
 def test_latin1_folding_for_the_visible_block():
     # NFKD decomposition (Unicode Standard Annex #15) splits ř into r + combining caron;
     # á, ö and ß are Latin-1 already (ISO/IEC 8859-1) and stay; Ł has no decomposition

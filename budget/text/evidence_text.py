@@ -78,7 +78,10 @@ def recompute_text(chk: RecheckResult) -> str:
     """The status of each input file against the signed manifest and whether the re-run
     record is identical byte for byte."""
     out = [f"input {f.path}: {f.status}" for f in chk.files]
-    out.append(f"recomputed record: {'identical' if chk.record_identical else 'DIFFERENT'}")
+    if chk.older_format:
+        out.append(f"recomputed record: not compared (older record format {chk.older_format})")
+    else:
+        out.append(f"recomputed record: {'identical' if chk.record_identical else 'DIFFERENT'}")
     return "\n".join(out)
 
 
