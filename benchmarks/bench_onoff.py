@@ -1,33 +1,47 @@
-"""Reading a 10⁷-row on/off record (issue 14, scale): ``read_onoff`` against the general
-reading it falls back to (by hand, never in CI).
+"""Reading a 10⁷-row on/off record (issue 14, scale): ``read_onoff`` against the readings it
+replaces (by hand, never in CI).
 
 Target: 10⁷ rows in < 1.5 s. The record is invented (``bench_cycles.write_record``: 10 Hz
-readings, 60 s segments, ten significant digits, about 270 MB). ``read_onoff`` parses the two
-number columns straight to float64 without ``skipinitialspace`` when no field can begin with a
-space (checked first); the baseline is the same function with that fast path switched off,
-i.e. the reading as it was (pandas infers each column, then the same checks). Both are run
-alternately in one process, 5 pairs, wall-clock and process CPU time; the script checks that
-both give bit-identical arrays.
+readings, 60 s segments, ten significant digits, about 270 MB). Three readers, each the whole
+of ``read_onoff`` (reading the bytes, header, parsing, checks), differing only in the path:
 
-    .venv/bin/python benchmarks/bench_onoff.py [ROWS]
+* ``read_onoff``: the body cut at newlines into one piece per processor, each piece read with
+  ``os.pread`` and parsed to float64 by pandas' C parser in its own thread, the arrays joined;
+* one piece: the whole bytes read, then parsed to float64 in one thread (the reader before
+  the cut into pieces);
+* general: the fast path switched off (pandas infers each column with ``skipinitialspace``,
+  then the same checks) — the reference the others must equal bit for bit.
+
+Run in one process, the order rotated every round, ``REPEATS`` rounds (default 7), wall-clock
+and process CPU time; the script checks that all three give bit-identical arrays and prints
+the load average before and after.
+
+    .venv/bin/python benchmarks/bench_onoff.py [ROWS [REPEATS]]
 """
 
 from __future__ import annotations
 
+import os
 import statistics
 import sys
 import tempfile
 import time
+from contextlib import nullcontext
 from pathlib import Path
 from unittest import mock
-
-import numpy as np
 
 sys.path.insert(0, str(Path(__file__).resolve().parent))
 
 from bench_cycles import write_record  # noqa: E402
 
-from budget.inputs import onoff_table  # noqa: E402
+from budget.inputs import onoff_parse, onoff_table  # noqa: E402
+
+READERS = {
+    "read_onoff (pieces in threads)": nullcontext,
+    "one piece (fast path before)": lambda: mock.patch.object(onoff_parse, "threads",
+                                                              lambda: 1),
+    "general reading": lambda: mock.patch.object(onoff_table, "_FAST", False),
+}
 
 
 def timed(fn):
@@ -40,31 +54,44 @@ def stats(xs: list[float]) -> str:
     return f"{min(xs):.2f} / {statistics.median(xs):.2f} / {max(xs):.2f} s"
 
 
+def load() -> str:
+    return " ".join(f"{x:.2f}" for x in os.getloadavg())
+
+
 def main() -> None:
     rows = int(sys.argv[1]) if len(sys.argv) > 1 else 10 ** 7
+    repeats = int(sys.argv[2]) if len(sys.argv) > 2 else 7
+    names = list(READERS)
+    wall = {k: [] for k in names}
+    cpu = {k: [] for k in names}
     with tempfile.TemporaryDirectory() as tmp:
         path = Path(tmp) / "onoff.csv"
         write_record(path, rows, 0.1, 60.0, seed=1)
         size = path.stat().st_size / 1e6
-        fast, base = ([], []), ([], [])
-        for _ in range(5):
-            a, w, c = timed(lambda: onoff_table.read_onoff(path))
-            fast[0].append(w)
-            fast[1].append(c)
-            with mock.patch.object(onoff_table, "_no_initial_space", lambda raw: False):
-                b, w, c = timed(lambda: onoff_table.read_onoff(path))
-            base[0].append(w)
-            base[1].append(c)
-            assert all(np.array_equal(getattr(a, k), getattr(b, k))
-                       for k in ("time", "reading", "on")), "readers disagree"
-    ratio = [f / b for f, b in zip(fast[1], base[1])]
-    print(f"{rows} rows, {size:.0f} MB; arrays bit-identical")
+        print(f"load average before (1, 5, 15 min): {load()}; "
+              f"{onoff_parse.threads()} processors", flush=True)
+        for r in range(repeats):
+            got = {}
+            for k in names[r % 3:] + names[:r % 3]:           # rotated order
+                with READERS[k]():
+                    got[k], w, c = timed(lambda: onoff_table.read_onoff(path))
+                wall[k].append(w)
+                cpu[k].append(c)
+            ref = got["general reading"]
+            assert all(getattr(t, a).tobytes() == getattr(ref, a).tobytes()
+                       and getattr(t, a).dtype == getattr(ref, a).dtype
+                       for t in got.values() for a in ("time", "reading", "on")), \
+                "readers disagree"
+    print(f"load average after: {load()}")
+    print(f"{rows} rows, {size:.0f} MB, {repeats} rounds; arrays bit-identical")
     print("| reader | wall min / median / max | CPU min / median / max |")
     print("|---|---|---|")
-    print(f"| read_onoff | {stats(fast[0])} | {stats(fast[1])} |")
-    print(f"| general reading (before) | {stats(base[0])} | {stats(base[1])} |")
-    print(f"CPU ratio per pair min / median / max: {min(ratio):.2f} / "
-          f"{statistics.median(ratio):.2f} / {max(ratio):.2f}")
+    for k in names:
+        print(f"| {k} | {stats(wall[k])} | {stats(cpu[k])} |")
+    for k in names[1:]:
+        ratio = [a / b for a, b in zip(wall[names[0]], wall[k])]
+        print(f"wall ratio read_onoff / {k}, per round min / median / max: "
+              f"{min(ratio):.2f} / {statistics.median(ratio):.2f} / {max(ratio):.2f}")
 
 
 if __name__ == "__main__":

@@ -85,15 +85,15 @@ def test_fast_path_reads_and_refuses_as_the_general_reading(tmp_path, case, monk
             return exc.one_line()
         return t.time.tobytes(), t.reading.tobytes(), t.on.tobytes()
     fast = outcome()
-    monkeypatch.setattr(m, "_no_initial_space", lambda raw: False)
+    monkeypatch.setattr(m, "_FAST", False)
     assert fast == outcome()
 
 
 def test_fast_path_is_taken_only_when_no_field_can_begin_with_a_space():
-    from budget.inputs.onoff_table import _no_initial_space
-    assert _no_initial_space(b"# a comment with spaces\ntime_s, reading, pump\n0,1,on\n")
-    assert _no_initial_space(b"\xef\xbb\xbftime_s,reading,pump\n0,1,on\n")
-    assert not _no_initial_space(b"time_s,reading,pump\n0, 1,on\n")
-    assert not _no_initial_space(b"time_s,reading,pump\n0,1,on\n# note with spaces\n")
-    assert not _no_initial_space(b"  # indented\ntime_s,reading,pump\n0,1,on\n")
-    assert not _no_initial_space(b"# only comments\n")
+    from budget.inputs.onoff_parse import no_initial_space
+    assert no_initial_space(b"# a comment with spaces\ntime_s, reading, pump\n0,1,on\n")
+    assert no_initial_space(b"\xef\xbb\xbftime_s,reading,pump\n0,1,on\n")
+    assert not no_initial_space(b"time_s,reading,pump\n0, 1,on\n")
+    assert not no_initial_space(b"time_s,reading,pump\n0,1,on\n# note with spaces\n")
+    assert not no_initial_space(b"  # indented\ntime_s,reading,pump\n0,1,on\n")
+    assert not no_initial_space(b"# only comments\n")

@@ -2,7 +2,9 @@
 
 The general :func:`budget.inputs.tables.read_table` keeps every cell as text, which costs about
 seven seconds for a record of 10⁶ readings; this reader lets pandas parse numbers in C and only
-falls back to text for a column that did not parse, to find the offending row. Row numbers
+falls back to text for a column that did not parse, to find the offending row. The common case
+is read by :mod:`budget.inputs.onoff_parse` (straight to float64, in pieces side by side), which
+declines anything this general reading could treat differently. Row numbers
 follow :mod:`budget.inputs.tables`: 1-based data rows, header excluded, blank lines and lines
 starting with ``#`` not counted.
 """
@@ -18,13 +20,14 @@ import numpy as np
 import pandas as pd
 
 from ..errors import DataError, did_you_mean
+from .onoff_parse import pump_states, read_bytes_plain, read_pieces
 from .tables import decode_text
 
 __all__ = ["COLUMNS", "OnOffTable", "read_onoff", "mask_ranges"]
 
 COLUMNS = ("time_s", "reading", "pump")
-_ON = {"on", "1", "1.0"}
-_OFF = {"off", "0", "0.0"}
+#: the fast paths of :mod:`budget.inputs.onoff_parse` (off: the general reading only)
+_FAST = True
 
 
 @dataclass(frozen=True)
@@ -69,6 +72,12 @@ def _head_text(raw: bytes, shown: str) -> str:
     return text
 
 
+def _columns(text: str, shown: str) -> list[str]:
+    cols = _header(text, shown)
+    _check_columns(cols, shown)
+    return cols
+
+
 def _check_columns(cols: list[str], shown: str) -> None:
     seen = set()
     for c in cols:
@@ -110,21 +119,7 @@ def _numeric(df: pd.DataFrame, col: str, shown: str) -> np.ndarray:
 
 def _pump(df: pd.DataFrame, shown: str) -> np.ndarray:
     s = df["pump"]
-    if s.dtype.kind in "iuf":
-        v = s.to_numpy(dtype=float)
-        ok = (v == 0) | (v == 1)
-        on = v == 1
-    else:
-        if isinstance(s.dtype, pd.CategoricalDtype):     # the reader's dtype: no factorising
-            codes, uniques = s.cat.codes.to_numpy(), list(s.cat.categories)
-        else:
-            codes, uniques = pd.factorize(s, use_na_sentinel=False)
-        labels = [str(u).strip().lower() for u in uniques]
-        # a missing value (code −1) takes the extra last entry: invalid
-        valid = np.array([lab in _ON or lab in _OFF for lab in labels] + [False], dtype=bool)
-        is_on = np.array([lab in _ON for lab in labels] + [False], dtype=bool)
-        ok = valid[codes]
-        on = is_on[codes]
+    ok, on = pump_states(s)
     if not ok.all():
         i = int(np.flatnonzero(~ok)[0])
         raise DataError(f"pump state must be on/off or 1/0; got {str(s.iloc[i]).strip()!r}",
@@ -152,68 +147,27 @@ def _read_general(raw: bytes, cols: list[str], shown: str) -> pd.DataFrame:
         raise DataError(f"cannot read as CSV: {' '.join(str(exc).split())}", file=shown) from None
 
 
-def _no_initial_space(raw: bytes) -> bool:
-    """True when no field of the file can begin with a space or tab, so that pandas'
-    ``skipinitialspace`` (a quarter of the parsing time) changes nothing. Conservative: any
-    space or tab after the header line, even in a comment, answers False; before it only lines
-    starting with ``#`` may hold them."""
-    pos = 3 if raw.startswith(b"\xef\xbb\xbf") else 0
-    while pos < len(raw):
-        end = raw.find(b"\n", pos)
-        end = len(raw) if end < 0 else end
-        line = raw[pos:end]
-        if line[:1] in (b" ", b"\t"):
-            return False
-        if line.strip() and not line.startswith(b"#"):      # the header line
-            return raw.find(b" ", end) < 0 and raw.find(b"\t", end) < 0
-        pos = end + 1
-    return False
-
-
-#: integers from 2**53 on are not all exact floats: such a column is read the general way
-_EXACT = 2.0 ** 53
-
-
-def _read_plain(raw: bytes, cols: list[str]) -> pd.DataFrame | None:
-    """The common case in one pass: ``time_s`` and ``reading`` parsed straight to float64,
-    without ``skipinitialspace`` (see :func:`_no_initial_space`). Returns None whenever the
-    general reading could differ in any way — a value that does not parse, a missing or
-    non-finite value, a field-count problem, an integer too large to be exact — so that
-    :func:`_read_general` gives exactly today's numbers and messages."""
-    try:
-        with warnings.catch_warnings():
-            warnings.simplefilter("error", pd.errors.ParserWarning)
-            df = pd.read_csv(io.BytesIO(raw), encoding="utf-8-sig", comment="#", header=0,
-                             names=cols, index_col=False, skipinitialspace=False,
-                             keep_default_na=False, na_values=[], low_memory=False,
-                             dtype={"pump": "category", "time_s": float, "reading": float})
-    except (ValueError, UnicodeDecodeError, pd.errors.ParserWarning):
-        return None
-    for c in ("time_s", "reading"):
-        v = df[c].to_numpy()
-        if v.dtype != np.float64 or not np.isfinite(v).all() or \
-                (len(v) and float(np.abs(v).max()) >= _EXACT):
-            return None
-    return df
-
-
 def read_onoff(path: Path, shown: str | None = None) -> OnOffTable:
     """Read and check an on/off record; every problem is a DataError with file, row, column."""
     shown = shown or str(path)
-    raw = path.read_bytes()    # pandas parses the bytes; the text gives the header and rows
-    cols = _header(_head_text(raw, shown), shown)
-    _check_columns(cols, shown)
-    df = _read_plain(raw, cols) if _no_initial_space(raw) else None
-    if df is None:
+    fast = read_pieces(path, lambda text: _columns(text, shown)) if _FAST else None
+    if fast is None:
+        raw = path.read_bytes()    # pandas parses the bytes; the text gives header and rows
+        cols = _columns(_head_text(raw, shown), shown)
+        fast = read_bytes_plain(raw, cols) if _FAST else None
+    if fast is not None:
+        time, reading, on = fast
+    else:
         df = _read_general(raw, cols, shown)
-    if len(df) == 0:
-        raise DataError("has no data rows", file=shown)
-    time = _numeric(df, "time_s", shown)
-    reading = _numeric(df, "reading", shown)
-    on = _pump(df, shown)
-    step = np.diff(time)
-    if (step <= 0).any():
-        i = int(np.flatnonzero(step <= 0)[0])
+        if len(df) == 0:
+            raise DataError("has no data rows", file=shown)
+        time = _numeric(df, "time_s", shown)
+        reading = _numeric(df, "reading", shown)
+        on = _pump(df, shown)
+    # t[i+1] <= t[i] for finite floats is np.diff(t) <= 0 without an 80 MB array per 10⁷ rows
+    not_up = time[1:] <= time[:-1]
+    if not_up.any():
+        i = int(np.flatnonzero(not_up)[0])
         raise DataError(f"time must increase strictly; {float(time[i + 1]):g} s follows {float(time[i]):g} s",
                         file=shown, row=i + 2, field="time_s")
     return OnOffTable(path=path, shown=shown, time=time, reading=reading, on=on)
