@@ -3,7 +3,8 @@ install, against the same demo of another tree (by hand, never in CI).
 
 Target: < 30 s wall (median of 3) on this machine. Each run is a fresh interpreter running the
 tree's ``run_demo.py`` with the tree as working folder (so it uses that tree's package), runs
-of this tree and of the baseline alternated; wall-clock time and the CPU time of the run and
+of this tree and of the baseline alternated (who goes first swapped each round, N runs of
+each); wall-clock time and the CPU time of the run and
 all its child processes. The baseline is the tree given as BASELINE (e.g. an export of the
 commit before a change: ``git archive REV | tar -x -C /tmp/base``).
 
@@ -46,16 +47,21 @@ def main() -> None:
     ap.add_argument("--runs", type=int, default=3)
     a = ap.parse_args()
     ours, base = [], []
-    for i in range(a.runs):
-        ours.append(one(ROOT))
-        if a.baseline is not None and i < a.runs - 1:   # baseline between our runs
-            base.append(one(a.baseline))
+    loads = [os.getloadavg()[0]]
+    for i in range(a.runs):                      # alternated, who goes first swapped each round
+        for who in ((0, 1) if i % 2 == 0 else (1, 0)):
+            if who == 0:
+                ours.append(one(ROOT))
+            elif a.baseline is not None:
+                base.append(one(a.baseline))
+            loads.append(os.getloadavg()[0])
     print("| demo | runs | wall min / median / max | CPU min / median / max |")
     print("|---|---|---|---|")
     print(line("this tree", ours))
     if base:
         print(line(f"baseline {a.baseline}", base))
-    print(f"load average at the end: {os.getloadavg()[0]:.1f}")
+    print(f"1-minute load average before and after each run: min {min(loads):.1f}, median "
+          f"{statistics.median(loads):.1f}, max {max(loads):.1f}")
 
 
 if __name__ == "__main__":

@@ -14,7 +14,9 @@ and seed, the same chunks and draw order, the same sampling formulas (pseudo-ran
 §6.4 formulas and the copula through an eigen-factor; RQMC: ``scipy.stats.qmc.Sobol`` points,
 the same inverse distribution functions), both expressions by hand, then per output the mean,
 standard deviation, sort, probabilistically symmetric and shortest 95 % intervals, the
-histogram over the central 99.9 % and the fraction of trials inside y ± U. The script checks
+histogram over the central 99.9 % and the fraction of trials inside y ± U, and the numerical
+accuracy from batches (JCGM 101 §7.9: the statistics of 10 contiguous batches for pseudo-random
+sampling, of 16 independent scrambles of trials/16 points each for RQMC). The script checks
 that the two give bit-identical numbers, so the ratio is the engine's own overhead.
 
 Timing: engine and baseline alternate in pairs within one process (``time.process_time``, every
@@ -80,7 +82,9 @@ def engine(model, qs, corr, trials, seed, sampling):
     res = monte_carlo(model, qs, corr, McmSettings(trials=trials, seed=seed, sampling=sampling),
                       intervals=LIMITS)
     return {n: (r.value, r.standard_uncertainty, r.symmetric, r.shortest, r.histogram_counts,
-                r.histogram_edges, r.interval_probabilities[n]) for n, r in res.items()}
+                r.histogram_edges, r.interval_probabilities[n], r.accuracy.batches,
+                (r.accuracy.value, r.accuracy.standard_uncertainty, *r.accuracy.symmetric,
+                 *r.accuracy.shortest)) for n, r in res.items()}
 
 
 # ----------------------------------------------------------------------- the baseline, by hand
@@ -133,40 +137,66 @@ def draw_sobol(u, fac):
     return v
 
 
+def _intervals(y, p):
+    """Symmetric and shortest 100p % intervals of sorted y (JCGM 101 §7.7), by hand."""
+    n = y.size
+    q = int(p * n + 0.5)
+    r = (n - q) // 2 if (n - q) % 2 == 0 else (n - q + 1) // 2
+    i = int(np.argmin(y[q:] - y[: n - q]))
+    return (float(y[r - 1]), float(y[r + q - 1])), (float(y[i]), float(y[i + q]))
+
+
 def baseline(trials, seed, sampling, chunk):
     from scipy.stats import qmc
     rng = np.random.default_rng(seed)
     w, vec = np.linalg.eigh(np.array([[1.0, R], [R, 1.0]]))
     fac = vec * np.sqrt(np.clip(w, 0.0, None))
     ys = {"Y1": np.empty(trials), "Y2": np.empty(trials)}
-    pts = qmc.Sobol(11, scramble=True, bits=52, rng=rng) if sampling == "sobol" else None
-    done = 0
-    while done < trials:
-        m = min(chunk, trials - done)
-        if pts is None:
-            v = draw_random(rng, m, fac)
-        else:
-            u = pts.random(m)
-            u += 0.5 ** 53
-            v = draw_sobol(u, fac)
-        ys["Y1"][done:done + m] = y1(v)
-        ys["Y2"][done:done + m] = y2(v)
-        done += m
-    out = {}
     p = 0.95
+    # batches for the numerical accuracy (JCGM 101 §7.9): RQMC 16 independent scrambles of
+    # trials/16 points each, pseudo-random 10 contiguous stretches of one stream
+    h = 16 if sampling == "sobol" else 10
+    if sampling == "sobol":
+        size = trials // h
+        bounds = [(i * size, (i + 1) * size) for i in range(h)]
+        for a, b in bounds:
+            pts = qmc.Sobol(11, scramble=True, bits=52, rng=rng)
+            done = a
+            while done < b:
+                m = min(chunk, b - done)
+                u = pts.random(m)
+                u += 0.5 ** 53
+                v = draw_sobol(u, fac)
+                ys["Y1"][done:done + m] = y1(v)
+                ys["Y2"][done:done + m] = y2(v)
+                done += m
+    else:
+        done = 0
+        while done < trials:
+            m = min(chunk, trials - done)
+            v = draw_random(rng, m, fac)
+            ys["Y1"][done:done + m] = y1(v)
+            ys["Y2"][done:done + m] = y2(v)
+            done += m
+        edges = np.linspace(0, trials, h + 1).astype(int)
+        bounds = list(zip(edges[:-1], edges[1:]))
+    out = {}
     for name, y in ys.items():
+        stats = []
+        for a, b in bounds:
+            yb = np.sort(y[a:b])
+            sym_b, short_b = _intervals(yb, p)
+            stats.append((float(yb.mean()), float(yb.std(ddof=1)), *sym_b, *short_b))
+        acc = np.array(stats).std(axis=0, ddof=1) / math.sqrt(h)
         mean, sd = float(y.mean()), float(y.std(ddof=1))
         y.sort()
-        q = int(p * trials + 0.5)
-        r = (trials - q) // 2 if (trials - q) % 2 == 0 else (trials - q + 1) // 2
-        sym = (float(y[r - 1]), float(y[r + q - 1]))
-        i = int(np.argmin(y[q:] - y[: trials - q]))
+        sym, short = _intervals(y, p)
         lo, hi = np.quantile(y, [0.0005, 0.9995])
-        counts, edges = np.histogram(y, bins=80, range=(lo, hi))
+        counts, edges_h = np.histogram(y, bins=80, range=(lo, hi))
         a, b = LIMITS[name]
         inside = float(np.searchsorted(y, b, side="right") - np.searchsorted(y, a, side="left")) / trials
-        out[name] = (mean, sd, sym, (float(y[i]), float(y[i + q])),
-                     tuple(int(c) for c in counts), tuple(float(e) for e in edges), inside)
+        out[name] = (mean, sd, sym, short, tuple(int(c) for c in counts),
+                     tuple(float(e) for e in edges_h), inside, h, tuple(float(x) for x in acc))
     return out
 
 
