@@ -14,9 +14,12 @@
   of the model I = n·e·f. When they differ the pump term belongs to another plateau than the
   current computed, and the result has no meaning: the warning ``pump.plateau_mismatch`` of
   severity ``"error"`` (``budget sign`` refuses it unless ``--accept-warnings``).
-* **Current against n·e·f.** Every measurand in a unit of current is compared with the
-  nominal n·e·f (:mod:`budget.nominal`: n and e from the constants, f from the frequency
-  module's nominal value, a constant ``f0``/``f`` or the input ``f``). A relative deviation
+* **Current against n·e·f.** In a pump budget (:func:`pump_budget`: a chain, a ``pump``
+  input, or a free-form model using the exact e and an integer n — never by input names
+  alone) every measurand in a unit of current, and the current a chain reads (the
+  ammeter-under-test's ``I_read``), is compared with the nominal n·e·f (:mod:`budget.nominal`:
+  n and e from the constants, f from the frequency module's nominal value, a constant
+  ``f0``/``f`` or the input ``f``). A relative deviation
   beyond :data:`PLAUSIBLE_DEVIATION` (1e-3, project convention: a pump on its plateau is within
   ~1e-5) is the warning ``pump.implausible_current`` of severity ``"error"``, naming the likely
   cause: a ratio I/(n·e·f) near −1 (deviation −2) is a reversed sign (pump column labels
@@ -31,6 +34,8 @@ import math
 from dataclasses import replace
 from typing import TYPE_CHECKING, Any
 
+import numpy as np
+
 from .distributions import Distribution
 from .errors import BudgetError
 from .propagate import propagate_linear
@@ -42,7 +47,7 @@ if TYPE_CHECKING:  # pragma: no cover - annotations only
     from .result import Measurand
     from .spec import Spec
 
-__all__ = ["after_propagation", "PLAUSIBLE_DEVIATION"]
+__all__ = ["after_propagation", "pump_budget", "PLAUSIBLE_DEVIATION", "ELEMENTARY_CHARGE"]
 
 
 def after_propagation(warnings: list[Warning], spec: Spec, model: Model, qs: list[Quantity],
@@ -56,7 +61,7 @@ def after_propagation(warnings: list[Warning], spec: Spec, model: Model, qs: lis
     out = [_with_glitch_effect(w, spec, model, qs, resolved, measurands)
            if w.code == "cycles.glitch" else w for w in warnings]
     return (out + _plateau_check(spec, resolved.modules)
-            + _plausibility(model, qs, resolved.modules, measurands))
+            + _plausibility(spec, model, qs, resolved, measurands))
 
 
 def _diag(modules: dict[str, Any], name: str) -> dict[str, Any]:
@@ -166,15 +171,41 @@ def _blunders(ratio: float, n: float) -> list[str]:
     return out
 
 
-def _plausibility(model: Model, qs: list[Quantity], modules: dict[str, Any],
-                  measurands: tuple[Measurand, ...]) -> list[Warning]:
-    """Each current-valued measurand against the nominal n·e·f (module docstring)."""
-    from .nominal import nominal_from
+#: The elementary charge, C (exact since the 2019 SI; SI Brochure, 9th ed.).
+ELEMENTARY_CHARGE = 1.602176634e-19
+
+
+def pump_budget(spec: Spec, model: Model, modules: dict[str, Any]) -> str:
+    """Why the budget is one of a pump's current (judged against n·e·f), or "" when not.
+
+    By what the budget *is*, never by input names alone: a traceability chain
+    (``[model] chain``, all of them pump chains), a ``pump`` input module, or a free-form model
+    that states the relation itself — one output uses both the constant ``e`` equal to the
+    exact elementary charge and the constant ``n``, a positive integer. A budget that merely
+    has inputs or constants named n, e and f (e = 0.002 an error term, n a count of
+    readings) is not one.
+    """
+    if spec.chain:
+        return f"chain {spec.chain}"
+    for name, mod in modules.items():
+        if isinstance(mod, dict) and mod.get("module") == "pump":
+            return f"pump input {name}"
+    n, e = model.constants.get("n"), model.constants.get("e")
+    if e == ELEMENTARY_CHARGE and isinstance(n, (int, float)) and not isinstance(n, bool) \
+            and n >= 1 and float(n).is_integer() \
+            and any({"n", "e"} <= model.uses(o) for o in model.outputs):
+        return "the model's n·e"
+    return ""
+
+
+def _currents(spec: Spec, model: Model, qs: list[Quantity], resolved: Any,
+              measurands: tuple[Measurand, ...]) -> list[tuple[str, float, str]]:
+    """(name, value in A, input or "") of each current to judge: every current-valued
+    measurand and, for a chain, each current it reads (the ammeter's ``I_read``)."""
+    from . import expression as ex
+    from .measurands import CHAIN_INPUTS
     from .result import display_scale
     from .units import UnitError, parse_unit
-    point = nominal_from(model.constants, modules, qs)
-    if point is None or not point.current_a or not math.isfinite(point.current_a):
-        return []
     out = []
     for m in measurands:
         try:
@@ -184,7 +215,33 @@ def _plausibility(model: Model, qs: list[Quantity], modules: dict[str, Any],
         if unit.si != "A" or unit.is_offset:
             continue
         conv = display_scale(m.unit)
-        value = m.value * (conv[0] if conv else 1.0)
+        out.append((m.name, m.value * (conv[0] if conv else 1.0), ""))
+    if spec.chain:
+        values = {q.name: q.value for q in qs}
+        for name, info in spec.input_info.items():
+            if tuple(info[:2]) != CHAIN_INPUTS["I_read"]:
+                continue
+            if name in values:
+                out.append((name, values[name], name))
+            elif name in resolved.inlined:     # a module's combining expression
+                env = {**model.constants, **values}
+                with np.errstate(all="ignore"):
+                    v = float(ex.compile_node(resolved.inlined[name])(env))
+                out.append((name, v, name))
+    return out
+
+
+def _plausibility(spec: Spec, model: Model, qs: list[Quantity], resolved: Any,
+                  measurands: tuple[Measurand, ...]) -> list[Warning]:
+    """Each current of a pump budget against the nominal n·e·f (module docstring)."""
+    from .nominal import nominal_from
+    if not pump_budget(spec, model, resolved.modules):
+        return []
+    point = nominal_from(model.constants, resolved.modules, qs)
+    if point is None or not point.current_a or not math.isfinite(point.current_a):
+        return []
+    out = []
+    for name, value, input_name in _currents(spec, model, qs, resolved, measurands):
         ratio = value / point.current_a
         dev = ratio - 1.0
         if not math.isfinite(dev) or abs(dev) <= PLAUSIBLE_DEVIATION:
@@ -194,9 +251,9 @@ def _plausibility(model: Model, qs: list[Quantity], modules: dict[str, Any],
             "check the sign and polarity (pump column labels, leads), n, the reading's unit "
             "and the frequency and resistor values")
         out.append(warn("pump.implausible_current",
-                        f"{m.name} = {value:.7g} A is {dev:+.6g} (relative) from the nominal "
+                        f"{name} = {value:.7g} A is {dev:+.6g} (relative) from the nominal "
                         f"n·e·f = {point.current_a:.7g} A (n = {point.n:g}, f = "
                         f"{point.frequency_hz:.9g} Hz, {point.frequency_source}); a pump on "
                         f"its plateau is within ~1e-5, the bound is {PLAUSIBLE_DEVIATION:g}: "
-                        f"{why}", severity="error"))
+                        f"{why}", severity="error", input=input_name))
     return out

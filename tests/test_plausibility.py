@@ -113,3 +113,57 @@ def test_an_unrecognised_deviation_lists_every_cause(tmp_path):
     assert "+0.0204" in w.message and "check the sign and polarity" in w.message
     # 0.05 % off (5e-4 < 1e-3) stays quiet
     assert budget(tmp_path, r=0.9995 * R)[0] == []
+
+
+def _typed(folder, model: str, inputs: dict, constants: str = "") -> list:
+    """Evaluate a spec of typed-in inputs (invented values); the implausible-current warnings."""
+    body = "".join(f"[inputs.{k}]\nvalue = {v!r}\nstandard_uncertainty = {abs(v) * 1e-7!r}\n"
+                   f"unit = \"{u}\"\n" for k, (v, u) in inputs.items())
+    spec = folder / "spec.toml"
+    spec.write_text(f"# INVENTED (tests/test_plausibility.py)\n[budget]\ntitle = \"t\"\n"
+                    f"[model]\n{model}\n{constants}\n[monte_carlo]\nenabled = false\n{body}",
+                    encoding="utf-8")
+    b = evaluate(load_spec(spec), monte_carlo_enabled=False)
+    return [w for w in b.warnings if w.code == "pump.implausible_current"]
+
+
+@pytest.mark.parametrize("renamed", [False, True])
+def test_ammeter_under_test_reading_is_judged(tmp_path, renamed):
+    # The ammeter-under-test chain's measurands are pure numbers (ε, dev): the current it
+    # judges is the input I_read, whose truth is n·e·f·(1 + ε) for an ammeter of gain error
+    # ε = 3·10⁻⁶ (invented) against a pump with δ_pump = 0.
+    name = "I_amm" if renamed else "I_read"
+    model = 'chain = "ammeter-under-test"\nn = 1' + (
+        '\ninputs_map = {I_read = "I_amm"}' if renamed else "")
+    ok = 1 * E * F * (1 + 3e-6)
+    inputs = {"f": (F, "Hz"), "delta_pump": (1e-9, "1")}
+    assert _typed(tmp_path, model, {name: (ok, "A"), **inputs}) == []
+    # the reading typed in mA as if in A (×10³, a unit prefix: derivation ratio 10³)
+    (w,) = _typed(tmp_path, model, {name: (ok * 1e3, "A"), **inputs})
+    assert w.severity == "error" and w.input == name and w.message.startswith(f"{name} = ")
+    assert "+999.003 (relative)" in w.message and "off by 10^3" in w.message
+    # leads reversed: ratio −(1 + 3e-6), deviation −2.000003, "-2" to 6 digits (derivation)
+    (w,) = _typed(tmp_path, model, {name: (-ok, "A"), **inputs})
+    assert "is -2 (relative)" in w.message and "sign is reversed" in w.message
+
+
+def test_a_budget_merely_naming_n_e_f_is_not_a_pump_budget(tmp_path):
+    # A shunt budget (invented): I = V/R·(1 + n·e) with n = 3 repeated readings and e = 0.002
+    # a relative error term, f = 50 Hz the mains frequency. I = 1 mA is 1e-3/(3·0.002·50)
+    # = 3.3·10⁻³ times "n·e·f" by arithmetic, but nothing here is a pump: no chain, no pump
+    # input, e is not the elementary charge — no warning (the former check fired by names).
+    ws = _typed(tmp_path, 'I = "V / R * (1 + n * e)"',
+                {"V": (1.0, "V"), "R": (1000.0, "Ω"), "f": (50.0, "Hz")},
+                "[constants]\nn = 3\ne = 0.002\n")
+    assert ws == []
+
+
+def test_a_free_form_pump_model_is_still_judged(tmp_path):
+    # The model states n·e·f itself (built-in exact e, integer n): a pump budget. R typed in
+    # 2 % low: ratio 1/0.98 (deviation +0.0204, as in the chain test above).
+    model = 'I = "g * dV / R"\ndev = "I / (n * e * f) - 1"'
+    inputs = {"g": (1.0, "1"), "dV": (E * F * R, "V"), "R": (0.98 * R, "Ω"), "f": (F, "Hz")}
+    (w,) = _typed(tmp_path, model, inputs, "[constants]\nn = 1\n")
+    assert "+0.0204" in w.message and w.message.startswith("I = ")
+    # the same model with e = 0.5 typed in as a constant is no pump model: quiet
+    assert _typed(tmp_path, model, inputs, "[constants]\nn = 1\ne = 0.5\n") == []
