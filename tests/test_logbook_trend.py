@@ -209,3 +209,84 @@ def test_trend_converts_records_in_other_units_of_one_dimension():
                                         for r in base.rows), 0, (), ())
     with pytest.raises(DataError, match="different dimensions"):
         compute_trend(volt)
+
+
+# --------------------------------------------------------------- recalibrations per input
+def _rows(points):
+    """points: (id, chain, date, value, u), in the order the book reads them (date, id)."""
+    return tuple(SeriesRow(i, dt, dt, ch, f"run {i}", "ppm", v, u, 2 * u, 2.0)
+                 for i, ch, dt, v, u in points)
+
+
+def _close_recalibrations(shift: float = -0.7):
+    """Chain A: R recalibrated (cert-1 → cert-2, value shifted by ``shift``) after run 8, the
+    voltmeter g (shared with chain B: same source text) recalibrated one run later; chain B
+    steady. 16 runs of A, 16 of B, u = 0.2 each, no shared terms (invented)."""
+    pts, cals, rid = [], [], 0
+    for i in range(16):
+        day = f"2027-{1 + i // 4:02d}-{1 + 7 * (i % 4):02d}"
+        for ch in ("A", "B"):
+            rid += 1
+            v = shift if (ch == "A" and i >= 8) else 0.0
+            pts.append((rid, ch, f"{day}T{'10' if ch == 'A' else '14'}:00", v, 0.2))
+            if ch == "A":
+                cals.append((rid, "R", "typed in", "", "cert-2" if i >= 8 else "cert-1", "", ""))
+            else:
+                cals.append((rid, "A_TR", "typed in", "", "amp", "", ""))
+            cals.append((rid, "g", "typed in", "", "dvm-2" if i >= 9 else "dvm-1", "", ""))
+    return Series("dev_ppm", _rows(pts), 0, (), tuple(cals))
+
+
+def test_step_window_is_not_cut_by_another_inputs_recalibration():
+    t = compute_trend(_close_recalibrations())
+    r_step = [s for s in t.steps if s.recalibration.chain == "A"
+              and s.recalibration.calibrations[0]["input"] == "R"][0]
+    # windows bounded by R's own recalibrations only: 8 runs with cert-1, 8 with cert-2;
+    # u(diff) = 0.2·√(1/8 + 1/8) = 0.1, E_n = −0.7 / (2·0.1) = −3.5 (derivation)
+    assert (r_step.before.n, r_step.after.n) == (8, 8)
+    assert r_step.en == near(-3.5, rel=1e-9)
+    flags = [f for f in t.flags if f.kind == "step"]
+    assert [f.calibrations[0]["identifier"] for f in flags] == ["cert-2"]
+    # the voltmeter's test in A is cut at the flagged R step: 1 run before (run 9 with dvm-1
+    # and cert-2), 7 after → not tested, and says why
+    g_a = [s for s in t.steps if s.recalibration.chain == "A"
+           and s.recalibration.calibrations[0]["input"] == "g"][0]
+    assert g_a.en is None and "cut at the flagged recalibration" in g_a.note
+    # chain B's own test at the same voltmeter recalibration: 9 / 7 runs, no step
+    g_b = [s for s in t.steps if s.recalibration.chain == "B"][0]
+    assert (g_b.before.n, g_b.after.n) == (9, 7) and g_b.en == near(0.0, abs=1e-12)
+
+
+def test_renamed_input_is_the_same_slot():
+    # the same season, but from the recalibration on the resistor is called R_new
+    base = _close_recalibrations()
+    cals = tuple((rid, "R_new" if (inp == "R" and ident == "cert-2") else inp, kind, m,
+                  ident, p, cd) for rid, inp, kind, m, ident, p, cd in base.calibrations)
+    t = compute_trend(replace(base, calibrations=cals))
+    flags = [f for f in t.flags if f.kind == "step"]
+    assert len(flags) == 1 and flags[0].chain == "A"
+    c = flags[0].calibrations[0]
+    assert (c["input"], c["previous_input"], c["identifier"], c["previous_identifier"]) == \
+        ("R_new", "R", "cert-2", "cert-1")
+    assert flags[0].value == near(-3.5, rel=1e-9)          # as above (derivation)
+    assert any("R_new" in n and "taken as one input" in n for n in t.notes)
+
+
+def test_same_day_runs_in_reverse_id_order_make_one_recalibration():
+    # A: 4 runs with cert-1, then on 2027-03-01 the last cert-1 run (id 6) and the first
+    # cert-2 run (id 5, added first) on the same date, then 3 more cert-2 runs (invented)
+    pts = [(1, "A", "2027-01-01", 0.0, 0.2), (2, "A", "2027-01-15", 0.0, 0.2),
+           (3, "A", "2027-02-01", 0.0, 0.2), (4, "A", "2027-02-15", 0.0, 0.2),
+           (5, "A", "2027-03-01", -0.7, 0.2), (6, "A", "2027-03-01", 0.0, 0.2),
+           (7, "A", "2027-03-15", -0.7, 0.2), (8, "A", "2027-04-01", -0.7, 0.2),
+           (9, "A", "2027-04-15", -0.7, 0.2)]
+    cals = [(i, "R", "typed in", "", "cert-2" if v else "cert-1", "", "")
+            for i, _c, _d, v, _u in pts]
+    t = compute_trend(Series("dev_ppm", _rows(pts), 0, (), tuple(cals)))
+    assert len(t.steps) == 1
+    s = t.steps[0]
+    # 5 runs with cert-1 (ids 1-4 and 6), 4 with cert-2: u(diff) = 0.2·√(1/5 + 1/4),
+    # E_n = −0.7 / (2·u(diff)) (derivation)
+    assert (s.before.n, s.after.n) == (5, 4)
+    assert s.en == near(-0.7 / (2 * 0.2 * math.sqrt(1 / 5 + 1 / 4)), rel=1e-9)
+    assert (s.recalibration.after_id, s.recalibration.before_id) == (6, 5)
