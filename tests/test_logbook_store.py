@@ -165,6 +165,21 @@ def test_tampered_record_stated_digest(book, tmp_path, records):
     assert e.field == "sha256"
 
 
+def test_stated_digests_of_a_folder_read_once_for_every_file(book, tmp_path, records):
+    # one SHA256SUMS for several files (what export writes): each file is checked against
+    # its own line; the tampered one is named, and nothing is added
+    folder = tmp_path / "exported"
+    folder.mkdir()
+    names = [f"r{i}.json" for i in range(3)]
+    for name, rec in zip(names, records[:3]):
+        (folder / name).write_bytes(rec.read_bytes())
+    (folder / "SHA256SUMS").write_text("".join(
+        f"{file_digest(rec)}  {name}\n" for name, rec in zip(names, records[:3])))
+    (folder / names[2]).write_bytes(records[2].read_bytes() + b" ")
+    e = _refused(book, [folder / n for n in names], "tampered record")
+    assert e.file == str(folder / names[2])
+
+
 def test_tampered_record_archive_manifest(book, tmp_path, records):
     folder = tmp_path / "archive"
     folder.mkdir()

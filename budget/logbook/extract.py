@@ -42,7 +42,7 @@ from ..errors import DataError
 from ..record import budget_from_data, record_data
 from ..result import Budget
 
-__all__ = ["PreparedRecord", "MeasurandRow", "CalibrationRow", "TermRow", "prepare",
+__all__ = ["PreparedRecord", "StatedDigests", "MeasurandRow", "CalibrationRow", "TermRow", "prepare",
            "parse_measurement_date", "canonical_json", "key_digest", "CALIBRATION_MODULES"]
 
 #: input modules whose data file is a calibration (its digest names the calibration);
@@ -149,25 +149,47 @@ def _pad(t: str) -> str:
     return f"{int(hh):02d}:{rest}"
 
 
-def _stated_digest(path: Path) -> tuple[str, str] | None:
-    """(digest, where) stated beside the record file, or None."""
-    sums = path.parent / "SHA256SUMS"
-    if sums.is_file():
-        for line in sums.read_text(encoding="utf-8", errors="replace").splitlines():
+class StatedDigests:
+    """The digests stated beside record files, each folder's ``SHA256SUMS`` and
+    ``manifest.json`` read once: adding an exported folder of N records reads its SHA256SUMS
+    (N lines) once, not N times. Keep one for one add (a folder's files are taken as they
+    were when first looked at)."""
+
+    def __init__(self) -> None:
+        self._folders: dict[Path, tuple[dict[str, str], str, dict[str, str], str]] = {}
+
+    def __call__(self, path: Path) -> tuple[str, str] | None:
+        """(digest, where) stated for ``path``: its line in SHA256SUMS (the first), else the
+        archive manifest's ``record`` entry when it names the file; None when neither does."""
+        folder = self._folders.get(path.parent)
+        if folder is None:
+            folder = self._folders[path.parent] = _read_folder(path.parent)
+        sums, sums_where, manifest, manifest_where = folder
+        if path.name in sums:
+            return sums[path.name], sums_where
+        if path.name in manifest:
+            return manifest[path.name], manifest_where
+        return None
+
+
+def _read_folder(folder: Path) -> tuple[dict[str, str], str, dict[str, str], str]:
+    sums_file, sums = folder / "SHA256SUMS", {}
+    if sums_file.is_file():
+        for line in sums_file.read_text(encoding="utf-8", errors="replace").splitlines():
             parts = line.strip().split(None, 1)
-            if len(parts) == 2 and parts[1].lstrip("*") == path.name:
-                return parts[0].lower(), str(sums)
-    manifest = path.parent / "manifest.json"
-    if manifest.is_file():
+            if len(parts) == 2:
+                sums.setdefault(parts[1].lstrip("*"), parts[0].lower())
+    manifest_file, manifest = folder / "manifest.json", {}
+    if manifest_file.is_file():
         try:
-            m = json.loads(manifest.read_text(encoding="utf-8"))
+            m = json.loads(manifest_file.read_text(encoding="utf-8"))
             rec = m.get("record", {}) if isinstance(m, dict) else {}
-            if isinstance(rec, dict) and rec.get("path") == path.name and \
+            if isinstance(rec, dict) and isinstance(rec.get("path"), str) and \
                     isinstance(rec.get("sha256"), str):
-                return rec["sha256"].lower(), str(manifest)
+                manifest[rec["path"]] = rec["sha256"].lower()
         except (ValueError, OSError):
-            return None
-    return None
+            pass
+    return sums, str(sums_file), manifest, str(manifest_file)
 
 
 def _check_internal_digests(data: dict[str, Any], file: str) -> None:
@@ -245,7 +267,8 @@ def _operating_point(data: dict[str, Any], report: dict[str, Any]) -> str:
     return str(report.get("item_condition", ""))
 
 
-def prepare(raw: bytes, file: str, *, check_stated: bool = True) -> PreparedRecord:
+def prepare(raw: bytes, file: str, *, check_stated: bool = True,
+            stated: StatedDigests | None = None) -> PreparedRecord:
     """Check a record file's bytes and extract what the book stores.
 
     Parameters
@@ -256,6 +279,9 @@ def prepare(raw: bytes, file: str, *, check_stated: bool = True) -> PreparedReco
         Its name (for messages, and to find a ``SHA256SUMS`` or ``manifest.json`` beside it).
     check_stated : bool
         Compare with a digest stated beside the file. Default True.
+    stated : StatedDigests, optional
+        Where the stated digests are looked up; one shared by the files of one add reads
+        each folder once. Default: a new one (the folder is read for this file).
 
     Raises
     ------
@@ -264,10 +290,10 @@ def prepare(raw: bytes, file: str, *, check_stated: bool = True) -> PreparedReco
     """
     sha = hashlib.sha256(raw).hexdigest()
     if check_stated:
-        stated = _stated_digest(Path(file))
-        if stated is not None and stated[0] != sha:
+        found = (stated or StatedDigests())(Path(file))
+        if found is not None and found[0] != sha:
             raise DataError(f"tampered record: its content has SHA-256 {sha[:16]}…, "
-                            f"{Path(stated[1]).name} states {stated[0][:16]}…", file=file,
+                            f"{Path(found[1]).name} states {found[0][:16]}…", file=file,
                             field="sha256")
     data = record_data(raw, file=file)          # checks the record's shape
     _check_internal_digests(data, file)

@@ -26,26 +26,34 @@ from pathlib import Path
 from ..errors import UsageError
 from ..outputs import new_folder_mode, temp_prefix
 from ..record import read_record_bytes
-from .extract import PreparedRecord, prepare
-from .store import DEFAULT_WAIT_S, Logbook, compress_body
+from .extract import PreparedRecord, StatedDigests, prepare
+from .rows import compress_body
+from .store import DEFAULT_WAIT_S, Logbook
 
 __all__ = ["read_record_file", "prepare_files", "add_files", "add_prepared", "stage_add",
            "export_book", "export_name"]
 
 
-def read_record_file(path: str | Path) -> PreparedRecord:
-    """Read and check one record file (see :func:`budget.logbook.extract.prepare`)."""
-    return prepare(read_record_bytes(path), str(path))
+def read_record_file(path: str | Path, stated: StatedDigests | None = None) -> PreparedRecord:
+    """Read and check one record file (see :func:`budget.logbook.extract.prepare`;
+    ``stated``: the digests stated beside the files, shared by the files of one add)."""
+    return prepare(read_record_bytes(path), str(path), stated=stated)
 
 
 #: from this many files on, ``add_files`` reads, checks and compresses them in worker processes
 PARALLEL_FROM = 256
 
 
+#: in a worker process: the stated digests of its pool's add (each folder read once per worker)
+_WORKER_STATED = StatedDigests()
+
+
 def _worker_start(parent: int) -> None:
     """In each worker: default signal handling (the command's own handlers are the parent's
     business; an interrupt reaches the parent, which stops the pool), and leave as soon as the
     parent is gone, so that a killed ``add`` leaves no process behind."""
+    global _WORKER_STATED
+    _WORKER_STATED = StatedDigests()        # a new pool: the folders are read anew
     for name in ("SIGTERM", "SIGHUP"):
         if hasattr(signal, name):
             signal.signal(getattr(signal, name), signal.SIG_DFL)
@@ -64,7 +72,7 @@ def _prepare_compressed(path: str) -> PreparedRecord | None:
     goes wrong (the caller then reads it again itself, so it fails exactly as the serial path
     does)."""
     try:
-        r = read_record_file(path)
+        r = read_record_file(path, _WORKER_STATED)
         return replace(r, raw=b"", size=len(r.raw), body=compress_body(r.raw))
     except Exception:       # noqa: BLE001 -- the caller repeats the read and raises
         return None
@@ -99,18 +107,19 @@ def prepare_files(files: Sequence[str | Path], workers: int | None = None
     files = [str(f) for f in files]
     if workers is None:
         workers = _idle_cpus() if len(files) >= PARALLEL_FROM else 1
+    stated = StatedDigests()
     if workers < 2 or "fork" not in multiprocessing.get_all_start_methods():
-        return [read_record_file(f) for f in files]
+        return [read_record_file(f, stated) for f in files]
     try:
         with ProcessPoolExecutor(workers, mp_context=multiprocessing.get_context("fork"),
                                  initializer=_worker_start,
                                  initargs=(os.getpid(),)) as pool:
             out = list(pool.map(_prepare_compressed, files, chunksize=32))
     except (BrokenProcessPool, OSError):
-        return [read_record_file(f) for f in files]
+        return [read_record_file(f, stated) for f in files]
     for i, r in enumerate(out):
         if r is None:
-            out[i] = read_record_file(files[i])      # raises the file's own located error
+            out[i] = read_record_file(files[i], stated)      # raises the file's own located error
     return out
 
 

@@ -36,19 +36,14 @@ from typing import Any
 from ..errors import DataError, UsageError
 from . import schema
 from .extract import PreparedRecord, prepare
+from .rows import add_rows, compress_body, insert_details
 
 __all__ = ["Logbook", "Entry", "StoredRecord", "SeriesRow", "Series", "resolve_book",
            "default_book_path", "DEFAULT_WAIT_S", "ENV_BOOK", "compress_body"]
 
 ENV_BOOK = "BUDGET_LOGBOOK"
 DEFAULT_WAIT_S = 10.0      # how long a locked book is waited for before refusing
-_ZLEVEL = 1                # zlib level of the stored bytes: 3× faster than 6, 8 % larger
 _SQLITE_MAGIC = b"SQLite format 3\x00"
-
-
-def compress_body(raw: bytes) -> bytes:
-    """The bytes a record is stored as (zlib at the book's level)."""
-    return zlib.compress(raw, _ZLEVEL)
 
 
 def default_book_path(env: dict[str, str] | None = None) -> Path:
@@ -282,7 +277,7 @@ class Logbook:
         """
         if not self.writable:
             raise UsageError("the book was opened for reading", field="book")
-        return self._transaction(lambda con: _add_rows(con, records, added_utc))
+        return self._transaction(lambda con: add_rows(con, records, added_utc))
 
     def add_pending(self, records: Sequence[PreparedRecord], *, added_utc: str) -> list[int]:
         """Like :meth:`add`, but the transaction stays open (the book stays locked for
@@ -295,7 +290,7 @@ class Logbook:
         except sqlite3.Error as exc:
             raise self._error(exc) from None
         try:
-            return _add_rows(self._con, records, added_utc)
+            return add_rows(self._con, records, added_utc)
         except sqlite3.Error as exc:
             self._rollback()
             raise self._error(exc) from None
@@ -322,7 +317,7 @@ class Logbook:
             p = prepare(zlib.decompress(body), fname, check_stated=False)
             con.execute("UPDATE records SET canonical_sha256 = ? WHERE id = ?",
                         (p.canonical_sha256, rid))
-            _insert_details(con, rid, p)
+            insert_details(con, [rid], [p])
 
     # ------------------------------------------------------------------ reading
     def count(self) -> int:
@@ -420,48 +415,6 @@ class Logbook:
         cals = tuple(self._query("SELECT record_id, input, kind, module, identifier, path, "
                                  "calibration_date FROM calibrations"))
         return Series(measurand, dated, len(rows) - len(dated), terms, cals)
-
-
-def _add_rows(con: sqlite3.Connection, records: Sequence[PreparedRecord],
-              added_utc: str) -> list[int]:
-    """Insert records in the open transaction; a duplicate (by digest) is refused."""
-    seen: dict[str, str] = {}
-    for r in records:
-        for col, digest in (("sha256", r.sha256), ("canonical_sha256", r.canonical_sha256)):
-            row = con.execute(f"SELECT id FROM records WHERE {col} = ?", (digest,)).fetchone()
-            if row:
-                raise DataError(f"already in the book as #{row[0]} (same "
-                                f"{'digest' if col == 'sha256' else 'content'}); "
-                                "nothing was added", file=r.file, field="sha256")
-            if digest in seen:
-                raise DataError(f"the same record as {seen[digest]}; nothing was "
-                                "added", file=r.file, field="sha256")
-            seen[digest] = r.file
-    return [_insert(con, r, added_utc) for r in records]
-
-
-def _insert(con: sqlite3.Connection, r: PreparedRecord, added_utc: str) -> int:
-    cur = con.execute(
-        "INSERT INTO records (sha256, canonical_sha256, body, size, file_name, title, "
-        "spec_sha256, manifest_sha256, chain, date_start, date_end, pump, operating_point, "
-        "frequency_hz, added_utc) VALUES (?,?,?,?,?,?,?,?,?,?,?,?,?,?,?)",
-        (r.sha256, r.canonical_sha256, r.body or compress_body(r.raw), r.size or len(r.raw),
-         Path(r.file).name, r.title, r.spec_sha256, r.manifest_sha256, r.chain, r.date_start,
-         r.date_end, r.pump, r.operating_point, r.frequency_Hz, added_utc))
-    rid = cur.lastrowid
-    con.executemany("INSERT INTO measurands VALUES (?,?,?,?,?,?,?)",
-                    [(rid, m.name, m.unit, m.value, m.standard_uncertainty,
-                      m.expanded_uncertainty, m.coverage_factor) for m in r.measurands])
-    _insert_details(con, rid, r)
-    return rid
-
-
-def _insert_details(con: sqlite3.Connection, rid: int, r: PreparedRecord) -> None:
-    con.executemany("INSERT INTO calibrations VALUES (?,?,?,?,?,?,?)",
-                    [(rid, c.input, c.kind, c.module, c.identifier, c.path, c.calibration_date)
-                     for c in r.calibrations])
-    con.executemany("INSERT INTO terms VALUES (?,?,?,?,?)",
-                    [(rid, t.measurand, t.name, t.contribution, t.key) for t in r.terms])
 
 
 def _read_only(p: Path) -> bool:
