@@ -7,8 +7,8 @@ of ``read_onoff`` (reading the bytes, header, parsing, checks), differing only i
 
 * ``read_onoff``: the body cut at newlines into one piece per processor, each piece read with
   ``os.pread`` and parsed to float64 by pandas' C parser in its own thread, the arrays joined;
-* one piece: the whole bytes read, then parsed to float64 in one thread (the reader before
-  the cut into pieces);
+* one piece, one thread: the whole bytes read, then the same parse in one thread (the reader
+  before the cut into pieces, with its ``low_memory`` parse);
 * general: the fast path switched off (pandas infers each column with ``skipinitialspace``,
   then the same checks) — the reference the others must equal bit for bit.
 
@@ -38,7 +38,7 @@ from budget.inputs import onoff_parse, onoff_table  # noqa: E402
 
 READERS = {
     "read_onoff (pieces in threads)": nullcontext,
-    "one piece (fast path before)": lambda: mock.patch.object(onoff_parse, "threads",
+    "one piece, one thread": lambda: mock.patch.object(onoff_parse, "threads",
                                                               lambda: 1),
     "general reading": lambda: mock.patch.object(onoff_table, "_FAST", False),
 }

@@ -172,3 +172,24 @@ def test_small_files_are_not_cut(tmp_path):
     assert P.read_pieces(path, lambda text: list(m.COLUMNS)) is None
     assert np.array_equal(m.read_onoff(path).reading,
                           [float(r.split(b",")[1]) for r in _rows(3000)])
+
+
+def test_pieces_longer_than_the_parsers_chunk_read_as_the_general_reading(tmp_path, monkeypatch):
+    # pandas' low_memory reading works in chunks of 2**18 lines for 3 columns (its heuristic
+    # 2**20 // columns, rounded down to a power of two: pandas/_libs/parsers.pyx, memory):
+    # 600 000 rows give each of two pieces two or more chunks; then a bad pump state in the
+    # last chunk of the second piece
+    rng = np.random.default_rng(3)
+    vals = (0.0961 + 1e-6 * rng.standard_normal(600_000)).tolist()
+    rows = [f"{i},{v:.10g},{'on' if (i // 100) % 2 else 'off'}" for i, v in enumerate(vals)]
+    path = tmp_path / "r.csv"
+    path.write_text("time_s,reading,pump\n" + "\n".join(rows) + "\n")
+    ref = _general(path, monkeypatch)
+    _small_pieces(monkeypatch, 2)
+    assert P.read_pieces(path, lambda text: list(m.COLUMNS)) is not None
+    assert _outcome(path) == ref
+    rows[599_990] = "599990,0.0961,maybe"                   # data row 599 991
+    path.write_text("time_s,reading,pump\n" + "\n".join(rows) + "\n")
+    ref = _general(path, monkeypatch)
+    assert "row 599991" in ref and "pump" in ref and "'maybe'" in ref
+    assert _outcome(path) == ref
