@@ -172,6 +172,7 @@ def run_steps(work: dict, in_worker) -> None:
 
     import budget.cli  # noqa: F401
     import budget.engine  # noqa: F401
+    import budget.inputs.cycles  # noqa: F401
     import budget.report.render  # noqa: F401
     ctx = mp.get_context("fork")
     queue = ctx.Queue()
