@@ -100,7 +100,7 @@ def bench(files: list[Path], tmp: Path, label: str, repeats: int) -> list[str]:
     book = tmp / f"{label}-0.sqlite"
     with Logbook.open(book) as lb:
         listing = timed(lb.entries, 5)
-        trend = timed(lambda: compute_trend(lb.series("dev_ppm")), 5)
+        trend = timed(lambda: compute_trend(lb.series("delta_I")), 5)
     size = book.stat().st_size / 1e6
     avg = sum(p.stat().st_size for p in files) / len(files) / 1e3
     n = len(files)

@@ -5,10 +5,10 @@
 ==========================  =================================================================
 chain                       outputs
 ==========================  =================================================================
-``resistor-voltmeter``      I = g·ΔV/R (A); dev = I/(n·e·f) − 1 in the chosen unit
-``amplifier-voltmeter``     I = g·ΔV/A_TR (A); dev as above
+``resistor-voltmeter``      I = g·ΔV/R (A); delta_I = I/(n·e·f) − 1 shown in the chosen unit
+``amplifier-voltmeter``     I = g·ΔV/A_TR (A); delta_I as above
 ``ammeter-under-test``      ε = I_read/(n·e·f·(1 + δ_pump)) − 1 (gain error of an ammeter read
-                            against the pump as reference); dev = I_read/(n·e·f) − 1
+                            against the pump as reference); delta_I = I_read/(n·e·f) − 1
 ==========================  =================================================================
 
 Input names (rename them with ``inputs_map``):
@@ -33,8 +33,11 @@ Spec keys of the ``[model]`` table with ``chain``
 chain : str
     One of :data:`CHAINS` (required).
 deviation_unit : {"10⁻⁶", "µA/A", "10⁻⁸", "10⁻⁹", "nA/A"}
-    Scale of the dimensionless deviation: parts in 10^6 (output ``dev_ppm``, shown in µA/A),
-    10^8 (``dev_1e8``, shown ×10⁻⁸) or 10^9 (``dev_1e9``, shown in nA/A). Default ``"10⁻⁶"``.
+    Display scale of the deviation output ``delta_I`` (a pure number, named without a unit
+    whatever its scale): parts in 10^6 (shown in µA/A), 10^8 (shown ×10⁻⁸) or 10^9 (shown in
+    nA/A). Default ``"10⁻⁶"``. Its former names ``dev_ppm``, ``dev_1e8``, ``dev_1e9`` are
+    accepted as keys of ``outputs_map``, and records that use them still match ``delta_I``
+    in compare and the logbook (:func:`budget.measurands.match_name`).
     ``"ppm"`` and ``"1e-8"`` are accepted spellings of 10⁻⁶ and 10⁻⁸; the result is shown in
     µA/A and ×10⁻⁸ all the same (the SI Brochure, 9th ed., §5.4.7, advises against ppm). The
     record stores the deviation as a plain number (SI) with the display unit beside it.
@@ -56,10 +59,12 @@ from typing import Any
 
 from .errors import SpecError, did_you_mean
 from .expression import Var, names, parse, substitute, to_text
+from .measurands import DEVIATION_OUTPUT, FORMER_DEVIATION_OUTPUTS
 
 __all__ = ["CHAINS", "DEVIATION_UNITS", "ChainModel", "build_chain", "validate_n"]
 
-#: Output scale of the deviation: (factor as an exact float, output suffix, unit label).
+#: Display scale of the deviation: (factor as an exact float, former output suffix, unit
+#: label); the output is :data:`~budget.measurands.DEVIATION_OUTPUT` at every scale.
 DEVIATION_UNITS = {"10⁻⁶": (1e6, "ppm", "µA/A"), "µA/A": (1e6, "ppm", "µA/A"),
                    "ppm": (1e6, "ppm", "µA/A"), "10⁻⁸": (1e8, "1e8", "×10⁻⁸"),
                    "1e-8": (1e8, "1e8", "×10⁻⁸"), "10⁻⁹": (1e9, "1e9", "nA/A"),
@@ -193,13 +198,14 @@ def build_chain(table: dict[str, Any], *, file: str, lines: dict[str, int]) -> C
         if not isinstance(table["description"], str):
             raise err("description", f"must be a string; got {table['description']!r}")
         description = table["description"]
-    _scale, suffix, unit_label = DEVIATION_UNITS[unit_key]
+    _scale, _suffix, unit_label = DEVIATION_UNITS[unit_key]
 
     every = set(_names(dev_text)).union(*(_names(text) for _, text, _ in base))
     used = sorted(every - set(CONSTANT_NAMES))
     in_map = _renames(table, "inputs_map", used, err)
-    default_outputs = [o for o, _, _ in base] + [f"dev_{suffix}"]
-    out_map = _renames(table, "outputs_map", default_outputs, err)
+    default_outputs = [o for o, _, _ in base] + [DEVIATION_OUTPUT]
+    out_map = _renames(table, "outputs_map", default_outputs, err,
+                       aliases={o: DEVIATION_OUTPUT for o in FORMER_DEVIATION_OUTPUTS})
     final_inputs = [in_map.get(v, v) for v in used]
     final_outputs = [out_map.get(o, o) for o in default_outputs]
     clash = set(final_inputs) & (set(final_outputs) | set(CONSTANT_NAMES))
@@ -237,12 +243,16 @@ def _names(text: str) -> set[str]:
     return names(parse(text))
 
 
-def _renames(table: dict, key: str, allowed: list[str], err) -> dict[str, str]:
+def _renames(table: dict, key: str, allowed: list[str], err,
+             aliases: dict[str, str] | None = None) -> dict[str, str]:
     raw = table.get(key, {})
     if not isinstance(raw, dict):
         raise err(key, f"must be a table of old = \"new\" names; got {raw!r}")
     out = {}
     for old, new in raw.items():
+        old = (aliases or {}).get(old, old)       # a former name of the same output
+        if old in out:
+            raise err(key, f"{old!r} is renamed twice (under its former name too)")
         if old not in allowed:
             raise err(key, f"{old!r} is not a name of this chain{did_you_mean(old, allowed)} "
                            f"(names: {', '.join(allowed)})")

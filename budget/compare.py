@@ -65,6 +65,7 @@ from .compare_basis import (
 )
 from .errors import DataError, UsageError, did_you_mean
 from .explain import correlation_matrix
+from .measurands import default_measurand, match_name, measurand_of
 from .numbers import overflow_checked
 from .result import Budget, Measurand, Term, in_unit
 
@@ -184,8 +185,9 @@ class Comparison:
 # --------------------------------------------------------------------------- choosing
 def choose_measurand(records: Sequence[Budget], name: str | None = None,
                      files: Sequence[str] | None = None) -> str:
-    """The measurand to compare: ``name``, else the first output of the first record whose
-    name starts with "dev" (the relative deviation from n·e·f), else its first output.
+    """The measurand to compare: ``name``, else the first record's chain deviation
+    (``delta_I``, or the first output whose name starts with "dev"), else its first output;
+    a former name of the chain deviation matches (:func:`budget.measurands.measurand_of`).
 
     Raises
     ------
@@ -199,11 +201,10 @@ def choose_measurand(records: Sequence[Budget], name: str | None = None,
                          f"record (measurands: {', '.join(first)})", file=files[0],
                          field="--measurand")
     if name is None:
-        devs = [n for n in first if n.startswith("dev")]
-        name = devs[0] if devs else first[0]
+        name = default_measurand(first)
     for rec, f in zip(records, files):
         names = [m.name for m in rec.measurands]
-        if name not in names:
+        if match_name(name, {m.name: m.unit for m in rec.measurands}) is None:
             raise DataError(f"has no measurand '{name}'{did_you_mean(name, names)} "
                             f"(measurands: {', '.join(names)}); choose one with --measurand",
                             file=f, field="measurands")
@@ -331,11 +332,13 @@ def compare_runs(records: Sequence[Budget], *, labels: Sequence[str] | None = No
                          field="labels")
     all_recs = list(records) + ([reference] if isinstance(reference, Budget) else [])
     name = choose_measurand(all_recs, measurand, files)
-    ms = [r.measurand(name) for r in all_recs]
+    ms = [measurand_of(r, name) for r in all_recs]
     files = list(files) if files is not None else [None] * len(all_recs)
     unit = ms[0].unit   # other units of the same dimension are converted to the first's
     unit_notes = [f"results stated in other units were converted to {unit}"] * any(
         m.unit != unit for m in ms)
+    unit_notes += sorted({f"{m.name} matched as {name} (names of the same chain deviation)"
+                          for m in ms if m.name != name})
     ms = [in_unit(m, unit, file=f) for m, f in zip(ms, files)]
     for m, f in zip(ms[:n], files):
         if m.standard_uncertainty <= 0:

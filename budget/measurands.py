@@ -25,7 +25,64 @@ from typing import Any
 from .errors import SpecError, did_you_mean
 
 __all__ = ["OUTPUT_KEYS", "SYMBOL_RE", "output_descriptions", "chain_defaults",
-           "CONSTANT_MEANINGS"]
+           "CONSTANT_MEANINGS", "DEVIATION_OUTPUT", "FORMER_DEVIATION_OUTPUTS",
+           "DEVIATION_DISPLAY_UNITS", "default_measurand", "deviation_aliases", "match_name",
+           "measurand_of",
+           "former_name_hint"]
+
+#: The chains' deviation output: the pure number q − 1 (I/(n·e·f) − 1), whatever unit it is
+#: shown in, so its name carries no unit.
+DEVIATION_OUTPUT = "delta_I"
+#: Its former names (one per display scale, all the same pure number in records that state
+#: the display unit): records that use them still match ``delta_I`` in compare and the logbook.
+FORMER_DEVIATION_OUTPUTS = ("dev_ppm", "dev_1e8", "dev_1e9")
+#: Display units a deviation was stored with; a former name is taken as ``delta_I`` only when
+#: its record states one of them (then the numbers are the pure number shown in that unit; a
+#: bare "1" might hold a value scaled by 10⁶ by hand and is never matched).
+DEVIATION_DISPLAY_UNITS = ("µA/A", "ppm", "×10⁻⁸", "nA/A", "10⁻⁶", "10⁻⁸", "10⁻⁹")
+
+
+def deviation_aliases(name: str) -> tuple[str, ...]:
+    """The other names the same chain deviation has had (empty for any other name)."""
+    group = (DEVIATION_OUTPUT, *FORMER_DEVIATION_OUTPUTS)
+    return tuple(n for n in group if n != name) if name in group else ()
+
+
+def match_name(name: str, available: dict[str, str]) -> str | None:
+    """The output of ``available`` (name -> unit as read) that is the measurand ``name``:
+    the same name, else a former or current name of the chain deviation stated in a
+    deviation display unit (see :data:`DEVIATION_DISPLAY_UNITS`); None when there is none."""
+    if name in available:
+        return name
+    for other in deviation_aliases(name):
+        if other in available and available[other] in DEVIATION_DISPLAY_UNITS:
+            return other
+    return None
+
+
+def measurand_of(rec: Any, name: str) -> Any:
+    """The measurand ``name`` of a Budget ``rec``, by its own name or another name of the
+    chain deviation (:func:`match_name`); KeyError when it has neither."""
+    found = match_name(name, {m.name: m.unit for m in rec.measurands})
+    if found is None:
+        raise KeyError(name)
+    return rec.measurand(found)
+
+
+def default_measurand(names: list[str]) -> str | None:
+    """The output a comparison or a logbook list follows by default: the chain deviation
+    (``delta_I``, or a name starting with "dev"), else the first."""
+    if DEVIATION_OUTPUT in names:
+        return DEVIATION_OUTPUT
+    devs = [n for n in names if n.startswith("dev")]
+    return devs[0] if devs else (names[0] if names else None)
+
+
+def former_name_hint(name: str, outputs: Any) -> str:
+    """" (the chain's deviation is now called delta_I)" when ``name`` is a former name."""
+    if name in FORMER_DEVIATION_OUTPUTS and DEVIATION_OUTPUT in outputs:
+        return f" (the chain's deviation {name} is now called {DEVIATION_OUTPUT})"
+    return ""
 
 OUTPUT_KEYS = ("symbol", "name", "definition")
 
@@ -74,7 +131,7 @@ CHAIN_INPUTS: dict[str, tuple[str, str]] = {
 def chain_defaults(chain: str, renamed_outputs: dict[str, str]) -> dict[str, dict[str, str]]:
     """Symbol, name and definition of a chain's outputs, keyed by their final names.
 
-    ``renamed_outputs`` maps the chain's default output names (``I``, ``dev_ppm`` …) to the
+    ``renamed_outputs`` maps the chain's default output names (``I``, ``delta_I`` …) to the
     names used in the spec (after ``outputs_map``).
     """
     table = _CHAIN_OUTPUTS.get(chain, {})
@@ -82,7 +139,7 @@ def chain_defaults(chain: str, renamed_outputs: dict[str, str]) -> dict[str, dic
     for old, new in renamed_outputs.items():
         if old in table:
             sym, name, definition = table[old]
-        elif old.startswith("dev_"):
+        elif old == DEVIATION_OUTPUT:
             sym, name, definition = (_AMMETER_DEVIATION if chain == "ammeter-under-test"
                                      else _DEVIATION)
         else:
@@ -127,7 +184,8 @@ def output_descriptions(table: Any, outputs: dict[str, str], defaults: dict[str,
     for name, keys in table.items():
         if name not in outputs:
             raise err(("outputs", name), "", f"'{name}' is not an output of [model]"
-                                             f"{did_you_mean(name, outputs)}")
+                                             f"{did_you_mean(name, outputs)}"
+                                             f"{former_name_hint(name, outputs)}")
         if not isinstance(keys, dict):
             raise err(("outputs", name), "", f"must be a table [outputs.{name}]")
         for k, v in keys.items():

@@ -28,7 +28,7 @@ from pathlib import Path
 from typing import Any
 
 from .errors import SpecError, did_you_mean
-from .measurands import CHAIN_INPUTS, chain_defaults, output_descriptions
+from .measurands import CHAIN_INPUTS, chain_defaults, former_name_hint, output_descriptions
 from .numbers import NumberError, checked, shown
 from .schema import SchemaViolation, load_schema, validate
 
@@ -251,7 +251,8 @@ def parse_spec(text: str, *, file: str = "<string>", folder: Path | None = None,
     for k in data.get("units", {}):
         if k not in outputs:
             raise chk.error(("units",), k, f"is not an output of [model]"
-                                           f"{did_you_mean(k, outputs)}")
+                                           f"{did_you_mean(k, outputs)}"
+                                           f"{former_name_hint(k, outputs)}")
         units[k] = chk.string(("units",), data["units"], k, "")
 
     constants, constant_units = _constants(chk, data.get("constants", {}))

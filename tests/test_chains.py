@@ -49,8 +49,8 @@ def test_builtin_defining_constants_are_the_exact_si_values():
 
 def test_resistor_voltmeter_outputs():
     m = build()
-    assert list(m.outputs) == ["I", "dev_ppm"]
-    assert m.units == {"I": "A", "dev_ppm": "µA/A"}   # ppm is not shown (SI Brochure §5.4.7)
+    assert list(m.outputs) == ["I", "delta_I"]
+    assert m.units == {"I": "A", "delta_I": "µA/A"}   # ppm is not shown (SI Brochure §5.4.7)
     assert set(m.inputs) == {"g", "dV", "R", "f"}
     assert m.input_units["R"] == "Ω"
     # e·f at 1 GHz = 160.2176634 pA (SI Brochure); through 1 GΩ that is 0.1602176634 V
@@ -58,27 +58,27 @@ def test_resistor_voltmeter_outputs():
     out = evaluate(m, env)
     assert out["I"] == near(160.2176634e-12, rel=1e-15)
     # the model's deviation is a pure number (working unit "1"); µA/A is its display unit
-    assert m.working_units == {"I": "A", "dev_ppm": "1"}
-    assert abs(out["dev_ppm"]) < 1e-15     # zero up to float rounding (≈ 1e-16)
+    assert m.working_units == {"I": "A", "delta_I": "1"}
+    assert abs(out["delta_I"]) < 1e-15     # zero up to float rounding (≈ 1e-16)
 
 
 def test_amplifier_and_ammeter_chains():
     a = build_chain({"chain": "amplifier-voltmeter", "deviation_unit": "1e-8"},
                     file="s.toml", lines={})
-    assert list(a.outputs) == ["I", "dev_1e8"] and "A_TR" in a.inputs
+    assert list(a.outputs) == ["I", "delta_I"] and "A_TR" in a.inputs
     # n = 2 at 500 MHz gives 160.2176634 pA too (REFERENCES.md, SI constants)
     env = {"g": 1.0 + 1e-8, "dV": 0.1602176634, "A_TR": 1e9, "f": 500e6, "n": 2, "e": E}
     out = evaluate(a, env)
-    assert out["dev_1e8"] == near(1e-8, rel=1e-6)  # g = 1 + 1e-8 ⇒ +1 part in 10^8
+    assert out["delta_I"] == near(1e-8, rel=1e-6)  # g = 1 + 1e-8 ⇒ +1 part in 10^8
     t = build_chain({"chain": "ammeter-under-test"}, file="s.toml", lines={})
-    assert list(t.outputs) == ["eps", "dev_ppm"]
+    assert list(t.outputs) == ["eps", "delta_I"]
     assert set(t.inputs) == {"I_read", "f", "delta_pump"}
     env = {"I_read": 160.2176634e-12 * (1 + 3e-7), "f": 1e9, "n": 1, "e": E,
            "delta_pump": 1e-7}
     out = evaluate(t, env)
     # ε = (1 + 3e-7)/(1 + 1e-7) − 1 (definition)
     assert out["eps"] == near((1 + 3e-7) / (1 + 1e-7) - 1, rel=1e-7)
-    assert out["dev_ppm"] == near(3e-7, rel=1e-7)
+    assert out["delta_I"] == near(3e-7, rel=1e-7)
 
 
 @pytest.mark.parametrize("chain", CHAINS)
@@ -97,12 +97,12 @@ def test_deviation_near_1e9_keeps_its_digits(chain):
         env = {"g": 1.0, "dV": nef * 1e9 * (1 + d), big: 1e9, "f": f, "n": n, "e": E}
         exact = (Fraction(env["g"]) * Fraction(env["dV"])
                  / (n * Fraction(E) * Fraction(f) * Fraction(1e9)) - 1)
-    dev = evaluate(m, env)["dev_ppm"]
+    dev = evaluate(m, env)["delta_I"]
     assert float(exact) == near(d, rel=1e-6)        # the inputs carry the deviation
     assert dev == near(float(exact), rel=1e-6)
     # vectorised (Monte Carlo) evaluation gives the same digits
     vec = evaluate(m, {k: np.full(4, v) if isinstance(v, float) else v for k, v in env.items()})
-    np.testing.assert_allclose(vec["dev_ppm"], dev, rtol=1e-12)
+    np.testing.assert_allclose(vec["delta_I"], dev, rtol=1e-12)
 
 
 def test_n_from_model_table_and_renames():
@@ -110,7 +110,7 @@ def test_n_from_model_table_and_renames():
               description="my chain")
     assert m.constants == {"n": 2}
     assert m.outputs["I_pump"] == "g * V_diff / R1G"
-    assert names(parse(m.outputs["dev_ppm"])) == {"g", "V_diff", "R1G", "f", "n", "e"}
+    assert names(parse(m.outputs["delta_I"])) == {"g", "V_diff", "R1G", "f", "n", "e"}
     assert m.description == "my chain"
     assert set(m.to_dict()) >= {"outputs", "units", "description"}
 
@@ -129,7 +129,7 @@ def test_n_from_model_table_and_renames():
     ({"inputs_map": {"R": "1x"}}, "model.inputs_map", "identifier"),
     ({"inputs_map": {"R": "I"}}, "model.inputs_map", "clash"),
     ({"inputs_map": {"R": "e"}}, "model.inputs_map", "clash"),
-    ({"outputs_map": {"I": "dev_ppm"}}, "model.outputs_map", "distinct"),
+    ({"outputs_map": {"I": "delta_I"}}, "model.outputs_map", "distinct"),
     ({"inputs_map": ["R"]}, "model.inputs_map", "table"),
 ])
 def test_bad_tables(table, field, words):
@@ -154,10 +154,10 @@ def test_validate_n():
 
 
 @pytest.mark.parametrize("key, name, unit, per", [
-    ("10⁻⁶", "dev_ppm", "µA/A", 1.0), ("µA/A", "dev_ppm", "µA/A", 1.0),
-    ("ppm", "dev_ppm", "µA/A", 1.0),      # accepted spelling, not shown (SI Brochure §5.4.7)
-    ("10⁻⁸", "dev_1e8", "×10⁻⁸", 100.0), ("10⁻⁹", "dev_1e9", "nA/A", 1000.0),
-    ("nA/A", "dev_1e9", "nA/A", 1000.0),
+    ("10⁻⁶", "delta_I", "µA/A", 1.0), ("µA/A", "delta_I", "µA/A", 1.0),
+    ("ppm", "delta_I", "µA/A", 1.0),      # accepted spelling, not shown (SI Brochure §5.4.7)
+    ("10⁻⁸", "delta_I", "×10⁻⁸", 100.0), ("10⁻⁹", "delta_I", "nA/A", 1000.0),
+    ("nA/A", "delta_I", "nA/A", 1000.0),
 ])
 def test_deviation_units(key, name, unit, per):
     # g = 1 + 1e-6 ⇒ one part in 10⁶ = 100 parts in 10⁸ = 1000 parts in 10⁹ (derivation)

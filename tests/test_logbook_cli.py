@@ -156,8 +156,8 @@ def test_usage_errors(book, capsys):
     _refused(capsys, ["logbook", "list", "--book", str(book), "--since", "May"], book,
              "--since")
     _refused(capsys, ["logbook", "show", "999", "--book", str(book)], book, "no record #999")
-    _refused(capsys, ["logbook", "trend", "--book", str(book), "--measurand", "dev_pm"], book,
-             "did you mean 'dev_ppm'")
+    _refused(capsys, ["logbook", "trend", "--book", str(book), "--measurand", "delta_l"], book,
+             "did you mean 'delta_I'")
     missing = book.parent / "none.sqlite"
     _refused(capsys, ["logbook", "list", "--book", str(missing)], missing, "no logbook here")
     assert not missing.exists()

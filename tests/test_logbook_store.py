@@ -80,7 +80,7 @@ def test_indexed_columns(book):
     assert e.frequency_Hz == 600.0e6
     assert cal["R"]["kind"] == "typed in" and "HQML-R-2026-0310" in cal["R"]["identifier"]
     assert "dV" not in cal          # a Type A summary is not a calibration
-    assert {m["name"] for m in e.measurands} == {"I", "dev_ppm"}
+    assert {m["name"] for m in e.measurands} == {"I", "delta_I"}
 
 
 def test_amplifier_history_named_by_digest_and_date(tmp_path, records):

@@ -82,7 +82,7 @@ def _series(points, calibrations=(), terms=()) -> Series:
     """points: (chain, date, value, u); ids 1..N in order."""
     rows = tuple(SeriesRow(i + 1, dt, dt, ch, f"run {i + 1}", "ppm", v, u, 2 * u, 2.0)
                  for i, (ch, dt, v, u) in enumerate(points))
-    return Series("dev_ppm", rows, 0, tuple(terms), tuple(calibrations))
+    return Series("delta_I", rows, 0, tuple(terms), tuple(calibrations))
 
 
 def _two_chains(shift: float):
@@ -164,7 +164,7 @@ def season_trend(tmp_path_factory):
     book = folder / "book.sqlite"
     add_files(book, season_records(folder / "records"))
     with Logbook.open(book) as lb:
-        return compute_trend(lb.series("dev_ppm"))
+        return compute_trend(lb.series("delta_I"))
 
 
 def test_season_flags_the_invented_recalibration(season_trend):

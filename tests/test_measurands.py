@@ -59,7 +59,7 @@ title = "Chain test (invented numbers)"
 chain = "resistor-voltmeter"
 n = 1
 outputs_map = {I = "I_pump"}
-[outputs.dev_ppm]
+[outputs.delta_I]
 name = "deviation from n·e·f"
 [monte_carlo]
 enabled = false
@@ -92,8 +92,8 @@ def test_chain_fills_symbols_and_keeps_spec_overrides():
     s = parse_spec(CHAIN)
     assert s.output_info["I_pump"]["symbol"] == "I_P"           # the chain's, renamed output
     assert s.output_info["I_pump"]["name"] == "pump current"
-    assert s.output_info["dev_ppm"]["name"] == "deviation from n·e·f"   # the spec wins
-    assert s.output_info["dev_ppm"]["symbol"] == "δ_P"          # the rest stays the chain's
+    assert s.output_info["delta_I"]["name"] == "deviation from n·e·f"   # the spec wins
+    assert s.output_info["delta_I"]["symbol"] == "δ_P"          # the rest stays the chain's
     assert s.input_info["dV"][:2] == ("ΔV", "on/off voltage difference read by the voltmeter")
     assert s.input_info["f"][2] == "Hz"
 

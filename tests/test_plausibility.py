@@ -78,7 +78,7 @@ def test_a_pump_on_its_plateau_is_quiet(tmp_path):
     record(tmp_path)
     ws, b = budget(tmp_path)
     assert ws == []
-    dev = {m.name: m for m in b.measurands}["dev_ppm"]
+    dev = {m.name: m for m in b.measurands}["delta_I"]
     assert abs(dev.value - 0.8) < 3 * dev.standard_uncertainty + 0.1   # truth δ = 0.8e-6
 
 

@@ -223,7 +223,7 @@ def _copy_example(tmp_path: Path, name: str) -> Path:
 
 
 def test_resistor_chain_with_readings_in_microvolt(tmp_path):
-    # issue 10 case 1: unit = "µV" on the on/off input gave dev_ppm ≈ 1e12 with exit 0
+    # issue 10 case 1: unit = "µV" on the on/off input gave delta_I ≈ 1e12 with exit 0
     spec_path = _copy_example(tmp_path, "resistor_chain")
     base = evaluate(load_spec(spec_path), monte_carlo_enabled=False)
     csv = spec_path.parent / "data" / "onoff_10h.csv"
@@ -236,7 +236,7 @@ def test_resistor_chain_with_readings_in_microvolt(tmp_path):
     csv.write_text("\n".join(out) + "\n")
     spec_path.write_text(spec_path.read_text().replace('unit = "V"', 'unit = "µV"', 1))
     micro = evaluate(load_spec(spec_path), monte_carlo_enabled=False)
-    for name in ("I", "dev_ppm"):
+    for name in ("I", "delta_I"):
         a, b = base.measurand(name), micro.measurand(name)
         assert b.value == near(a.value, rel=1e-9, abs=1e-9 * a.standard_uncertainty)
         assert b.expanded_uncertainty == near(a.expanded_uncertainty, rel=1e-9)
@@ -294,7 +294,7 @@ def test_ammeter_reading_in_picoampere_gives_the_right_deviation():
         standard_uncertainty = 1e-8
         """)
     b = evaluate(parse_spec(spec), monte_carlo_enabled=False)
-    dev = [m for m in b.measurands if m.name.startswith("dev")][0]
+    dev = [m for m in b.measurands if m.name == "delta_I"][0]
     assert dev.value == near(2.0, rel=1e-6)          # 2 parts in 10⁶, by construction
 
 
@@ -358,7 +358,7 @@ def test_the_same_chain_budget_written_three_ways():
                         ur=5.0, ru='unit = "Ω"', f=600.0, uf=1e-9, fu='unit = "MHz"')
     a, b, c = (evaluate(parse_spec(t), monte_carlo_enabled=False) for t in (si, micro, mega))
     scale = {"A": 1.0, "pA": 1e-12}
-    for name in ("I", "dev_ppm"):
+    for name in ("I", "delta_I"):
         ma, mb, mc = a.measurand(name), b.measurand(name), c.measurand(name)
         f = scale.get(mb.unit, 1.0)
         assert mb.value * f == near(ma.value, rel=1e-12, abs=1e-12 * ma.standard_uncertainty)

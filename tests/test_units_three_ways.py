@@ -70,14 +70,14 @@ def three(tmp_path_factory):
 
 def test_three_spellings_give_the_same_si_values(three):
     a, b, c = three
-    to_si = {"A": 1.0, "pA": 1e-12, "µA/A": 1.0}   # dev_ppm: µA/A in all three ways
-    for name in ("I", "dev_ppm"):
+    to_si = {"A": 1.0, "pA": 1e-12, "µA/A": 1.0}   # delta_I: µA/A in all three ways
+    for name in ("I", "delta_I"):
         ma, mb, mc = (x.measurand(name) for x in (a, b, c))
         for m in (mb, mc):
             f = to_si[m.unit]
             # 1 part in 10¹² of I: rel 1e-12 for I; for the deviation (ppm) that is 1e-6 ppm
             # absolute (a float ulp of I/(n·e·f) is 1.1e-16, i.e. 1.1e-10 ppm)
-            assert m.value * f == near(ma.value, rel=1e-12, abs=1e-6 if name == "dev_ppm" else 0)
+            assert m.value * f == near(ma.value, rel=1e-12, abs=1e-6 if name == "delta_I" else 0)
             # u comes from the scatter of 36 000 readings: each decimal reading rounds to the
             # nearest double on its own (≤ 1.1e-16 of 0.096 V, in V or in µV), about 1e-11 of
             # the per-reading noise, so u agrees to ~1e-12 and not to the last bit; 1e-10 bounds

@@ -11,7 +11,7 @@ way round, a resistor correction with the wrong sign, a drift referred to the wr
 settling transient left in the data) or if the budget's uncertainty were far too small.
 
 Coverage used in the checks:
-* the measurands (I, dev_ppm): the budget's own expanded uncertainty U (p = 95 %, k from
+* the measurands (I, delta_I): the budget's own expanded uncertainty U (p = 95 %, k from
   t_p(ν_eff), JCGM 100 G.4–G.6), as an auditor would use it;
 * each input (dV, R, g, f, A_TR, combined from their module rows): k = 3 times the combined
   standard uncertainty — a gross-error check (a sign or unit mistake moves a term by many u);
@@ -85,7 +85,7 @@ def combined(b, names: list[str], base: str) -> tuple[float, float]:
 def test_deviation_recovered_within_expanded_uncertainty(spec):
     # synthetic truth: δ is the generator's setting (scenario_common.PUMP_DELTA)
     b, t = budget_of(spec), truth_of(spec)
-    m = b.measurand("dev_ppm")
+    m = b.measurand("delta_I")
     assert m.unit == "µA/A"
     assert abs(m.value - t["dev_ppm_true"]) <= m.expanded_uncertainty, (m.value, t)
     # ... and U must be neither far too small nor uselessly wide. Derivation of the expected

@@ -292,9 +292,11 @@ def main(argv: list[str] | None = None) -> None:
 
     # the record stores SI numbers with the display unit beside them; reading it through the
     # library shows them in that unit (formatting the raw JSON as ppm printed 0.00)
+    from budget.measurands import default_measurand
     from budget.record import load_record
-    dev = next(m for m in load_record(OUT / "result.json").measurands
-               if m.name.startswith("dev"))
+    ms = load_record(OUT / "result.json").measurands
+    main = default_measurand([m.name for m in ms])
+    dev = next(m for m in ms if m.name == main)
     print("\n" + "=" * 72)
     print(f"Demo finished in {time.monotonic() - start:.0f} s. Written under {rel(OUT)}/:")
     for p in sorted(OUT.rglob("*")):

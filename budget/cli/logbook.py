@@ -82,7 +82,8 @@ def add_logbook(sub) -> None:
                                  "and a step test at every recalibration; flags name the "
                                  "calibration.")
     p.add_argument("--measurand", metavar="NAME",
-                   help="output to follow (default: the first starting with 'dev')")
+                   help="output to follow (default: delta_I, else the first starting with "
+                        "'dev')")
     p.add_argument("--pdf", metavar="OUT", help="write the trend page (A4 PDF) to OUT")
     p.add_argument("--html", metavar="OUT", help="write the trend page (HTML) to OUT")
     p.add_argument("--json", metavar="OUT", help="write the trend, step tests and flags as JSON")

@@ -404,14 +404,22 @@ class Logbook:
             "SELECT name, count(*) FROM measurands GROUP BY name ORDER BY min(record_id), name")]
 
     def series(self, measurand: str) -> Series:
-        """Everything a trend of ``measurand`` needs, in one read."""
+        """Everything a trend of ``measurand`` needs, in one read (a former name of the
+        chain deviation matches too: :func:`budget.measurands.match_name`)."""
+        from ..measurands import DEVIATION_DISPLAY_UNITS, deviation_aliases
+        alias, units = deviation_aliases(measurand), DEVIATION_DISPLAY_UNITS
+        same = (f"(m.name = ? OR (m.name IN ({','.join('?' * len(alias))}) AND m.unit IN "
+                f"({','.join('?' * len(units))})))") if alias else "m.name = ?"
+        args = (measurand, *alias, *units) if alias else (measurand,)
         rows = self._query(
             "SELECT r.id, r.date_start, coalesce(r.date_end, r.date_start), r.chain, r.title, "
             "m.unit, m.value, m.u, m.big_u, m.k FROM measurands m JOIN records r "
-            "ON r.id = m.record_id WHERE m.name = ? ORDER BY r.date_start, r.id", (measurand,))
+            f"ON r.id = m.record_id WHERE {same} ORDER BY r.date_start, r.id", args)
         dated = tuple(SeriesRow(*r) for r in rows if r[1] is not None)
-        terms = tuple(self._query("SELECT record_id, contribution, key FROM terms "
-                                  "WHERE measurand = ? AND key IS NOT NULL", (measurand,)))
+        terms = tuple(self._query("SELECT t.record_id, t.contribution, t.key FROM terms t "
+                                  "JOIN measurands m ON m.record_id = t.record_id AND "
+                                  f"m.name = t.measurand WHERE {same} AND t.key IS NOT NULL",
+                                  args))
         cals = tuple(self._query("SELECT record_id, input, kind, module, identifier, path, "
                                  "calibration_date FROM calibrations"))
         return Series(measurand, dated, len(rows) - len(dated), terms, cals)

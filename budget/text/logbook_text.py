@@ -5,15 +5,16 @@ from __future__ import annotations
 from collections.abc import Sequence
 
 from ..fmt import fmt_num, fmt_u, fmt_value
+from ..measurands import default_measurand
 from .tables import table
 
 __all__ = ["logbook_list_text", "logbook_show_text", "logbook_trend_text", "main_measurand"]
 
 
 def main_measurand(names: Sequence[str]) -> str | None:
-    """The measurand a list shows: the first whose name starts with "dev", else the first."""
-    devs = [n for n in names if n.startswith("dev")]
-    return devs[0] if devs else (names[0] if names else None)
+    """The measurand a list shows: the chain deviation (``delta_I``, or the first name
+    starting with "dev"), else the first (:func:`budget.measurands.default_measurand`)."""
+    return default_measurand(list(names))
 
 
 def _u(unit: str) -> str:
