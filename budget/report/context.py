@@ -173,7 +173,7 @@ def _measurand_block(b: Budget, m: Measurand, *, draw: bool) -> dict[str, Any]:
     fixed = b.run.get("coverage_factor_fixed") is not None
     unit = unit_suffix(m.unit)
     # U/|y| says something only when y is well away from zero (not for a deviation like
-    # dev_ppm = 0.33 ± 0.49), so it is shown only below 10 %
+    # delta_I = 0.33 ± 0.49), so it is shown only below 10 %
     rel = (sci(fmt_u(m.expanded_uncertainty / abs(m.value)))
            if m.value != 0 and m.expanded_uncertainty < 0.1 * abs(m.value) else "")
     stated = stated_result(b, m)
@@ -374,7 +374,7 @@ def build_context(b: Budget, *, certificate: bool = False, draft: bool = True,
         for i, row in enumerate(b.correlation_matrix):
             for j in range(i + 1, len(row)):
                 # |r| = 1.000 to three decimals: one output is, to first order, a linear
-                # function of the other (dev_ppm of I): a table row that tells nothing
+                # function of the other (delta_I of I): a table row that tells nothing
                 (tied if abs(row[j]) >= 0.9995 else corr).append(
                     (names[i], names[j], f"{row[j]:.3f}".replace("-", "−")))
     files = [{"path": _s(f.get("path")), "sha256": _s(f.get("sha256"))}
