@@ -58,6 +58,9 @@ _SPECIAL = {                       # lines inserted into a plain record (times k
     "inf": [b"30.6,-inf,on"],
     "overflow": [b"30.6,1e400,on"],
     "word": [b"30.6,high,on"],
+    # a piece of only True/False fields was read as 1.0/0.0 (pandas' bool words, any case) where
+    # the general reading refuses the word (review of the fast reader)
+    "boolean words": [b"30.6,True,on", b"30.7,FALSE,off", b"30.8,true,on"],
     "hex": [b"30.6,0x1A,on"],
     "integer beyond 2**53": [b"30,9007199254740993,on"],
     "bad pump": [b"30.6,0.1,of"],
@@ -193,3 +196,23 @@ def test_pieces_longer_than_the_parsers_chunk_read_as_the_general_reading(tmp_pa
     ref = _general(path, monkeypatch)
     assert "row 599991" in ref and "pump" in ref and "'maybe'" in ref
     assert _outcome(path) == ref
+
+
+@pytest.mark.parametrize("column", ["time_s", "reading"])
+def test_a_column_of_true_false_words_is_refused_as_by_the_general_reading(
+        tmp_path, monkeypatch, column):
+    # the whole column True/False: pandas gave 1.0/0.0 and the budget ran (exit 0); the
+    # general reading refuses the first such field, row 1
+    rows = [(f"{i}.5", "True" if i % 2 else "False", "on" if (i // 3) % 2 else "off")
+            for i in range(12)]
+    if column == "time_s":
+        rows = [("False" if i == 0 else "True", f"0.{i + 1}", p) for i, (_, _, p) in
+                enumerate(rows[:2])]
+    path = tmp_path / "r.csv"
+    path.write_bytes(_HEAD + b"\n".join(",".join(r).encode() for r in rows) + b"\n")
+    reference = _general(path, monkeypatch)
+    assert isinstance(reference, str) and f"field '{column}'" in reference
+    assert _outcome(path) == reference                          # the one-pass fast path
+    for threads in (2, 3):
+        _small_pieces(monkeypatch, threads)
+        assert _outcome(path) == reference, threads

@@ -4,7 +4,9 @@ parser straight to float64, in pieces read by one thread each.
 Nothing here raises a located error: every function answers None whenever the general reading
 of :mod:`budget.inputs.onoff_table` could differ in any way (numbers, messages), and the caller
 then reads the file that way. The pieces are cut after a newline; each line is parsed by the
-same code with the same options as in one pass, so the numbers are the same bit for bit.
+same code with the same options as in one pass, so the numbers are the same bit for bit (but
+for the sign of a zero written ``-0`` in a column of integers, which the general reading infers
+as integers: +0.0 there, −0.0 here; nothing computed depends on it).
 pandas' tokenizer and float conversion run without the GIL, so the pieces are parsed side by
 side on as many processors as the process may use.
 """
@@ -96,7 +98,8 @@ def _parser_warnings_raise():
 def read_piece(source, cols: list[str], first: bool) -> tuple | None:
     """``time_s``, ``reading`` (float64) and pump state (bool) of a binary file-like
     ``source``, parsed without ``skipinitialspace``; ``first``: it holds the header. None
-    whenever the general reading could differ — a value that does not parse, a missing or
+    whenever the general reading could differ — a value that does not parse, a column of
+    only 0s and 1s (it may have been the words True/False), a missing or
     non-finite value, a field-count problem, an integer too large to be exact, a pump state
     that is not valid, bytes that are not UTF-8. Call it inside :func:`_parser_warnings_raise`."""
     try:
@@ -115,6 +118,11 @@ def read_piece(source, cols: list[str], first: bool) -> tuple | None:
         if len(v):     # min and max are NaN or ±inf if any value is: no temporary arrays
             lo, hi = float(v.min()), float(v.max())
             if not (-_EXACT < lo and hi < _EXACT):
+                return None
+            # a column (or piece) whose every field is True/False in any case is turned into
+            # 1.0/0.0 by pandas even when asked for float; the general reading refuses such a
+            # word. Only a column of 0s and 1s can hide it: read those the general way.
+            if 0.0 <= lo and hi <= 1.0 and not ((v > 0.0) & (v < 1.0)).any():
                 return None
         out.append(v)
     ok, on = pump_states(df["pump"])
