@@ -16,8 +16,10 @@ $(STAMP): pyproject.toml
 demo: $(STAMP)
 	$(BIN)/python worked_examples/run_demo.py
 
+# two worker processes (pytest-xdist), whole files to one worker each (module fixtures run
+# once); `pytest` alone still runs everything in one process
 test: $(STAMP)
-	$(BIN)/python -m pytest
+	$(BIN)/python -m pytest -n 2 --dist loadfile
 
 # the long fuzz profile (by hand): 5 000 cases for each of the four generated properties
 fuzz: $(STAMP)
