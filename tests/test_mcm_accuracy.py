@@ -82,6 +82,12 @@ def test_three_valued_verdict_margin_at_each_end_alone():
     assert (low_end.d_low, low_end.d_high) == (near(0.03, abs=1e-12), 0.0)
     assert low_end.verdict == "inconclusive"
     assert compare_lpu_mcm(0.0, 1.96, 1.0, -1.96, 1.93, 2, 0.0, 0.02).verdict == "inconclusive"
+    # the accuracy of one end unknown (NaN): inconclusive, even when the other end alone would
+    # say "not validated" (validate.py: inconclusive whenever s is unknown)
+    assert compare_lpu_mcm(0.0, 1.96, 1.0, -1.96, 1.80, 2, math.nan, 0.0).verdict == \
+        "inconclusive"
+    assert compare_lpu_mcm(0.0, 1.96, 1.0, -1.80, 1.96, 2, 0.0, math.nan).verdict == \
+        "inconclusive"
     # s = 0.005 at that end: d + 2s = 0.04 ≤ δ, validated
     assert compare_lpu_mcm(0.0, 1.96, 1.0, -1.93, 1.96, 2, 0.005, 0.0).verdict == "validated"
     assert compare_lpu_mcm(0.0, 1.96, 1.0, -1.96, 1.93, 2, 0.0, 0.005).verdict == "validated"

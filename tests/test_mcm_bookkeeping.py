@@ -220,6 +220,8 @@ def test_fixed_run_batches_keep_enough_trials_in_each_tail():
     assert fixed_batches(1000, 0.95) == 5
     assert fixed_batches(2000, 0.95) == 10
     assert fixed_batches(399, 0.95) == 1
+    assert fixed_batches(400, 0.95) == 2                # two batches of 200: the least estimate
+    assert fixed_batches(400, 0.95, "sobol") == 2
     assert fixed_batches(1024, 0.95, "sobol") == 4
 
 
@@ -255,13 +257,15 @@ def _batches(sd: float, h: int = 10, m: int = 100, seed: int = 3, shift: float =
     return y, [y[i * m:(i + 1) * m] for i in range(h)]
 
 
-@pytest.mark.parametrize("sd, delta", [(0.9935, 0.005), (0.9965, 0.05), (0.0996, 0.005)])
+@pytest.mark.parametrize("sd, delta", [(0.9935, 0.005), (0.9948, 0.005), (0.9965, 0.05),
+                                       (0.0996, 0.005)])
 def test_stop_tolerance_from_the_u_of_all_trials(sd, delta):
     # JCGM 101 §7.9.4 f)–g) (memory): δ comes from u(y) of all h·M values. That u is computed
     # here directly, np.std of the 1000 values (ddof = 1); on either side of 0.995, where
     # §7.9.2 switches δ: 0.9935 = 99 × 10⁻² → δ = 0.005, 0.9965 → 1.0 = 10 × 10⁻¹ → δ = 0.05;
     # and just below 0.0995's switch (0.0996 → 10 × 10⁻² → δ = 0.005), where u ≠ 1 so that a
-    # pooled u built from s³ instead of s² would move far.
+    # pooled u built from s³ instead of s² would move far. 0.9948 sits 5e-4 below the switch:
+    # a divisor h·M − 2 instead of h·M − 1 (1/(2hM) = 5e-4 relative) would cross it.
     # The tool records δ/5 (its stricter stop, mcm_batches.VALIDATION_DIVISOR).
     from budget.propagate.mcm_batches import batch_stats, stable
     y, parts = _batches(sd)
@@ -299,3 +303,29 @@ def test_stop_tolerance_recorded_when_the_cap_stops_after_two_batches():
     assert r.stop_tolerance == near(0.01, rel=1e-12)
     r = run({"Y": "X"}, x, trials=None, max_trials=19_999)["Y"]
     assert (r.batches, r.stop_tolerance) == (1, 0.0)
+
+
+def test_stop_tolerance_is_the_smaller_of_the_two_deltas():
+    # δ = min(δ(u_MC), δ(u_c)) (module docstring of mcm_batches, project convention stricter
+    # than JCGM 101 §7.9.4, which uses δ(u_MC)): u_MC = 0.9935 → δ = 0.005 (§7.9.2); a linear
+    # δ of 0.05 leaves 0.005, one of 0.0005 replaces it; δ/5 recorded
+    from budget.propagate.mcm_batches import batch_stats, stable
+    _, parts = _batches(0.9935)
+    stats = [{"Y": batch_stats(b, 0.95)} for b in parts]
+    for lin, expected in ((0.05, 0.005), (0.0005, 0.0005)):
+        used: dict = {}
+        stable(100, stats, ["Y"], 2, linear={"Y": lin}, used=used)
+        assert used["Y"] == near(expected / 5, rel=1e-12)
+
+
+def test_shortest_interval_stop_tests_both_of_its_ends():
+    # JCGM 101 §7.9.4 e)–h): 2·s of both ends of the reported interval within δ/5. Batch
+    # statistics (mean, u, symmetric low/high, shortest low/high) by hand: all equal except the
+    # shortest interval's low end, which alternates by ±1 (2·s of its average ≫ δ/5 = 0.01 at
+    # u = 2, §7.9.2). The symmetric interval is stable; the shortest is not, by its low end.
+    from budget.propagate.mcm_batches import stable
+    stats = [{"Y": (0.0, 2.0, -3.9, 3.9, -3.9 + (-1.0) ** i, 3.9)} for i in range(10)]
+    assert stable(10_000, stats, ["Y"], 2, interval="symmetric") is True
+    assert stable(10_000, stats, ["Y"], 2, interval="shortest") is False
+    high = [{"Y": (0.0, 2.0, -3.9, 3.9, -3.9, 3.9 + (-1.0) ** i)} for i in range(10)]
+    assert stable(10_000, high, ["Y"], 2, interval="shortest") is False

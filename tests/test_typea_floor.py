@@ -203,6 +203,32 @@ def test_allan_floor_without_a_floor_keeps_the_white_dof():
     assert fit.dof == near(model.dof, rel=1e-6)
 
 
+# ------------------------------------------------------------------ the proportionate widening
+def test_weight_is_zero_when_the_record_passes():
+    # typea.evidence_weight docstring (project convention): w = 0 when p ≥ level or no p
+    assert typea.evidence_weight(None, 0.05) == 0.0
+    assert typea.evidence_weight(0.2, 0.05) == 0.0 and typea.evidence_weight(1.0, 0.05) == 0.0
+    assert typea.evidence_weight(0.005, 0.05) == near(1.0, rel=1e-12)   # a decade below: 1
+
+
+@pytest.mark.parametrize("seed, capped", [(30, False), (50, True)])
+def test_proportionate_widening_dof_is_welch_satterthwaite(seed, capped):
+    # white noise plus a random walk of 0.15 per difference (invented; seeds chosen so that
+    # the record is rejected with 0 < w < 1). Project convention (typea.py step 5):
+    # u² = (1 − w)·u_w² + w·u_full²; its ν by Welch–Satterthwaite (JCGM 100 G.4.1) from the
+    # two parts, ν = u⁴/[((1 − w)u_w²)²/ν_w + (w·u_full²)²/ν_full], never above ν_w (project
+    # convention); seed 50 gives 78.6 > ν_w = 59.8, so there the cap applies.
+    g = np.random.default_rng(seed)
+    d = g.normal(size=64) + 0.15 * np.cumsum(g.normal(size=64))
+    r = typea.analyse(d, onoff.white_model(regular(64)))
+    assert 0.0 < r.weight < 1.0 and r.method != "white"
+    part_w, part_f = (1 - r.weight) * r.u_white ** 2, r.weight * r.u_full ** 2
+    assert r.u ** 2 == near(part_w + part_f, rel=1e-12)
+    nu = (part_w + part_f) ** 2 / (part_w ** 2 / r.dof_white + part_f ** 2 / r.dof_full)
+    assert (nu > r.dof_white) is capped
+    assert r.dof == near(min(nu, r.dof_white), rel=1e-12)
+
+
 # ------------------------------------------------------------------ autocorrelation option
 def test_autocorrelation_option_dof_is_n_eff_minus_one():
     # a linear trend of 16 differences: not white; its positive autocorrelation widens most.
