@@ -35,8 +35,11 @@ def test_shortest_series_accepted_and_refused():
     r = autocorrelation([1.0, 2.0])
     # two values: x − x̄ = (−½, ½), r_1 = (−¼)/(½) = −½ (definition r_k = c_k/c_0)
     assert r.tolist() == [1.0, -0.5]
-    with pytest.raises(ComputationError):
+    with pytest.raises(ComputationError, match="at least 2 values"):
         autocorrelation([1.0])
+    # a table (2-D) is not a series, whatever its length (module docstring: a 1-D series)
+    with pytest.raises(ComputationError, match="at least 2 values"):
+        autocorrelation(np.arange(6.0).reshape(3, 2))
 
 
 def test_every_lag_up_to_n_minus_one_and_no_further():

@@ -527,3 +527,32 @@ def test_output_covariance_of_two_outputs():
     _, empty = propagate_linear(build_model({}, quantities={"X1", "X2"}, constants={}), qs,
                                 np.eye(2))
     assert empty.shape == (0, 0)
+
+
+def test_correlation_groups_are_the_connected_parts_of_the_nonzero_correlations():
+    # inputs are grouped when a chain of non-zero correlations links them (lpu.py module
+    # docstring; the connected components of the graph r_ij ≠ 0, by hand)
+    from budget.propagate.lpu import correlation_groups
+    assert correlation_groups(np.eye(3)) == [[0], [1], [2]]
+    r = np.eye(4)
+    r[0, 2] = r[2, 0] = 1.0                  # fully correlated pair
+    r[2, 3] = r[3, 2] = -0.3                 # and a third through the second
+    assert correlation_groups(r) == [[0, 2, 3], [1]]
+
+
+def test_an_output_without_uncertainty_has_zero_shares(tmp_path, recwarn):
+    # Y = 0·A + B with u(B) = 0: u_c = 0, so no term has a share of u_c² (0/0 would be NaN);
+    # the shares are reported as 0 (project convention), without a floating-point warning
+    m = run(tmp_path, """
+        [model]
+        Y = "0 * A + B"
+        [inputs.A]
+        value = 1.0
+        standard_uncertainty = 1.0
+        [inputs.B]
+        value = 2.0
+        standard_uncertainty = 0.0
+    """).measurand("Y")
+    assert m.standard_uncertainty == 0.0
+    assert m.terms and all(t.variance_share == 0.0 for t in m.terms)
+    assert not [w for w in recwarn if issubclass(w.category, RuntimeWarning)]

@@ -303,6 +303,22 @@ def test_stop_tolerance_recorded_when_the_cap_stops_after_two_batches():
     assert r.stop_tolerance == near(0.01, rel=1e-12)
     r = run({"Y": "X"}, x, trials=None, max_trials=19_999)["Y"]
     assert (r.batches, r.stop_tolerance) == (1, 0.0)
+    # with the linear u_c = 0.2 given: δ(u_c) = 0.005 is the smaller, δ/5 = 0.001
+    model = build_model({"Y": "X"}, quantities={"X"}, constants={})
+    r = monte_carlo(model, x, np.eye(1), McmSettings(trials=None, max_trials=20_000, seed=1),
+                    linear_u={"Y": 0.2})["Y"]
+    assert r.stop_tolerance == near(0.001, rel=1e-12)
+
+
+def test_small_sample_histogram_spans_every_sample():
+    # project convention (mcm._histogram): up to 2000 trials the histogram spans the whole
+    # sorted sample, from its first to its last value, so every trial is counted; a range no
+    # finite bins fit (1e308 ± ½ is 1e308) gives an empty histogram, never a failed run
+    y = np.sort(np.random.default_rng(1).normal(size=500))
+    counts, edges = mcm._histogram(y)
+    assert int(counts.sum()) == 500 and (edges[0], edges[-1]) == (y[0], y[-1])
+    counts, edges = mcm._histogram(np.full(10, 1e308))
+    assert (counts.size, edges.size) == (0, 0)
 
 
 def test_stop_tolerance_is_the_smaller_of_the_two_deltas():
