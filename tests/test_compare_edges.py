@@ -123,3 +123,57 @@ def test_typed_reference_entry_and_its_band():
     assert line["x"] == [0.5, 2.5] and line["y"] == [11 * S, 11 * S]
     points = [s for s in c.figure["series"] if s["style"] == "points"][0]
     assert points["x"] == [1.0, 2.0]
+
+
+def test_en_of_exactly_one_passes():
+    # ISO 13528 §9.7 (memory): |E_n| ≤ 1 is satisfactory, the boundary included. E_n = 10/10:
+    # difference 10, U = √(6² + 8²) = 10 exactly in binary
+    from budget.compare import NormalisedError
+    at_one = NormalisedError("a", "b", 10.0, 5.0, 10.0, 10.0 / 10.0, ())
+    assert at_one.en == 1.0 and at_one.passed is True
+    assert NormalisedError("a", "b", 10.5, 5.0, 10.0, 1.05, ()).passed is False
+    assert NormalisedError("a", "b", 0.0, 0.0, 0.0, None, ()).passed is None
+
+
+def _k2_record(x, ux):
+    # the spec of tests/test_compare.py with k fixed at 2 ([budget] coverage_factor, README)
+    text = SPEC.replace("[budget]\n", "[budget]\ncoverage_factor = 2\n", 1)
+    b = evaluate(parse_spec(text.format(x=x, ux=ux, ur=0.0, cr=1, title="k2",
+                                        date="2026-11-20")), monte_carlo_enabled=False)
+    return record_from_dict(json.loads(b.to_json()))
+
+
+def test_a_run_stated_with_k_2_is_not_rescaled():
+    # en_basis = "2u" draws every run at 2·u (ISO 13528 §9.7 E_n with k = 2); a run whose
+    # stated k is 2 is then not "rescaled" (project convention, compare.RunEntry), one stated
+    # with k = t_p(ν) = 1.96 (the spec of test_compare.py, ν = ∞) is
+    runs = [_k2_record(10 * S, 3 * S), _k2_record(20 * S, 3 * S)]
+    c = compare_runs(runs, en_basis="2u")
+    assert [(e.stated_coverage_factor, e.rescaled) for e in c.runs] == [(2.0, False)] * 2
+    plain = [record_from_dict(record(x * S, 1 * S)) for x in (10, 11)]
+    assert all(e.rescaled for e in compare_runs(plain, en_basis="2u").runs)
+
+
+def test_weighted_mean_band_is_two_u_either_side():
+    # project convention (figure data): without a reference the band is x̄ ± 2·u(x̄). Runs
+    # 10·S and 11·S with u = S each: x̄ = 10.5·S, u(x̄) = S/√2 (1/u² weights, by hand; χ² = ½,
+    # Birge ratio below 1: no inflation), half-width √2·S
+    runs = [record_from_dict(record(x * S, 1 * S, title=f"run {x}")) for x in (10, 11)]
+    c = compare_runs(runs, en_basis="2u")
+    (band,) = [s for s in c.figure["series"] if s["style"] == "band"]
+    # the model I/(n·e·f) − 1 rounds the runs' values by ~1e-16 absolute (float 1 + x), some
+    # 1e-9 of x = 1e-7: rel = 1e-6 leaves room and still tells 2·u from u/2 or u
+    half = (band["y_high"][0] - band["y_low"][0]) / 2
+    centre = (band["y_high"][0] + band["y_low"][0]) / 2
+    assert half == near(2 ** 0.5 * S, rel=1e-6)
+    assert centre == near(10.5 * S, rel=1e-6)
+
+
+def test_labels_may_not_take_the_reference_label():
+    # compare_runs: one unique label per run, none equal to the reference's (project
+    # convention: the figure and the E_n table name them apart); without a reference the
+    # word is free
+    runs = [record_from_dict(record(x * S, 1 * S)) for x in (10, 11)]
+    with pytest.raises(UsageError, match="unique label"):
+        compare_runs(runs, labels=["reference", "b"], reference=ReferenceValue(11 * S, 1 * S))
+    assert compare_runs(runs, labels=["reference", "b"]).runs[0].label == "reference"

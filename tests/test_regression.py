@@ -261,3 +261,24 @@ def test_as_many_points_as_parameters():
     assert "as many parameters as points" in f.verdict
     # u(p0) = 0.5 at x0 = 0 (the first point alone fixes it); u(slope) = √2·0.5/2
     assert f.std_errors == (near(0.5, rel=1e-12), near(math.sqrt(2) * 0.25, rel=1e-12))
+
+
+def test_proportional_prediction_and_its_uncertainty():
+    # JCGM 100 H.3 with g = x for y = a·x: ŷ(x) = a·x, u(ŷ) = |x|·u(a); a and u(a) from
+    # scipy.optimize.curve_fit (unweighted, scaled covariance), as in the test above
+    rng = np.random.default_rng(42)
+    x = np.linspace(-10, 10, 21)
+    y = 1.0000003 * x + rng.normal(0, 1e-6, x.size)
+    f = fit(x, y, model="proportional")
+    popt, pcov = optimize.curve_fit(lambda t, a: a * t, x, y)
+    value, u = f.predict(-2.5)
+    assert value == near(-2.5 * popt[0], rel=1e-12)
+    assert u == near(2.5 * math.sqrt(pcov[0, 0]), rel=1e-6)
+
+
+@pytest.mark.parametrize("cov", [np.diag([1.0, math.nan, 1.0]), np.eye(2), np.eye(4)])
+def test_covariance_of_the_observations_must_be_finite_and_n_by_n(cov):
+    # regression.fit docstring: cov is the n × n covariance of the observations; a NaN in
+    # it, or another shape, is refused with the project's error
+    with pytest.raises(ComputationError, match="finite 3 x 3"):
+        fit([0.0, 1.0, 2.0], [1.0, 2.0, 2.5], cov=cov)

@@ -368,3 +368,21 @@ def test_all_zero_differences_are_refused():
     # uncertainty; refused rather than reported as u = 0
     with pytest.raises(ComputationError, match="scatter is zero"):
         typea.analyse(np.zeros(16), onoff.white_model(regular(16)))
+
+
+def test_segment_means_by_hand():
+    # onoff.segment: one mean per run of equal on/off states, over the readings kept after
+    # the settle cut (module docstring). Readings far from 0 (1e9 + …, invented) so that the
+    # means keep their offset: [10, 11, 12] + 1e9 off, then [20, 21, 22] + 1e9 on, settle 1 s
+    # keeps the last two of each: means 1e9 + 11.5 and 1e9 + 21.5 (by hand)
+    t = np.arange(6.0)
+    r = 1e9 + np.array([10.0, 11.0, 12.0, 20.0, 21.0, 22.0])
+    on = np.array([False, False, False, True, True, True])
+    seg = onoff.segment(t, r, on, 1.0)
+    assert seg.kept.tolist() == [2, 2] and seg.on.tolist() == [False, True]
+    assert seg.mean.tolist() == [1e9 + 11.5, 1e9 + 21.5]
+    # the shortest record, 2 readings (one each): accepted ("at least 2", onoff.segment)
+    two = onoff.segment(np.array([0.0, 1.0]), np.array([3.0, 5.0]), np.array([False, True]), 0.0)
+    assert two.mean.tolist() == [3.0, 5.0]
+    with pytest.raises(ComputationError, match="at least 2 readings"):
+        onoff.segment(np.array([0.0]), np.array([3.0]), np.array([True]), 0.0)
