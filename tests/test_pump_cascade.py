@@ -185,3 +185,31 @@ def test_linear_and_sampled_uncertainty_both_reported(tmp_path):
     assert any("linear propagation gives" in n for n in deep.notes)
     assert not at_edge.prediction.differs
     assert at_edge.prediction.linear_std == near(at_edge.prediction.std, rel=0.05)
+
+
+def test_initial_guess_from_the_linearised_edges():
+    # cascade.initial_guess (project convention for the fit's starting θ): on an isolated edge
+    # ln(−ln(⟨n⟩ − k + 1)) = −a_k(V − V_k) is a straight line in V (Kashcheyevs & Kaestner's
+    # double exponential, tests/pump_sim.staircase). Truth a = 40/V, V_1 = −0.60 V,
+    # V_2 = −0.40 V. Step 1 has 21 points on its edge: line fit, exact to rounding (step 2's
+    # term there is below e^(−54)); step 2 one point at −0.41 V: V + ln(−ln(⟨n⟩ − 1))/a with
+    # a from step 1, off only by step 1's tail at −0.41 V (1 − ⟨n_1⟩ = e^(−7.6) = 5e-4 of a
+    # step, i.e. some 1e-5 V): bound 1e-3 V, against 0.01 V for the raw voltage
+    m = CascadeModel(2, False)
+    v = np.concatenate([np.linspace(-0.70, -0.50, 21), [-0.45, -0.41, -0.30, -0.25]])
+    theta, missing = m.initial_guess(v, sim_staircase(v, [40.0, 40.0], [-0.60, -0.40]))
+    assert missing == []
+    assert theta[0] == near(40.0, rel=1e-6) and theta[1] == near(-0.60, rel=1e-6)
+    assert theta[2] == near(40.0, rel=1e-6)
+    assert theta[3] == near(-0.40, rel=0, abs=1e-3)
+    # exactly two points on an edge still give its line (two points fix it), here exact
+    v2 = np.array([-0.8, -0.62, -0.58, -0.5, -0.25])
+    theta2, _ = m.initial_guess(v2, sim_staircase(v2, [40.0, 40.0], [-0.60, -0.40]))
+    assert theta2[0] == near(40.0, rel=1e-6) and theta2[1] == near(-0.60, rel=1e-6)
+    # every edge with a single point: no slope can be fitted; the convention takes
+    # a = ±3K/span(V) (K = 2 steps, span 0.5 V: 12/V), its sign that of the data's trend
+    v3 = np.array([-0.8, -0.61, -0.5, -0.41, -0.3])
+    up, _ = m.initial_guess(v3, sim_staircase(v3, [40.0, 40.0], [-0.60, -0.40]))
+    down, _ = m.initial_guess(v3, sim_staircase(-v3, [40.0, 40.0], [0.60, 0.40]))
+    assert (up[0], up[2]) == (near(12.0, rel=1e-12), near(12.0, rel=1e-12))
+    assert (down[0], down[2]) == (near(-12.0, rel=1e-12), near(-12.0, rel=1e-12))

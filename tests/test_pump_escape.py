@@ -316,3 +316,13 @@ def test_best_gate_voltage_flags_a_window_edge():
     late = model.best_gate_voltage(theta, 3e-7, 2, (v_star + 0.02, -0.20))
     assert late["at_edge"] is True
     assert late["gate_voltage"] == near(v_star + 0.02, rel=0, abs=1e-6)
+
+
+def test_parameter_names_follow_the_documented_order():
+    # EscapeModel docstring (project convention): ln_tau0_k for k = 1..N, then b_k for
+    # k = 1..N (per-electron), one b (shared) or nothing (none); units ln(s) and 1/V
+    m = EscapeModel(3, "per-electron", 0.0)
+    assert m.param_names == ("ln_tau0_1", "ln_tau0_2", "ln_tau0_3", "b_1", "b_2", "b_3")
+    assert m.param_units == ("ln(s)",) * 3 + ("1/V",) * 3
+    assert EscapeModel(2, "shared", 0.0).param_names == ("ln_tau0_1", "ln_tau0_2", "b")
+    assert EscapeModel(2, "none", 0.0).param_names == ("ln_tau0_1", "ln_tau0_2")
