@@ -46,6 +46,7 @@ PARENT = os.getpid()
 def test_output_in_step_order_streams_kept(capsys, monkeypatch):
     rd = _runner()
     monkeypatch.setattr(os, "cpu_count", lambda: 2)
+    monkeypatch.setattr(os, "getloadavg", lambda: (0.5, 0.5, 0.5))
     rd.run_steps({i: _step(i) for i in range(1, 6)}, (1, 2, 4))
     out, err = capsys.readouterr()
     assert out.splitlines() == [
@@ -65,6 +66,7 @@ def test_one_process_runs_in_order(capsys):
 def test_failing_worker_step_stops_after_its_output(capsys, monkeypatch):
     rd = _runner()
     monkeypatch.setattr(os, "cpu_count", lambda: 2)
+    monkeypatch.setattr(os, "getloadavg", lambda: (0.5, 0.5, 0.5))
     steps = {1: _step(1), 2: _step(2, fail=True), 3: _step(3), 4: _step(4)}
     with pytest.raises(SystemExit) as exc:
         rd.run_steps(steps, (2, 4))
@@ -76,6 +78,17 @@ def test_failing_worker_step_stops_after_its_output(capsys, monkeypatch):
 def test_worker_that_dies_is_reported(capsys, monkeypatch):
     rd = _runner()
     monkeypatch.setattr(os, "cpu_count", lambda: 2)
+    monkeypatch.setattr(os, "getloadavg", lambda: (0.5, 0.5, 0.5))
     with pytest.raises(SystemExit) as exc:
         rd.run_steps({1: _step(1), 2: _step(2, crash=True), 3: _step(3)}, (2,))
     assert "worker process ended unexpectedly" in str(exc.value.code)
+
+
+def test_no_idle_cpu_runs_in_one_process(capsys, monkeypatch):
+    rd = _runner()
+    monkeypatch.setattr(os, "cpu_count", lambda: 2)
+    monkeypatch.setattr(os, "getloadavg", lambda: (1.5, 1.5, 1.5))   # 0.5 CPU idle
+    rd.run_steps({i: _step(i) for i in range(1, 4)}, (2,))
+    out, _ = capsys.readouterr()
+    assert "pid-is-worker=True" not in out
+    assert [ln.split()[1] for ln in out.splitlines()] == ["1", "1", "2", "2", "3", "3"]

@@ -5,9 +5,9 @@ The demo approver identity is created with a passphrase that the demo itself set
 only because the identity is a throw-away for the demonstration; a real approver keeps theirs
 secret (``budget identity create`` asks for it when BUDGET_PASSPHRASE is not set).
 
-The steps that share no files run in two processes (:data:`WORKER_STEPS` in a forked second
-one), and their output is written in step order, so the terminal shows what a run one after the
-other shows; ``--one-process`` runs them one after the other.
+The steps that share no files run in two processes when a CPU is idle (:data:`WORKER_STEPS` in
+a forked second one), and their output is written in step order, so the terminal shows what a
+run one after the other shows; ``--one-process`` runs them one after the other.
 """
 
 from __future__ import annotations
@@ -150,6 +150,14 @@ def _worker(queue, work: dict, numbers) -> None:
             return
 
 
+def _idle_cpus() -> float:
+    """CPUs not busy: the CPU count less the 1-minute load average (0 where unknown)."""
+    try:
+        return (os.cpu_count() or 1) - os.getloadavg()[0]
+    except (OSError, AttributeError):   # no load average (Windows)
+        return 0.0
+
+
 def run_steps(work: dict, in_worker) -> None:
     """Run the numbered steps, those in ``in_worker`` in a forked second process, and write
     every step's output in step order, as a run one after the other would.
@@ -157,10 +165,14 @@ def run_steps(work: dict, in_worker) -> None:
     The two halves share no files (each step reads only what an earlier step of its own half
     wrote), so the files written are the same; a step's stdout and stderr keep their streams
     and their order. Where ``fork`` is not available, or on one CPU, the steps run one after
-    the other in this process (and with an empty ``in_worker``: ``--one-process``).
+    the other in this process (and with an empty ``in_worker``: ``--one-process``), and so
+    they do when no CPU is idle (CPU count less the 1-minute load average below 1): on a
+    machine shared with other jobs the kernel gives one session's processes one share
+    (autogroup scheduling), and two processes measured slower there than one
+    (benchmarks/README.md).
     """
     import multiprocessing as mp
-    if not in_worker or "fork" not in mp.get_all_start_methods() or (os.cpu_count() or 1) < 2:
+    if not in_worker or "fork" not in mp.get_all_start_methods() or _idle_cpus() < 1:
         for i in sorted(work):
             work[i]()
         return
