@@ -33,7 +33,8 @@ __all__ = ["SCHEMA", "OLDER_SCHEMAS", "Term", "Measurand", "MonteCarlo", "Budget
 #: record-2: Monte Carlo ``numerical_accuracy`` (s/√h of y, u and the interval ends),
 #: ``verdict`` (three-valued §8 comparison), ``procedure``, ``stabilised``,
 #: ``stop_tolerance``, ``run.sampling``; the chains' deviation computed as q − 1 (working unit
-#: 1, ``run.model`` without the factor 10⁶) and scaled only for display.
+#: 1, ``run.model`` without the factor 10⁶) and scaled only for display, and named
+#: ``delta_I`` (formerly ``dev_ppm``/``dev_1e8``/``dev_1e9``) at every display scale.
 SCHEMA = "qcs-budget/record-2"
 #: Older formats still read (by compare, explain, report, the logbook, verify): their fields
 #: are a subset of the current ones with the same meaning and the same SI numbers. Their bytes
