@@ -6,6 +6,7 @@ import base64
 import hashlib
 import json
 import os
+from datetime import date, timedelta
 from pathlib import Path
 
 ROOT = Path(__file__).resolve().parent.parent
@@ -30,6 +31,9 @@ def variant(src: Path, dst: Path, i: int, pad: int = 0) -> Path:
     ``pad`` bytes of incompressible text in its notes (to make the book's pages spill)."""
     d = json.loads(src.read_text(encoding="utf-8"))
     d["run"]["title"] = f"{d['run'].get('title', '')} (variant {i})"
+    # another measurement date too: a copy differing only in its title would be the same
+    # measurement (same spec, data files and date), which the book keeps once
+    d["run"]["report"]["measurement_date"] = f"{date(2001, 1, 1) + timedelta(days=i)} 18:00"
     if pad:
         d["run"]["notes"] = list(d["run"].get("notes", [])) + [
             base64.b64encode(os.urandom(pad * 3 // 4)).decode("ascii")]

@@ -15,7 +15,8 @@ from pathlib import Path
 from ..errors import DataError
 from .extract import PreparedRecord
 
-__all__ = ["compress_body", "add_rows", "refuse_duplicates", "insert_details"]
+__all__ = ["compress_body", "add_rows", "refuse_duplicates", "refuse_repeated_runs",
+           "insert_details"]
 
 _ZLEVEL = 1                # zlib level of the stored bytes: 3× faster than 6, 8 % larger
 
@@ -34,6 +35,7 @@ def add_rows(con: sqlite3.Connection, records: Sequence[PreparedRecord],
     AUTOINCREMENT), assigned here so that the measurands and other rows can name them.
     """
     refuse_duplicates(con, records)
+    refuse_repeated_runs(con, records)
     start = con.execute("SELECT coalesce(max(id), 0) + 1 FROM records").fetchone()[0]
     ids = list(range(start, start + len(records)))
     con.executemany(
@@ -74,6 +76,51 @@ def refuse_duplicates(con: sqlite3.Connection, records: Sequence[PreparedRecord]
                 raise DataError(f"the same record as {seen[digest]}; nothing was "
                                 "added", file=r.file, field="sha256")
             seen[digest] = r.file
+
+
+def _run_key(spec_sha256: str, manifest_sha256: str, date_start: str | None
+             ) -> tuple[str, str, str | None] | None:
+    return (spec_sha256, manifest_sha256, date_start) if spec_sha256 else None
+
+
+def refuse_repeated_runs(con: sqlite3.Connection, records: Sequence[PreparedRecord]) -> None:
+    """A record of a measurement already in the book (or given twice) raises DataError.
+
+    Two records are of the same measurement when they come from the same spec (its SHA-256
+    covers every typed-in value), the same data files (the input manifest's digest) and the
+    same measurement date (``[report] measurement_date``, part of the spec; compared as well
+    so that records whose date was set apart from the spec are not merged): re-running such a
+    spec gives another
+    record (another seed, run time, software version) but no new evidence, and a trend that
+    counted it twice would give the run twice its weight and one more degree of freedom.
+    A record without a spec digest is not judged.
+    """
+    keys = {k for k in (_run_key(r.spec_sha256, r.manifest_sha256, r.date_start)
+                        for r in records) if k is not None}
+    if not keys:
+        return
+    specs = sorted({k[0] for k in keys})
+    stored: dict[tuple, int] = {}
+    for i in range(0, len(specs), 500):                # SQLite allows 999 parameters
+        chunk = specs[i:i + 500]
+        for rid, spec, manifest, day in con.execute(
+                "SELECT id, spec_sha256, manifest_sha256, date_start FROM records WHERE "
+                f"spec_sha256 IN ({','.join('?' * len(chunk))})", chunk):
+            stored.setdefault((spec, manifest, day), rid)
+    seen: dict[tuple, str] = {}
+    for r in records:
+        k = _run_key(r.spec_sha256, r.manifest_sha256, r.date_start)
+        if k is None:
+            continue
+        if k in stored:
+            raise DataError(f"the same measurement as #{stored[k]} (same spec, data files and "
+                            "measurement date; only the run differs, e.g. its seed): a run is "
+                            "kept once; nothing was added", file=r.file, field="run.spec_sha256")
+        if k in seen:
+            raise DataError(f"the same measurement as {seen[k]} (same spec, data files and "
+                            "measurement date): a run is kept once; nothing was added",
+                            file=r.file, field="run.spec_sha256")
+        seen[k] = r.file
 
 
 def insert_details(con: sqlite3.Connection, ids: Sequence[int],

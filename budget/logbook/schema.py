@@ -14,6 +14,10 @@ Version history
    ``calibrations`` (the calibrations each record used) and ``terms`` (each term's signed
    contribution and source identity, for the covariance of the trend). The migration fills them
    from the stored records.
+3. adds the index ``records_run`` on (spec digest, manifest digest, measurement date): a record
+   of a measurement already in the book is refused (:func:`budget.logbook.rows.
+   refuse_repeated_runs`). Nothing else changes, so a read-only book of version 2 is still read
+   as it is.
 """
 
 from __future__ import annotations
@@ -21,11 +25,13 @@ from __future__ import annotations
 import sqlite3
 from collections.abc import Callable
 
-__all__ = ["APPLICATION_ID", "SCHEMA_VERSION", "DDL_V1", "DDL", "create", "migrate"]
+__all__ = ["APPLICATION_ID", "SCHEMA_VERSION", "READABLE_FROM", "DDL_V1", "DDL", "create", "migrate"]
 
 #: "QCSL" in ASCII: marks a SQLite file as a qcs-budget logbook
 APPLICATION_ID = 0x5143534C
-SCHEMA_VERSION = 2
+SCHEMA_VERSION = 3
+#: the oldest version read without migrating (a read-only book of it can still be listed)
+READABLE_FROM = 2
 
 DDL_V1 = """
 CREATE TABLE records (
@@ -84,7 +90,9 @@ CREATE INDEX terms_measurand ON terms(measurand, record_id);
 
 _UNIQUE_2 = "CREATE UNIQUE INDEX records_canonical ON records(canonical_sha256);"
 
-DDL = DDL_V1 + _DDL_2 + _UNIQUE_2
+_DDL_3 = "CREATE INDEX records_run ON records(spec_sha256, manifest_sha256, date_start);"
+
+DDL = DDL_V1 + _DDL_2 + _UNIQUE_2 + _DDL_3
 
 
 def create(con: sqlite3.Connection) -> None:
@@ -108,7 +116,11 @@ def _migrate_1_to_2(con: sqlite3.Connection, refill: Callable[[sqlite3.Connectio
     con.execute(_UNIQUE_2)
 
 
-_STEPS = {1: _migrate_1_to_2}
+def _migrate_2_to_3(con: sqlite3.Connection, refill: Callable[[sqlite3.Connection], None]) -> None:
+    con.execute(_DDL_3)
+
+
+_STEPS = {1: _migrate_1_to_2, 2: _migrate_2_to_3}
 
 
 def migrate(con: sqlite3.Connection, version: int,

@@ -229,6 +229,8 @@ class Logbook:
         if version < 1:
             raise DataError(f"unknown logbook schema {version}", file=name, field="book")
         if version < schema.SCHEMA_VERSION:
+            if read_only and version >= schema.READABLE_FROM:
+                return                      # only an index is missing: read as it is
             if read_only:
                 raise DataError(f"logbook schema {version} needs migrating to "
                                 f"{schema.SCHEMA_VERSION}, but the book is read-only",
