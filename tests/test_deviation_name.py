@@ -53,6 +53,12 @@ def _record(extra: str = "") -> str:
     return evaluate(parse_spec(SPEC.format(extra=extra)), monte_carlo_enabled=False).to_json()
 
 
+def _record_other_run() -> str:
+    """A record of another run of the same chain: the spec with its own dV reading."""
+    spec = parse_spec(SPEC.format(extra="").replace("value = 0.0961306", "value = 0.0961307"))
+    return evaluate(spec, monte_carlo_enabled=False).to_json()
+
+
 def _old_name(text: str, *, keep_display_unit: bool = True) -> str:
     """The record as versions before the rename wrote it: the deviation named dev_ppm."""
     d = json.loads(text)
@@ -104,7 +110,8 @@ def test_a_former_name_in_a_bare_unit_is_not_matched():
 def test_logbook_trend_series_joins_former_and_new_names(tmp_path):
     new, old = tmp_path / "new.json", tmp_path / "old.json"
     new.write_text(_record(), encoding="utf-8")
-    old.write_text(_old_name(_record()), encoding="utf-8")
+    # another run (its own dV): the book keeps a re-run of the same spec and files once
+    old.write_text(_old_name(_record_other_run()), encoding="utf-8")
     book = tmp_path / "book.sqlite"
     add_files(book, [new, old])
     with Logbook.open(book) as lb:
