@@ -290,3 +290,45 @@ def test_same_day_runs_in_reverse_id_order_make_one_recalibration():
     assert (s.before.n, s.after.n) == (5, 4)
     assert s.en == near(-0.7 / (2 * 0.2 * math.sqrt(1 / 5 + 1 / 4)), rel=1e-9)
     assert (s.recalibration.after_id, s.recalibration.before_id) == (6, 5)
+
+
+# --------------------------------------------------------------- which chains are compared
+def test_record_without_chain_is_not_the_other_chain():
+    # one early record that names no chain (its own group, invented) before the two chains
+    base = _two_chains(-0.7)
+    early = SeriesRow(99, "2026-12-20", "2026-12-20", "", "free-form", "ppm", 0.05, 0.25,
+                      0.5, 2.0)
+    t = compute_trend(replace(base, rows=(early, *base.rows)))
+    assert any("name no chain" in n for n in t.notes)
+    step = [s for s in t.steps if s.recalibration.chain == "A"][0]
+    assert step.other_chain == "B" and [o["chain"] for o in step.others] == ["B"]
+    assert step.other_en == near(0.0, abs=1e-9)
+    assert all(s.recalibration.chain != "(no chain)" for s in t.steps)
+    a = [c for c in t.run_checks if c["chain"] == "A"]
+    assert {c["against"] for c in a} == {"B"}
+    # as without the early record: E_n = −0.7 / (2·√(0.04 + 0.005)) (derivation above)
+    assert a[8]["en"] == near(-0.7 / (2 * math.sqrt(0.045)), rel=1e-9)
+    nochain = [c for c in t.run_checks if c["id"] == 99][0]
+    assert nochain["en"] is None and nochain["against"] == ""
+
+
+def test_each_chain_is_compared_with_all_the_others():
+    base = _two_chains(-0.7)
+    n = len(base.rows)
+    third = tuple(SeriesRow(n + 1 + i, f"{r.date_start[:10]}T16:00", f"{r.date_start[:10]}T16:00",
+                            "C", f"C {i}", "ppm", 0.0, 0.2, 0.4, 2.0)
+                  for i, r in enumerate(r for r in base.rows if r.chain == "A"))
+    rows = tuple(sorted(base.rows + third, key=lambda r: (r.date_start, r.id)))
+    t = compute_trend(replace(base, rows=rows))
+    step = [s for s in t.steps if s.recalibration.chain == "A"][0]
+    assert [o["chain"] for o in step.others] == ["B", "C"]
+    assert all(o["en"] == near(0.0, abs=1e-9) for o in step.others)
+    flag = [f for f in t.flags if f.kind == "step"][0]
+    assert "B did not step" in flag.message and "C did not step" in flag.message
+    a = [c for c in t.run_checks if c["chain"] == "A"][8]
+    # against the pooled running mean of B and C: 8 runs of each ended before A's 9th run
+    # began, u = 0.2 each, independent: u²(mean) = 0.04/16; E_n = −0.7 / (2·√(0.04 + 0.0025))
+    assert a["against_chains"] == ["B", "C"] and a["runs_in_mean"] == 16
+    assert a["en"] == near(-0.7 / (2 * math.sqrt(0.0425)), rel=1e-9)
+    b = [c for c in t.run_checks if c["chain"] == "B"]
+    assert {c["against"] for c in b} == {"A + C"}

@@ -78,6 +78,8 @@ class StepTest:
     other_note: str = ""              # how the other chain's step was had, or why not
     cut_by: tuple[str, ...] = ()      # flagged recalibrations of other inputs that cut it
     spans: tuple[str, ...] = ()       # other recalibrations inside the window (not cut)
+    #: every chain compared: {"chain", "en", "note"} (other_chain/other_en: the first one)
+    others: tuple[dict[str, Any], ...] = ()
 
     @property
     def flagged(self) -> bool:
@@ -90,6 +92,7 @@ class StepTest:
                 "difference": self.difference, "standard_uncertainty": self.standard_uncertainty,
                 "en": self.en, "flagged": self.flagged, "other_chain": self.other_chain,
                 "other_chain_en": self.other_en, "other_chain_note": self.other_note,
+                "other_chains": [dict(o) for o in self.others],
                 "note": self.note, "window_cut_at": list(self.cut_by),
                 "window_spans": list(self.spans),
                 "date_first": self.date_first, "date_last": self.date_last}
@@ -227,7 +230,7 @@ def _other_step(ch: ChainRuns, t: _Test, other: ChainRuns, other_res, x, d, b
                 return None, (f"the other chain ({other.name}) had the same recalibration, "
                               f"with too few runs to test ({len(ot.before)} before, "
                               f"{len(ot.after)} after)")
-            return ot.en, "the other chain's own test of the same recalibration"
+            return ot.en, SAME_CALIBRATION
     starts = ch.starts
     first = min(starts[p] for p in t.before)
     last = max(ch.pts[ch.idx[p]].date_end for p in t.after)
@@ -265,8 +268,10 @@ def _state(t: _Test) -> str:
     return f"its own step E_n = {t.en:.2f}{', flagged' if t.flagged else ''}"
 
 
-def finish_steps(ch: ChainRuns, res, other: ChainRuns | None, other_res, x, d, b
-                  ) -> list[StepTest]:
+def finish_steps(ch: ChainRuns, res, others: list[tuple[ChainRuns, Any]], x, d, b
+                 ) -> list[StepTest]:
+    """The StepTests of one chain, each with the step of every other chain in ``others``
+    ((chain, its chain_steps result) pairs) across the same recalibration."""
     tests, _accepted = res
     out = []
     for j in sorted(tests, key=lambda j: tests[j].event.first):
@@ -281,7 +286,7 @@ def finish_steps(ch: ChainRuns, res, other: ChainRuns | None, other_res, x, d, b
                       if k != j and k not in t.cut_by and lo < e.first <= hi)
         first = ch.pts[ch.idx[lo]].date_start
         last = ch.pts[ch.idx[hi]].date_end
-        name = other.name if other is not None else ""
+        name = ", ".join(o.name for o, _ in others)
         cut_txt = (f"; window cut at the flagged recalibration(s) {', '.join(cut_by)}"
                    if cut_by else "")
         if t.en is None:
@@ -290,8 +295,13 @@ def finish_steps(ch: ChainRuns, res, other: ChainRuns | None, other_res, x, d, b
                                 f"{len(t.after)} after (at least {MIN_STEP} each side)"
                                 f"{cut_txt}", first, last, "", cut_by, spans))
             continue
-        other_en, other_note = (None, "no other chain to compare") if other is None else \
-            _other_step(ch, t, other, other_res, x, d, b)
+        cmp = []
+        for o, o_res in others:
+            en, note = _other_step(ch, t, o, o_res, x, d, b)
+            cmp.append({"chain": o.name, "en": en, "note": note})
+        other_en, other_note = ((cmp[0]["en"], cmp[0]["note"]) if len(cmp) == 1 else
+                                (None, "no other chain to compare") if not cmp else
+                                (None, f"{len(cmp)} other chains: see other_chains"))
         out.append(StepTest(r, t.mb, t.ma, t.diff, t.u, t.en, name, other_en, cut_txt[2:],
-                            first, last, other_note, cut_by, spans))
+                            first, last, other_note, cut_by, spans, tuple(cmp)))
     return out

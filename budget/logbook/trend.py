@@ -5,10 +5,11 @@ Given a :class:`~budget.logbook.store.Series` (what the book holds of one measur
 * **points** — each run's value with its expanded uncertainty U as stated, grouped by chain;
 * **weighted mean per chain** — generalised least squares with the shared terms' covariance
   and the generalised χ², ν = N − 1, p and Birge ratio (:mod:`budget.logbook.gls`);
-* **control rule** — each run against the *running* weighted mean of the other chain (every
-  run of the other chain measured before this one begins, at least :data:`MIN_RUNNING` of them):
-  E_n = (x_i − x̄_other) / (2·u(x_i − x̄_other)), with u² = u_i² + u²(x̄) − 2·cov through the
-  terms both chains share (k = 2 as in ISO 13528 / ISO/IEC 17043). |E_n| > 1 is flagged;
+* **control rule** — each run against the *running* weighted mean of all the other chains
+  pooled (every run of theirs measured before this one begins, at least :data:`MIN_RUNNING` of
+  them): E_n = (x_i − x̄_other) / (2·u(x_i − x̄_other)), with u² = u_i² + u²(x̄) − 2·cov
+  through the terms both share (k = 2 as in ISO 13528 / ISO/IEC 17043). |E_n| > 1 is flagged.
+  Records that name no chain form their own group, :data:`NO_CHAIN`: never compared;
 * **step test** — at every recalibration of a chain (the first run that uses a calibration
   identifier — a data file's SHA-256 or a typed-in source — that the same input has not used
   before, :mod:`budget.logbook.recal`), the weighted mean of the runs that used the previous
@@ -58,6 +59,7 @@ from .store import Series
 __all__ = ["Point", "ChainSummary", "Recalibration", "StepTest", "Flag", "Trend",
            "compute_trend", "MIN_RUNNING", "MIN_STEP", "K_EN"]
 
+NO_CHAIN = "(no chain)"   # the group of records that name no chain
 MIN_RUNNING = 3     # runs of the other chain before its running mean is used
 _D_FLOOR = 1e-6     # smallest non-shared share of u_i² kept (a run made only of shared terms)
 
@@ -239,7 +241,7 @@ def compute_trend(series: Series) -> Trend:
     if series.undated:
         notes.append(f"{series.undated} record(s) with this measurand have no readable "
                      "[report] measurement_date and are left out")
-    pts = [Point(r.id, r.chain or "(no chain)", r.date_start, r.date_end, r.title, r.value,
+    pts = [Point(r.id, r.chain or NO_CHAIN, r.date_start, r.date_end, r.title, r.value,
                  r.standard_uncertainty, r.expanded_uncertainty, r.coverage_factor)
            for r in rows]
     bad = [p for p in pts if not p.standard_uncertainty > 0]
@@ -281,27 +283,23 @@ def compute_trend(series: Series) -> Trend:
             if t.en is not None and not t.flagged:
                 passed[c].add(new_ids(ev))
     results = {c: chain_steps(data[c], x, d, b,
-                               set().union(*(passed[o] for o in chains if o != c)))
+                               set().union(*(passed[o] for o in chains
+                                           if o not in (c, NO_CHAIN))))
                for c in chains}
+    real = [c for c in chains if c != NO_CHAIN]
+    if NO_CHAIN in chains:
+        notes.append(f"{len(members[NO_CHAIN])} record(s) name no chain ([model] chain or "
+                     f"[report] method): they form their own group '{NO_CHAIN}', have no step "
+                     "tests and are neither compared with a chain nor a chain with them")
     steps: list[StepTest] = []
-    for c in chains:
-        other = next((o for o in chains if o != c), "")
-        steps.extend(finish_steps(data[c], results[c], data.get(other), results.get(other),
-                                   x, d, b))
+    for c in real:
+        steps.extend(finish_steps(data[c], results[c],
+                                  [(data[o], results[o]) for o in real if o != c], x, d, b))
     flags: list[Flag] = []
     for s in steps:
         if s.flagged:
             r = s.recalibration
-            where = (f"this calibration is also used by {s.other_chain}, whose own step at "
-                     f"it passed (E_n = {s.other_en:.2f}): the step is unlikely to come from "
-                     "this calibration — look for another change in this chain in the window"
-                     if s.other_note == SAME_CALIBRATION and s.other_en is not None
-                     and abs(s.other_en) <= 1 else
-                     f"the other chain ({s.other_chain}) did not step (E_n = {s.other_en:.2f})"
-                     if s.other_en is not None and abs(s.other_en) <= 1 else
-                     f"the other chain ({s.other_chain}) stepped too (E_n = {s.other_en:.2f}): "
-                     "a change common to both" if s.other_en is not None else
-                     s.other_note or "no other chain to compare")
+            where = "; ".join(_compared(o) for o in s.others) or "no other chain to compare"
             extra = ""
             if s.spans:
                 extra = "; the window also spans " + ", ".join(s.spans)
@@ -334,29 +332,43 @@ def compute_trend(series: Series) -> Trend:
                  tuple(flags), tuple(notes))
 
 
+def _compared(o: dict[str, Any]) -> str:
+    """What another chain's step across the same recalibration says (flag text)."""
+    c, en = o["chain"], o["en"]
+    if en is None:
+        return o["note"]
+    if o["note"] == SAME_CALIBRATION and abs(en) <= 1:
+        return (f"this calibration is also used by {c}, whose own step at it passed "
+                f"(E_n = {en:.2f}): the step is unlikely to come from this calibration — look "
+                "for another change in this chain in the window")
+    if abs(en) <= 1:
+        return f"the other chain {c} did not step (E_n = {en:.2f})"
+    return f"the other chain {c} stepped too (E_n = {en:.2f}): a change common to both"
+
+
 def _unit(unit: str) -> str:
     return f"{unit} " if unit not in ("", "1") else ""
 
 
 def _run_checks(chains, members, pts, x, d, b, data, results) -> list[dict[str, Any]]:
-    """Each run against the running weighted mean of the other chain (module docstring)."""
+    """Each run against the running weighted mean of all the other chains (module docstring);
+    runs of no chain are not checked."""
     out = []
-    if len(chains) < 2:
-        return out
+    real = [c for c in chains if c != NO_CHAIN]
     for c in chains:
-        other = next(o for o in chains if o != c)
-        oidx = np.asarray(members[other], dtype=int)
+        others = [o for o in real if o != c] if c != NO_CHAIN else []
+        oidx = np.asarray(sorted(i for o in others for i in members[o]), dtype=int)
         ends = [pts[i].date_end for i in oidx]
         ch = data[c]
         tests, accepted = results[c]
         recals = sorted(((ch.starts[t.event.first], j) for j, t in tests.items()))
         cuts = [r[0] for r in recals]
         counts, k = [], 0
-        for i in members[c]:          # runs of the other chain ended before this one began
+        for i in members[c]:          # runs of the other chains ended before this one began
             while k < len(ends) and ends[k] <= pts[i].date_start:
                 k += 1
             counts.append(k)
-        counts = np.asarray(counts)
+        counts = np.asarray(counts, dtype=int)
         use = counts >= MIN_RUNNING
         if use.any():
             mean, w, g = running_means(x[oidx], d[oidx], b[oidx], counts[use])
@@ -368,7 +380,8 @@ def _run_checks(chains, members, pts, x, d, b, data, results) -> list[dict[str, 
             pick = flagged[-1] if flagged else (recals[nb - 1][1] if nb else None)
             recal = (None, False) if pick is None else (
                 recalibration_of(ch, tests[pick]), bool(flagged))
-            rec = {"id": p.id, "chain": c, "against": other, "runs_in_mean": int(n),
+            rec = {"id": p.id, "chain": c, "against": " + ".join(others),
+                   "against_chains": list(others), "runs_in_mean": int(n),
                    "en": None, "difference": None, "expanded_uncertainty": None,
                    "_index": i, "_recal": recal}
             if n >= MIN_RUNNING:

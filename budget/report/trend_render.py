@@ -96,7 +96,9 @@ def trend_html(t, *, book: str = "", software: str = "qcs-budget") -> str:
                       f" ({s.after.n})") if tested else "–",
             "diff": (f"{fmt_value(s.difference, 2 * s.standard_uncertainty)} ± "
                      f"{fmt_u(2 * s.standard_uncertainty)}") if tested else s.note,
-            "en": _opt(s.en), "other": _opt(s.other_en)})
+            "en": _opt(s.en),
+            "other": ("; ".join(f"{o['chain']}: {_opt(o['en'])}" for o in s.others)
+                      if len(s.others) > 1 else _opt(s.other_en))})
     en_of = {c["id"]: c["en"] for c in t.run_checks}
     flagged = {r for f in t.flags if f.kind == "run-vs-other-chain" for r in f.runs}
     points = [{"id": p.id, "date": p.date_start.replace("T", " "), "chain": p.chain,
