@@ -332,3 +332,30 @@ def test_each_chain_is_compared_with_all_the_others():
     assert a["en"] == near(-0.7 / (2 * math.sqrt(0.0425)), rel=1e-9)
     b = [c for c in t.run_checks if c["chain"] == "B"]
     assert {c["against"] for c in b} == {"A + C"}
+
+
+@pytest.mark.parametrize("vectorised", [False, True])
+def test_chi2_is_invariant_under_exact_offset_and_scale(vectorised):
+    # the same runs as a relative deviation (µA/A) and as the current I = I0·(1 + dev·1e-6)
+    # with I0 = 1.52e-10 A (950 MHz · e, rounded): |I|/u(I) ≈ 5e6. χ², u and p must be the
+    # same (GLS is affine-equivariant: Aitken; common practice) — to 1e-9 relative
+    rng = np.random.default_rng(16)
+    n, k = 24, 2
+    dev = rng.normal(0.05, 0.25, n)
+    d = np.full(n, 0.2 ** 2)
+    b = np.column_stack([np.full(n, 0.05), np.where(np.arange(n) < 12, 0.08, 0.0)])
+    i0, scale = 1.52e-10, 1.52e-10 * 1e-6
+    cur = i0 * (1 + dev * 1e-6)
+
+    def stats_of(x, dd, bb):
+        return mean_stats(Sums.of(x, dd, bb) if vectorised else _sums(x, dd, bb))
+
+    a, c = stats_of(dev, d, b), stats_of(cur, d * scale ** 2, b * scale)
+    assert c.chi2 == near(a.chi2, rel=1e-9)
+    assert c.p_value == near(a.p_value, rel=1e-8)
+    assert c.standard_uncertainty / scale == near(a.standard_uncertainty, rel=1e-9)
+    assert (c.value - i0) / scale == near(a.value, rel=1e-6)
+    # the running means (prefix sums) too: the last one is the mean of all runs
+    from budget.logbook.gls import running_means
+    m, _w, _g = running_means(cur, d * scale ** 2, b * scale, np.array([n]))
+    assert (m[0] - i0) / scale == near(a.value, rel=1e-6)
