@@ -359,3 +359,20 @@ def test_chi2_is_invariant_under_exact_offset_and_scale(vectorised):
     from budget.logbook.gls import running_means
     m, _w, _g = running_means(cur, d * scale ** 2, b * scale, np.array([n]))
     assert (m[0] - i0) / scale == near(a.value, rel=1e-6)
+
+
+def test_typed_in_certificate_repeated_without_shared_as_is_one_shared_term():
+    # 8 runs, each u² = 0.1² (own noise) + 0.1² (a typed-in certificate, the same source text,
+    # no shared_as; invented). The certificate's error is the same in every run, so
+    # u²(mean) = 0.1²/8 + 0.1² = 0.01125 (GUM F.1.2.3 reasoning; derivation), not 0.02/8
+    u = math.sqrt(0.02)
+    pts = [("A", f"2027-01-{d:02d}", 0.0, u) for d in range(1, 9)]
+    cals = [(i + 1, "R", "typed in", "", "CCC certificate KB-R-1", "", "") for i in range(8)]
+    unkeyed = tuple((i + 1, 0.1, "R") for i in range(8))
+    t = compute_trend(replace(_series(pts, cals), unkeyed=unkeyed))
+    assert t.chains[0].mean.standard_uncertainty == near(math.sqrt(0.01125), rel=1e-9)
+    assert any("without shared_as" in n and "KB-R-1" in n for n in t.notes)
+    # identified only by its numbers (no source text): independent, as in compare
+    bare = [(i + 1, "R", "typed in", "", "typed in: 1.0 ± 0.1 ppm", "", "") for i in range(8)]
+    t2 = compute_trend(replace(_series(pts, bare), unkeyed=unkeyed))
+    assert t2.chains[0].mean.standard_uncertainty == near(math.sqrt(0.02 / 8), rel=1e-9)

@@ -121,6 +121,8 @@ class Series:
     terms: tuple[tuple[int, float, str], ...]      # (record id, signed c·u, key)
     calibrations: tuple[tuple[int, str, str, str, str, str, str], ...]
     # (record id, input, kind, module, identifier, path, calibration date)
+    #: terms independent by their identity (no key), by name: (record id, signed c·u, name)
+    unkeyed: tuple[tuple[int, float, str], ...] = ()
 
 
 def _locked(exc: sqlite3.OperationalError) -> bool:
@@ -424,7 +426,9 @@ class Logbook:
                                   args))
         cals = tuple(self._query("SELECT record_id, input, kind, module, identifier, path, "
                                  "calibration_date FROM calibrations"))
-        return Series(measurand, dated, len(rows) - len(dated), terms, cals)
+        unkeyed = tuple(self._query("SELECT record_id, contribution, name FROM terms "
+                                    "WHERE measurand = ? AND key IS NULL", (measurand,)))
+        return Series(measurand, dated, len(rows) - len(dated), terms, cals, unkeyed)
 
 
 def _read_only(p: Path) -> bool:

@@ -29,6 +29,7 @@ alone is a prompt to look, a step flag with a named calibration is the finding.
 
 from __future__ import annotations
 
+import hashlib
 from bisect import bisect_right
 from collections.abc import Sequence
 from dataclasses import dataclass, field, replace
@@ -160,6 +161,33 @@ def _one_unit(series: Series, notes: list[str]) -> tuple[Series, list[str]]:
     return replace(series, rows=rows, terms=terms), [target]
 
 
+def _typed_in_shared(series: Series, notes: list[str]) -> Series:
+    """Typed-in inputs without ``shared_as`` that two or more runs took from the same source
+    text (the identity the step test already uses for that calibration): one shared term, as
+    the same certificate's error is the same in every run that used it (GUM F.1.2.3; common
+    practice). Without a source text (identified by its numbers only) they stay independent,
+    as in ``compare``."""
+    source = {(rid, inp): ident for rid, inp, kind, _m, ident, _p, _d in series.calibrations
+              if kind == "typed in" and not ident.startswith("typed in: ")}
+    extra, users = [], {}
+    for rid, c, name in series.unkeyed:
+        ident = source.get((rid, name))
+        if ident is not None:
+            key = "typed-source:" + hashlib.sha256(repr((name, ident)).encode()).hexdigest()[:32]
+            extra.append((rid, c, key))
+            users.setdefault((name, ident), set()).add(rid)
+    shared = {k for k, v in users.items() if len(v) > 1}
+    if not shared:
+        return series
+    notes.append(f"{len(shared)} typed-in input(s) without shared_as taken from the same source "
+                 "text in two or more runs (" + "; ".join(f"{n}: “{i}”, {len(users[(n, i)])} runs"
+                                                         for n, i in sorted(shared)) +
+                 ") are carried as one shared term each (the same certificate's error in every "
+                 "run); declare shared_as to say so, or give each run's certificate its own "
+                 "source text if they are independent")
+    return replace(series, terms=series.terms + tuple(extra))
+
+
 def _shared_matrix(series: Series, ids: Sequence[int]) -> np.ndarray:
     """B[i, k]: signed contribution of run i to shared term k (keys in ≥ 2 of the runs)."""
     pos = {rid: i for i, rid in enumerate(ids)}
@@ -236,6 +264,7 @@ def compute_trend(series: Series) -> Trend:
         raise DataError(f"no dated record in the book has the measurand '{series.measurand}'",
                         field="--measurand")
     notes: list[str] = []
+    series = _typed_in_shared(series, notes)
     series, units = _one_unit(series, notes)
     rows = series.rows
     if series.undated:
