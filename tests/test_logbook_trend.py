@@ -376,3 +376,19 @@ def test_typed_in_certificate_repeated_without_shared_as_is_one_shared_term():
     bare = [(i + 1, "R", "typed in", "", "typed in: 1.0 ± 0.1 ppm", "", "") for i in range(8)]
     t2 = compute_trend(replace(_series(pts, bare), unkeyed=unkeyed))
     assert t2.chains[0].mean.standard_uncertainty == near(math.sqrt(0.02 / 8), rel=1e-9)
+
+
+def test_run_with_k_far_from_2_gets_en_on_its_stated_u():
+    # run 17 (A's first after the step) states U with k = 3.18 (t-distribution, ν = 3: GUM
+    # Table G.2, 3.18): E_n on 2u as before, and on its stated U:
+    # −0.7 / √(3.18²·0.04 + 2²·0.005) (no shared terms; derivation); a note lists the run
+    base = _two_chains(-0.7)
+    rows = tuple(replace(r, coverage_factor=3.18, expanded_uncertainty=3.18 * 0.2)
+                 if r.id == 17 else r for r in base.rows)
+    t = compute_trend(replace(base, rows=rows))
+    c = [c for c in t.run_checks if c["id"] == 17][0]
+    assert c["en"] == near(-0.7 / (2 * math.sqrt(0.045)), rel=1e-9)
+    assert c["en_stated_U"] == near(-0.7 / math.sqrt(3.18 ** 2 * 0.04 + 4 * 0.005), rel=1e-9)
+    assert any("#17: k = 3.18" in n for n in t.notes)
+    assert t.to_dict()["en_basis"] == "2u"
+    assert "en_stated_U" not in [c for c in t.run_checks if c["id"] == 19][0]

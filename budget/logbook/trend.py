@@ -30,6 +30,7 @@ alone is a prompt to look, a step flag with a named calibration is the finding.
 from __future__ import annotations
 
 import hashlib
+import math
 from bisect import bisect_right
 from collections.abc import Sequence
 from dataclasses import dataclass, field, replace
@@ -60,6 +61,11 @@ from .store import Series
 __all__ = ["Point", "ChainSummary", "Recalibration", "StepTest", "Flag", "Trend",
            "compute_trend", "MIN_RUNNING", "MIN_STEP", "K_EN"]
 
+K_TOLERANCE = 0.05   # a stated k farther than 5 % from 2 gets E_n on its stated U too
+EN_BASIS_TEXT = ("E_n uses U = 2u for every run and mean (k = 2; ISO 13528, ISO/IEC 17043), "
+                 "as `budget compare --en-basis 2u`; compare's default uses each record's "
+                 "stated U, and a run whose stated k differs from 2 by more than 5 % also gets "
+                 "its E_n on its stated U (en_stated_U)")
 NO_CHAIN = "(no chain)"   # the group of records that name no chain
 MIN_RUNNING = 3     # runs of the other chain before its running mean is used
 _D_FLOOR = 1e-6     # smallest non-shared share of u_i² kept (a run made only of shared terms)
@@ -122,9 +128,11 @@ class Trend:
     run_checks: tuple[dict[str, Any], ...]     # every run's E_n against the other chain
     flags: tuple[Flag, ...]
     notes: tuple[str, ...] = field(default=())
+    en_basis: str = "2u"              # E_n with U = 2u throughout (compare --en-basis 2u)
 
     def to_dict(self) -> dict[str, Any]:
-        return {"measurand": self.measurand, "unit": self.unit,
+        return {"measurand": self.measurand, "unit": self.unit, "en_basis": self.en_basis,
+                "en_basis_text": EN_BASIS_TEXT,
                 "points": [p.to_dict() for p in self.points],
                 "chains": [c.to_dict() for c in self.chains],
                 "step_tests": [s.to_dict() for s in self.steps],
@@ -344,6 +352,9 @@ def compute_trend(series: Series) -> Trend:
         if ch["en"] is not None and abs(ch["en"]) > 1:
             p = pts[ch["_index"]]
             cal, was_flagged = ch["_recal"]
+            stated = ("" if ch.get("en_stated_U") is None else
+                      f"; on its stated U, k = {ch['stated_coverage_factor']:.3g}: "
+                      f"E_n = {ch['en_stated_U']:.2f}")
             named = ""
             if cal is not None:
                 named = (f"; the chain's latest flagged step before it: {cal.label()}"
@@ -355,7 +366,14 @@ def compute_trend(series: Series) -> Trend:
                 cal.calibrations if cal else (),
                 f"run #{p.id} ({p.chain}, {p.date_start}) differs from the running weighted "
                 f"mean of {ch['against']} ({ch['runs_in_mean']} runs) by "
-                f"{ch['difference']:+.3g} {_unit(units[0])}(E_n = {ch['en']:.2f}){named}"))
+                f"{ch['difference']:+.3g} {_unit(units[0])}(E_n = {ch['en']:.2f}{stated}){named}"))
+    off_k = [p for p in pts if abs(p.coverage_factor - K_EN) > K_TOLERANCE * K_EN]
+    if off_k:
+        notes.append(f"{len(off_k)} run(s) state a coverage factor more than 5 % from 2 ("
+                     + ", ".join(f"#{p.id}: k = {p.coverage_factor:.3g}" for p in off_k[:10])
+                     + (", …" if len(off_k) > 10 else "") + "): E_n here uses 2u for them; "
+                     "their run checks also give en_stated_U, E_n on their stated U as "
+                     "compare's default does")
     clean = tuple({k: v for k, v in ch.items() if not k.startswith("_")} for ch in checks)
     return Trend(series.measurand, units[0], tuple(pts), summaries, tuple(steps), clean,
                  tuple(flags), tuple(notes))
@@ -418,6 +436,14 @@ def _run_checks(chains, members, pts, x, d, b, data, results) -> list[dict[str, 
                 cov = float(b[i] @ g[j]) / w[j] if b.shape[1] else 0.0
                 en, u = en_of(diff, p.standard_uncertainty ** 2 + 1 / w[j] - 2 * cov)
                 rec.update(en=en, difference=diff, expanded_uncertainty=K_EN * u)
+                k = p.coverage_factor
+                if abs(k - K_EN) > K_TOLERANCE * K_EN:
+                    # the run with its stated U = k·u, the mean with 2u (it states no k):
+                    # U² = k²u_i² + 2²u²(x̄) − 2·k·2·cov (compare's "stated" basis)
+                    big2 = (k * p.standard_uncertainty) ** 2 + K_EN ** 2 / w[j] \
+                        - 2 * k * K_EN * cov
+                    rec["en_stated_U"] = diff / math.sqrt(big2) if big2 > 0 else None
+                    rec["stated_coverage_factor"] = k
                 j += 1
             out.append(rec)
     return out

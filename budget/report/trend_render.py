@@ -10,6 +10,7 @@ chain, the dates, E_n and the calibration) and the table of runs — the same co
 from __future__ import annotations
 
 from ..fmt import fmt_num, fmt_u, fmt_value
+from ..logbook.trend import EN_BASIS_TEXT
 from .figures import svg_data_uri, trend_figure
 from .render import render_pdf
 
@@ -34,8 +35,8 @@ img { width: 100%; }
 </style></head><body>
 <h1>{{ title }}</h1>
 <p>{{ t.points|length }} runs from {{ first }} to {{ last }} in {{ book }}. Each point is a
-run's result with its expanded uncertainty U as stated; E_n uses k = 2 (ISO 13528,
-ISO/IEC 17043) and |E_n| &gt; 1 is flagged.</p>
+run's result with its expanded uncertainty U as stated. {{ en_basis }}; |E_n| &gt; 1 is
+flagged.</p>
 <img src="{{ figure }}" alt="trend of {{ t.measurand }} against measurement date">
 <h2>Flags ({{ t.flags|length }})</h2>
 {% if flags %}<table><tr><th>kind</th><th>chain</th><th>dates</th><th>E_n</th>
@@ -114,7 +115,8 @@ def trend_html(t, *, book: str = "", software: str = "qcs-budget") -> str:
     return env.from_string(_TEMPLATE).render(
         title=f"Logbook trend — {t.measurand}", t=t, book=book or "the logbook",
         first=dates[0][:10], last=dates[-1][:10], figure=svg_data_uri(trend_figure(t)),
-        chains=chains, steps=steps, points=points, flags=flags, software=software)
+        chains=chains, steps=steps, points=points, flags=flags, software=software,
+        en_basis=EN_BASIS_TEXT.replace("`", "").replace("(en_stated_U)", "(in its flag)"))
 
 
 def trend_pdf(t, *, book: str = "", software: str = "qcs-budget") -> bytes:
