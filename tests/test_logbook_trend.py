@@ -392,3 +392,44 @@ def test_run_with_k_far_from_2_gets_en_on_its_stated_u():
     assert any("#17: k = 3.18" in n for n in t.notes)
     assert t.to_dict()["en_basis"] == "2u"
     assert "en_stated_U" not in [c for c in t.run_checks if c["id"] == 19][0]
+
+
+def test_untested_recalibration_is_in_the_flags():
+    # R recalibrated with 3 runs before and 1 after (invented): too few to test
+    pts = [("A", f"2027-01-{d:02d}", 0.0, 0.2) for d in (1, 8, 15, 22)]
+    cals = [(i + 1, "R", "typed in", "", "cert-2" if i == 3 else "cert-1", "", "")
+            for i in range(4)]
+    t = compute_trend(_series(pts, cals))
+    f = [f for f in t.flags if f.kind == "step not tested"]
+    assert len(f) == 1 and f[0].value is None and f[0].calibrations[0]["identifier"] == "cert-2"
+    assert (f[0].date_from, f[0].date_to) == ("2027-01-15", "2027-01-22")
+    assert "3 run(s) before and 1 after" in f[0].message
+    json.dumps(t.to_dict(), allow_nan=False)
+
+
+def test_season_false_alarm_expectation():
+    t = compute_trend(_two_chains(-0.7))
+    fa = t.false_alarms
+    # p = P(|z| > 2) for a normal variable = 0.0455003 (normal table; common practice)
+    assert fa["p_per_test"] == near(0.0455003, rel=1e-5)
+    m = sum(c["en"] is not None for c in t.run_checks)
+    assert (fa["step_tests"]["tests"], fa["run_checks"]["tests"]) == (1, m)
+    assert fa["run_checks"]["p_at_least_one"] == near(1 - (1 - 0.0455003) ** m, rel=1e-5)
+    # four step tests (the season of the review): 1 − 0.9545⁴ ≈ 17 % (derivation)
+    from budget.logbook.trend import false_alarms
+    assert false_alarms(4, 0)["step_tests"]["p_at_least_one"] == near(0.1701, abs=2e-4)
+    assert "P(at least one)" in fa["text"]
+
+
+def test_note_on_records_under_another_output_name():
+    from types import SimpleNamespace
+
+    from budget.logbook.trend import elsewhere_note
+    t = compute_trend(_two_chains(0.0))
+    e = [SimpleNamespace(chain="A", measurands=({"name": "dev_1e8", "unit": "×10⁻⁸"},
+                                                {"name": "I", "unit": "A"})),
+         SimpleNamespace(chain="B", measurands=({"name": "I", "unit": "A"},)),
+         SimpleNamespace(chain="Z", measurands=({"name": "dev_1e8", "unit": "×10⁻⁸"},))]
+    note = elsewhere_note(t, e)
+    assert note.startswith("1 record(s)") and "dev_1e8: 1" in note
+    assert elsewhere_note(t, e[1:]) is None

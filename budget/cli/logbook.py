@@ -7,6 +7,7 @@ Where the book is: ``--book FILE``, else ``$BUDGET_LOGBOOK``, else the per-user 
 
 from __future__ import annotations
 
+import dataclasses
 import json
 import re
 from pathlib import Path
@@ -141,6 +142,7 @@ def _cmd_show(args) -> int:
 
 def _cmd_trend(args) -> int:
     from ..logbook import compute_trend
+    from ..logbook.trend import elsewhere_note
     from ..outputs import check_writable
     from ..text import logbook_trend_text, main_measurand
     for out, opt in ((args.pdf, "--pdf"), (args.html, "--html"), (args.json, "--json")):
@@ -155,6 +157,9 @@ def _cmd_trend(args) -> int:
             raise UsageError(f"no measurand '{name}'{did_you_mean(name, names)} in the book "
                              f"(measurands: {', '.join(names)})", field="--measurand")
         trend = compute_trend(lb.series(name))
+        note = elsewhere_note(trend, lb.entries())
+        if note:
+            trend = dataclasses.replace(trend, notes=(*trend.notes, note))
         book = lb.path.name          # the page names the book, not the folders above it
     print(logbook_trend_text(trend))
     outputs = []

@@ -100,14 +100,14 @@ class ChainSummary:
 class Flag:
     """One alarm: the chain, the dates, the statistic and the calibration it points at."""
 
-    kind: str                         # "step" or "run-vs-other-chain"
+    kind: str                         # "step", "step not tested" or "run-vs-other-chain"
     chain: str
     date_from: str
     date_to: str
     statistic: str                    # "E_n"
-    value: float
-    difference: float
-    expanded_uncertainty: float       # 2·u of the difference
+    value: float | None               # None for a recalibration that could not be tested
+    difference: float | None
+    expanded_uncertainty: float | None  # 2·u of the difference
     runs: tuple[int, ...]
     calibrations: tuple[dict[str, Any], ...]
     message: str
@@ -129,10 +129,12 @@ class Trend:
     flags: tuple[Flag, ...]
     notes: tuple[str, ...] = field(default=())
     en_basis: str = "2u"              # E_n with U = 2u throughout (compare --en-basis 2u)
+    #: the season's false-alarm expectation (see :func:`false_alarms`)
+    false_alarms: dict[str, Any] = field(default_factory=dict)
 
     def to_dict(self) -> dict[str, Any]:
         return {"measurand": self.measurand, "unit": self.unit, "en_basis": self.en_basis,
-                "en_basis_text": EN_BASIS_TEXT,
+                "en_basis_text": EN_BASIS_TEXT, "false_alarms": dict(self.false_alarms),
                 "points": [p.to_dict() for p in self.points],
                 "chains": [c.to_dict() for c in self.chains],
                 "step_tests": [s.to_dict() for s in self.steps],
@@ -375,8 +377,43 @@ def compute_trend(series: Series) -> Trend:
                      "their run checks also give en_stated_U, E_n on their stated U as "
                      "compare's default does")
     clean = tuple({k: v for k, v in ch.items() if not k.startswith("_")} for ch in checks)
+    for s in steps:
+        if s.en is None:
+            r = s.recalibration
+            flags.append(Flag(
+                "step not tested", r.chain, r.date_from, r.date_to, "E_n", None, None, None,
+                (r.after_id, r.before_id), r.calibrations,
+                f"{r.chain}: the recalibration between {r.date_from} and {r.date_to} "
+                f"({r.label()}) is {s.note} — a step there would go unseen"))
     return Trend(series.measurand, units[0], tuple(pts), summaries, tuple(steps), clean,
-                 tuple(flags), tuple(notes))
+                 tuple(flags), tuple(notes),
+                 false_alarms=false_alarms(sum(s.en is not None for s in steps),
+                                           sum(c["en"] is not None for c in clean)))
+
+
+#: P(|E_n| > 1) for one test of pure noise: P(|z| > 2) = erfc(√2) (normal distribution)
+P_FALSE = math.erfc(math.sqrt(2.0))
+
+
+def false_alarms(n_steps: int, n_runs: int) -> dict[str, Any]:
+    """How many flags pure noise would raise in this trend: with m tests, each false with
+    probability p = P(|z| > 2) ≈ 0.0455, m·p expected and 1 − (1 − p)^m the chance of at
+    least one (tests taken as independent; run checks against running means are positively
+    correlated, so for them this is an upper bound on the chance, common practice)."""
+    p = P_FALSE
+
+    def one(m: int) -> dict[str, Any]:
+        return {"tests": m, "expected": m * p, "p_at_least_one": 1 - (1 - p) ** m}
+
+    steps, runs = one(n_steps), one(n_runs)
+    text = (f"with pure noise each test exceeds |E_n| = 1 with p = {p:.4f}: of "
+            f"{n_steps} step test(s) {steps['expected']:.2f} false step flag(s) are expected "
+            f"and P(at least one) = {steps['p_at_least_one']:.0%}; of {n_runs} run check(s) "
+            f"{runs['expected']:.1f} false run flag(s), P(at least one) = "
+            f"{runs['p_at_least_one']:.0%} (tests taken as independent). A single flag is a "
+            "prompt to look; a step flag that the other chains do not share, at a "
+            "calibration of this chain only, with |E_n| well above 1, is the finding")
+    return {"p_per_test": p, "step_tests": steps, "run_checks": runs, "text": text}
 
 
 def _compared(o: dict[str, Any]) -> str:
@@ -447,3 +484,36 @@ def _run_checks(chains, members, pts, x, d, b, data, results) -> list[dict[str, 
                 j += 1
             out.append(rec)
     return out
+
+
+def elsewhere_note(trend: Trend, entries: Sequence[Any]) -> str | None:
+    """A note on records of the trend's chains that do not have its measurand but one of the
+    same dimension under another output name (``dev_1e8`` beside ``dev_ppm``): they are left
+    out of the trend, which says so. ``entries``: :meth:`Logbook.entries` of the book."""
+    from ..units import UnitError, parse_unit
+
+    def dims(unit: str):
+        try:
+            return parse_unit(unit or "1").dims
+        except UnitError:
+            return ("unit", unit)
+
+    want = dims(trend.unit)
+    chains = {p.chain for p in trend.points}
+    names: dict[str, int] = {}
+    count = 0
+    for e in entries:
+        ms = e.measurands
+        if (e.chain or NO_CHAIN) not in chains or any(m["name"] == trend.measurand for m in ms):
+            continue
+        same = [m["name"] for m in ms if dims(m["unit"]) == want]
+        if same:
+            count += 1
+            for n in same:
+                names[n] = names.get(n, 0) + 1
+    if not count:
+        return None
+    listed = ", ".join(f"{n}: {c}" for n, c in sorted(names.items()))
+    return (f"{count} record(s) of these chains have no '{trend.measurand}' but a measurand of "
+            f"the same dimension under another name ({listed}): they are left out of this "
+            "trend; trend them with --measurand, or keep one output name")

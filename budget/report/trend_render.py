@@ -45,6 +45,7 @@ flagged.</p>
 <td class="small">{{ f.dates }}</td><td class="n">{{ f.en }}</td>
 <td class="small">{{ f.message }}</td></tr>{% endfor %}</table>
 {% else %}<p>None.</p>{% endif %}
+{% if t.false_alarms %}<p class="small">False alarms: {{ t.false_alarms.text }}.</p>{% endif %}
 <h2>Weighted mean per chain (generalised least squares, shared terms as covariance)</h2>
 <table><tr><th>chain</th><th>runs</th><th>weighted mean</th><th>u</th><th>χ²</th><th>ν</th>
 <th>p</th><th>Birge ratio</th></tr>
@@ -109,7 +110,7 @@ def trend_html(t, *, book: str = "", software: str = "qcs-budget") -> str:
     flags = [{"kind": f.kind.replace("-", " "), "chain": f.chain,
               "dates": (f.date_from[:10] if f.date_from[:10] == f.date_to[:10] else
                         f"{f.date_from[:10]} to {f.date_to[:10]}"),
-              "en": f"{f.value:.2f}", "message": f.message} for f in t.flags]
+              "en": _opt(f.value), "message": f.message} for f in t.flags]
     dates = sorted(p.date_start for p in t.points)
     env = jinja2.Environment(autoescape=True, undefined=jinja2.StrictUndefined)
     return env.from_string(_TEMPLATE).render(

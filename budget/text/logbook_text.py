@@ -98,6 +98,8 @@ def logbook_trend_text(t) -> str:
         lines.append("  none")
     for f in t.flags:
         lines.append(f"  [{f.kind}] {f.message}")
+    if t.false_alarms:
+        lines.append(f"  false alarms: {t.false_alarms['text']}")
     if t.notes:
         lines += ["", "notes"] + [f"  {n}" for n in t.notes]
     return "\n".join(lines)
