@@ -91,9 +91,10 @@ class Point:
 class ChainSummary:
     chain: str
     mean: MeanStats
+    caution: str = ""                 # e.g. the mean pools runs across a flagged step
 
     def to_dict(self) -> dict[str, Any]:
-        return {"chain": self.chain, **self.mean.to_dict()}
+        return {"chain": self.chain, **self.mean.to_dict(), "caution": self.caution}
 
 
 @dataclass(frozen=True)
@@ -377,6 +378,7 @@ def compute_trend(series: Series) -> Trend:
                      "their run checks also give en_stated_U, E_n on their stated U as "
                      "compare's default does")
     clean = tuple({k: v for k, v in ch.items() if not k.startswith("_")} for ch in checks)
+    summaries = tuple(_caution(c, steps) for c in summaries)
     for s in steps:
         if s.en is None:
             r = s.recalibration
@@ -414,6 +416,17 @@ def false_alarms(n_steps: int, n_runs: int) -> dict[str, Any]:
             "prompt to look; a step flag that the other chains do not share, at a "
             "calibration of this chain only, with |E_n| well above 1, is the finding")
     return {"p_per_test": p, "step_tests": steps, "run_checks": runs, "text": text}
+
+
+def _caution(c: ChainSummary, steps: Sequence[StepTest]) -> ChainSummary:
+    """A chain mean that pools runs across a flagged step is not one value: say so."""
+    flagged = [s for s in steps if s.flagged and s.recalibration.chain == c.chain]
+    if not flagged:
+        return c
+    return replace(c, caution="this mean pools runs across flagged step(s) (" + "; ".join(
+        f"{s.recalibration.date_to[:10]}, E_n = {s.en:.2f}" for s in flagged) +
+        "): it is not one value of the measurand; see the means before and after in the "
+        "step tests")
 
 
 def _compared(o: dict[str, Any]) -> str:

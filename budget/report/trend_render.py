@@ -30,7 +30,9 @@ table { border-collapse: collapse; width: 100%; margin: 2pt 0 5pt 0; }
 th, td { border-bottom: 0.5pt solid #999; padding: 1.5pt 3pt; text-align: left;
          vertical-align: top; }
 td.n { text-align: right; font-variant-numeric: tabular-nums; white-space: nowrap; }
-.flag { color: #a01010; } .small { font-size: 7.5pt; }
+.flag { color: #a01010; } .small { font-size: 7.5pt; } .caution { color: #a01010; }
+tr { break-inside: avoid; page-break-inside: avoid; }
+table.steps { table-layout: fixed; } table.steps td { overflow-wrap: anywhere; }
 img { width: 100%; }
 </style></head><body>
 <h1>{{ title }}</h1>
@@ -51,14 +53,20 @@ flagged.</p>
 <th>p</th><th>Birge ratio</th></tr>
 {% for c in chains %}<tr><td>{{ c.chain }}</td>{% for v in c.cells %}<td class="n">{{ v }}</td>
 {% endfor %}</tr>{% endfor %}</table>
+{% for c in chains %}{% if c.caution %}<p class="small caution">Caution, {{ c.chain }}: {{ c.caution }}</p>{% endif %}{% endfor %}
 <h2>Step tests at recalibrations</h2>
-{% if steps %}<table><tr><th>chain</th><th>between</th><th>calibration changed</th>
-<th>before</th><th>after</th><th>after − before (U, k = 2)</th><th>E_n</th>
-<th>other chain E_n</th></tr>
+{% if steps %}<p class="small">Before and after: weighted mean ± u (runs).</p>
+<table class="steps small"><colgroup><col style="width: 11%"><col style="width: 12%">
+<col style="width: 20%"><col style="width: 13%"><col style="width: 13%"><col style="width: 13%">
+<col style="width: 6%"><col style="width: 12%"></colgroup>
+<tr><th>chain</th><th>recalibrated between</th><th>calibration changed</th>
+<th>before</th><th>after</th><th>after − before ± U (k = 2)</th><th>E_n</th>
+<th>other chains' E_n</th></tr>
 {% for s in steps %}<tr{% if s.flagged %} class="flag"{% endif %}><td>{{ s.chain }}</td>
-<td class="small">{{ s.between }}</td><td class="small">{{ s.label }}</td>
-<td class="n">{{ s.before }}</td><td class="n">{{ s.after }}</td><td class="n">{{ s.diff }}</td>
-<td class="n">{{ s.en }}</td><td class="n">{{ s.other }}</td></tr>{% endfor %}</table>
+<td>{{ s.between }}</td><td>{{ s.label }}</td>
+{% if s.tested %}<td>{{ s.before }}</td><td>{{ s.after }}</td><td>{{ s.diff }}</td>
+<td class="n">{{ s.en }}</td><td>{{ s.other }}</td>
+{% else %}<td colspan="5">{{ s.note }}</td>{% endif %}</tr>{% endfor %}</table>
 {% else %}<p>None: no calibration changed between two runs of one chain.</p>{% endif %}
 <h2>Runs</h2>
 <table class="small"><tr><th>#</th><th>measured</th><th>chain</th><th>title</th>
@@ -79,7 +87,7 @@ def trend_html(t, *, book: str = "", software: str = "qcs-budget") -> str:
     """The trend page as standalone HTML (the figure as a data: URI)."""
     import jinja2  # deferred: only the page outputs need it
     unit = f" {t.unit}" if t.unit not in ("", "1") else ""
-    chains = [{"chain": c.chain, "cells": [
+    chains = [{"chain": c.chain, "caution": c.caution, "cells": [
         str(c.mean.n), fmt_value(c.mean.value, c.mean.standard_uncertainty) + unit,
         fmt_u(c.mean.standard_uncertainty), "–" if c.mean.dof == 0 else fmt_num(c.mean.chi2, 3),
         str(c.mean.dof), "–" if c.mean.p_value is None else fmt_num(c.mean.p_value, 2),
@@ -92,10 +100,13 @@ def trend_html(t, *, book: str = "", software: str = "qcs-budget") -> str:
         steps.append({
             "chain": r.chain, "between": f"{r.date_from[:10]} and {r.date_to[:10]}",
             "label": r.label(), "flagged": s.flagged,
-            "before": (fmt_value(s.before.value, s.before.standard_uncertainty) +
-                       f" ({s.before.n})") if tested else "–",
-            "after": (fmt_value(s.after.value, s.after.standard_uncertainty) +
-                      f" ({s.after.n})") if tested else "–",
+            "tested": tested, "note": s.note,
+            "before": (f"{fmt_value(s.before.value, s.before.standard_uncertainty)} ± "
+                       f"{fmt_u(s.before.standard_uncertainty)} ({s.before.n})"
+                       ) if tested else "–",
+            "after": (f"{fmt_value(s.after.value, s.after.standard_uncertainty)} ± "
+                      f"{fmt_u(s.after.standard_uncertainty)} ({s.after.n})"
+                      ) if tested else "–",
             "diff": (f"{fmt_value(s.difference, 2 * s.standard_uncertainty)} ± "
                      f"{fmt_u(2 * s.standard_uncertainty)}") if tested else s.note,
             "en": _opt(s.en),
