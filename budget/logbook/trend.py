@@ -215,51 +215,6 @@ def _shared_matrix(series: Series, ids: Sequence[int]) -> np.ndarray:
     return b
 
 
-# --------------------------------------------------------------------------- building blocks
-def _one_unit(series: Series, notes: list[str]) -> tuple[Series, list[str]]:
-    """The series in one unit: the newest record's; records in another unit of the same
-    dimension (ppm and µA/A, A and pA) converted, another dimension refused."""
-    from ..units import UnitError, display_factor, parse_unit
-    target = series.rows[-1].unit
-    if all(r.unit == target for r in series.rows):
-        return series, [target]
-    try:
-        want = parse_unit(target or "1")
-        have = {u: parse_unit(u or "1") for u in {r.unit for r in series.rows}}
-    except UnitError:
-        have = None
-    if have is None or any(h.dims != want.dims for h in have.values()):
-        units = sorted({r.unit for r in series.rows})
-        raise DataError(f"'{series.measurand}' is stored in units of different dimensions "
-                        f"({', '.join(units)}); a trend needs one", field="--measurand")
-    f = {u: display_factor(h, want) for u, h in have.items()}
-    by_id = {r.id: f[r.unit] for r in series.rows}
-    rows = tuple(replace(r, unit=target, value=r.value * f[r.unit],
-                         standard_uncertainty=r.standard_uncertainty * f[r.unit],
-                         expanded_uncertainty=r.expanded_uncertainty * f[r.unit])
-                 for r in series.rows)
-    terms = tuple((rid, c * by_id.get(rid, 1.0), key) for rid, c, key in series.terms)
-    notes.append(f"records stated in other units ({', '.join(sorted(set(f) - {target}))}) "
-                 f"were converted to {target or '1'}")
-    return replace(series, rows=rows, terms=terms), [target]
-
-
-def _shared_matrix(series: Series, ids: Sequence[int]) -> np.ndarray:
-    """B[i, k]: signed contribution of run i to shared term k (keys in ≥ 2 of the runs)."""
-    pos = {rid: i for i, rid in enumerate(ids)}
-    holders: dict[str, set[int]] = {}
-    for rid, _c, key in series.terms:
-        if rid in pos:
-            holders.setdefault(key, set()).add(rid)
-    keys = sorted(k for k, h in holders.items() if len(h) > 1)
-    col = {k: j for j, k in enumerate(keys)}
-    b = np.zeros((len(ids), len(keys)))
-    for rid, c, key in series.terms:
-        if rid in pos and key in col:
-            b[pos[rid], col[key]] += c
-    return b
-
-
 # --------------------------------------------------------------------------- the trend
 def compute_trend(series: Series) -> Trend:
     """Points, per-chain weighted means, step tests, run checks and flags (module docstring).
