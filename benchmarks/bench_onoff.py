@@ -14,7 +14,10 @@ of ``read_onoff`` (reading the bytes, header, parsing, checks), differing only i
 
 Run in one process, the order rotated every round, ``REPEATS`` rounds (default 7), wall-clock
 and process CPU time; the script checks that all three give bit-identical arrays and prints
-the load average before and after.
+the load average before and after. For ``read_onoff`` it also gives the CPU time of the
+longest piece's thread and the CPU time outside the pieces (joining, checks): their sum is
+what the wall time would be with a free processor for each piece, which a machine shared
+with other jobs does not show.
 
     .venv/bin/python benchmarks/bench_onoff.py [ROWS [REPEATS]]
 """
@@ -26,7 +29,6 @@ import statistics
 import sys
 import tempfile
 import time
-from contextlib import nullcontext
 from pathlib import Path
 from unittest import mock
 
@@ -36,8 +38,21 @@ from bench_cycles import write_record  # noqa: E402
 
 from budget.inputs import onoff_parse, onoff_table  # noqa: E402
 
+PIECE_CPU: list[float] = []          # thread CPU time of each piece of the current reading
+_read_piece = onoff_parse.read_piece
+
+
+def _timed_piece(*args):
+    c0 = time.thread_time()
+    try:
+        return _read_piece(*args)
+    finally:
+        PIECE_CPU.append(time.thread_time() - c0)
+
+
 READERS = {
-    "read_onoff (pieces in threads)": nullcontext,
+    "read_onoff (pieces in threads)": lambda: mock.patch.object(onoff_parse, "read_piece",
+                                                                _timed_piece),
     "one piece, one thread": lambda: mock.patch.object(onoff_parse, "threads",
                                                               lambda: 1),
     "general reading": lambda: mock.patch.object(onoff_table, "_FAST", False),
@@ -64,6 +79,7 @@ def main() -> None:
     names = list(READERS)
     wall = {k: [] for k in names}
     cpu = {k: [] for k in names}
+    longest, serial = [], []
     with tempfile.TemporaryDirectory() as tmp:
         path = Path(tmp) / "onoff.csv"
         write_record(path, rows, 0.1, 60.0, seed=1)
@@ -73,10 +89,14 @@ def main() -> None:
         for r in range(repeats):
             got = {}
             for k in names[r % 3:] + names[:r % 3]:           # rotated order
+                PIECE_CPU.clear()
                 with READERS[k]():
                     got[k], w, c = timed(lambda: onoff_table.read_onoff(path))
                 wall[k].append(w)
                 cpu[k].append(c)
+                if k == names[0]:
+                    longest.append(max(PIECE_CPU))
+                    serial.append(c - sum(PIECE_CPU))
             ref = got["general reading"]
             assert all(getattr(t, a).tobytes() == getattr(ref, a).tobytes()
                        and getattr(t, a).dtype == getattr(ref, a).dtype
@@ -88,6 +108,10 @@ def main() -> None:
     print("|---|---|---|")
     for k in names:
         print(f"| {k} | {stats(wall[k])} | {stats(cpu[k])} |")
+    print(f"read_onoff: CPU of the longest piece's thread {stats(longest)}; CPU outside the "
+          f"pieces {stats(serial)}; their sum per round (the wall time if each piece had a "
+          f"processor of its own and never waited for the GIL) "
+          f"{stats([a + b for a, b in zip(longest, serial)])}")
     for k in names[1:]:
         ratio = [a / b for a, b in zip(wall[names[0]], wall[k])]
         print(f"wall ratio read_onoff / {k}, per round min / median / max: "
