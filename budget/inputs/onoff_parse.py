@@ -122,7 +122,8 @@ def read_piece(source, cols: list[str], first: bool) -> tuple | None:
             # a column (or piece) whose every field is True/False in any case is turned into
             # 1.0/0.0 by pandas even when asked for float; the general reading refuses such a
             # word. Only a column of 0s and 1s can hide it: read those the general way.
-            if 0.0 <= lo and hi <= 1.0 and not ((v > 0.0) & (v < 1.0)).any():
+            if 0.0 <= lo and hi <= 1.0 and not 0.0 < v[0] < 1.0 \
+                    and not ((v > 0.0) & (v < 1.0)).any():     # v[0]: no arrays, mostly
                 return None
         out.append(v)
     ok, on = pump_states(df["pump"])
