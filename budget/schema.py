@@ -108,22 +108,26 @@ _Check = Callable[[Any], None]
 _CACHE: dict[tuple[int, int], tuple[dict, dict, _Check]] = {}
 
 
+#: nodes being compiled: a $ref back to one of them (a recursive schema) is bound late
+_BUSY: set[tuple[int, int]] = set()
+
+
 def _compiled(schema: dict[str, Any], root: dict[str, Any]) -> _Check:
-    hit = _CACHE.get((id(schema), id(root)))
+    key = (id(schema), id(root))
+    hit = _CACHE.get(key)
     if hit is not None and hit[0] is schema and hit[1] is root:
         return hit[2]
-    check = _compile(schema, root)
-    _CACHE[(id(schema), id(root))] = (schema, root, check)
-    return check
-
-
-def _within(key: str | int, check: _Check, value: Any) -> None:
-    """Run ``check`` on a member; a violation's path (relative to the member) gains ``key``."""
+    if key in _BUSY:
+        def check_late(data):
+            _CACHE[key][2](data)
+        return check_late
+    _BUSY.add(key)
     try:
-        check(value)
-    except SchemaViolation as exc:
-        exc.path = (key,) + exc.path
-        raise
+        check = _compile(schema, root)
+    finally:
+        _BUSY.discard(key)
+    _CACHE[key] = (schema, root, check)
+    return check
 
 
 def _compile(schema: dict[str, Any], root: dict[str, Any]) -> _Check:
@@ -138,14 +142,7 @@ def _compile(schema: dict[str, Any], root: dict[str, Any]) -> _Check:
         ref = schema["$ref"]
         if not ref.startswith("#/$defs/"):
             raise KeyError(f"only local $ref to #/$defs/ is supported; got {ref!r}")
-        name = ref[len("#/$defs/"):]
-        target: list[_Check] = []          # resolved on first use (a $ref may recurse)
-
-        def check_ref(data):
-            if not target:
-                target.append(_compiled(root["$defs"][name], root))
-            target[0](data)
-        checks.append(check_ref)
+        checks.append(_compiled(root["$defs"][ref[len("#/$defs/"):]], root))
     if "anyOf" in schema:
         subs = [_compiled(sub, root) for sub in schema["anyOf"]]
 
@@ -304,12 +301,17 @@ def _object_check(schema: dict[str, Any], root: dict[str, Any]) -> _Check | None
             if pattern is not None and not pattern.fullmatch(key):
                 raise SchemaViolation((key,), "is not an allowed name")
             sub = props.get(key)
-            if sub is not None:
-                _within(key, sub, value)
-            elif extra is False:
-                raise SchemaViolation((key,), "is not a known key")
-            elif extra_check is not None:
-                _within(key, extra_check, value)
+            if sub is None:
+                if extra is False:
+                    raise SchemaViolation((key,), "is not a known key")
+                sub = extra_check
+                if sub is None:
+                    continue
+            try:
+                sub(value)
+            except SchemaViolation as exc:      # its path, relative to the member, gains key
+                exc.path = (key,) + exc.path
+                raise
     return check_object
 
 
@@ -336,7 +338,11 @@ def _array_check(schema: dict[str, Any], root: dict[str, Any]) -> _Check | None:
                 raise SchemaViolation((), f"must have at most {len(prefix)} entries; got "
                                           f"{len(data)}")
             if sub is not None and sub is not True:
-                _within(i, sub, item)
+                try:
+                    sub(item)
+                except SchemaViolation as exc:
+                    exc.path = (i,) + exc.path
+                    raise
     return check_array
 
 
