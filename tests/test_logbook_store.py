@@ -8,6 +8,7 @@ standard library's FIPS 180-4 implementation), the book's integrity against SQLi
 
 from __future__ import annotations
 
+import hashlib
 import json
 import os
 import signal
@@ -342,3 +343,17 @@ def test_sigkill_during_add_leaves_book_readable(book, records, tmp_path):
         n = lb.count()
         assert n in (before, before + len(many))      # all or nothing
         assert [lb.record(i).raw for i in (1, 2, 3)] == [r.read_bytes() for r in records[:3]]
+
+
+# --------------------------------------------------------------------------- stored bytes
+def test_stored_bytes_are_a_zlib_stream(book, records):
+    # the book's compressor (ISA-L) writes zlib streams (RFC 1950) that the standard
+    # library's zlib reads back byte for byte, so any reader of the format keeps working
+    from budget.logbook.rows import compress_body
+    samples = [b"", b"x", os.urandom(70_000), b" " * 100_000] + [r.read_bytes() for r in records]
+    for raw in samples:
+        assert zlib.decompress(compress_body(raw)) == raw
+    con = sqlite3.connect(book)
+    for sha, body in con.execute("SELECT sha256, body FROM records"):
+        assert hashlib.sha256(zlib.decompress(body)).hexdigest() == sha
+    con.close()

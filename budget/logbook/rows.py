@@ -1,7 +1,9 @@
 """Writing records into the book's tables (inside a transaction the store has opened).
 
-The stored bytes are the record file's bytes, zlib-compressed (:func:`compress_body`); the
-indexed columns and the measurands, calibrations and terms tables are filled from the
+The stored bytes are the record file's bytes as a zlib stream (:func:`compress_body`: made by
+ISA-L's deflate at level 1, which is about 3.5 times faster than zlib's level 1 and a few per
+cent smaller; any zlib, the standard library's included, reads it back); the indexed columns
+and the measurands, calibrations and terms tables are filled from the
 :class:`~budget.logbook.extract.PreparedRecord`.
 """
 
@@ -12,18 +14,30 @@ import zlib
 from collections.abc import Sequence
 from pathlib import Path
 
+from isal import isal_zlib
+
 from ..errors import DataError
 from .extract import PreparedRecord
 
 __all__ = ["compress_body", "add_rows", "refuse_duplicates", "refuse_repeated_runs",
            "insert_details"]
 
-_ZLEVEL = 1                # zlib level of the stored bytes: 3× faster than 6, 8 % larger
+
+def reference_deflate(raw: bytes) -> bytes:
+    """The former compressor: the standard library's zlib at level 1 (for benchmarks)."""
+    return zlib.compress(raw, 1)
+
+
+def _isal_deflate(raw: bytes) -> bytes:
+    return isal_zlib.compress(raw, 1)
+
+
+_deflate = _isal_deflate
 
 
 def compress_body(raw: bytes) -> bytes:
-    """The bytes a record is stored as (zlib at the book's level)."""
-    return zlib.compress(raw, _ZLEVEL)
+    """The bytes a record is stored as: a zlib stream (``zlib.decompress`` gives ``raw``)."""
+    return _deflate(raw)
 
 
 def add_rows(con: sqlite3.Connection, records: Sequence[PreparedRecord],
