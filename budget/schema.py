@@ -236,12 +236,31 @@ def _type_check(schema: dict[str, Any]) -> _Check:
                 raise SchemaViolation((), str(exc)) from None
         return check_number
 
+    takes_float, takes_null = "number" in types, "null" in types
+    bounds = [(k, schema[k]) for k in ("minimum", "maximum", "exclusiveMinimum",
+                                       "exclusiveMaximum") if k in schema]
+
     def check_type(data):
+        # the common cases first, with the outcome of the general test below
+        if data is None and takes_null:
+            return
+        if type(data) is float and takes_float and _isfinite(data) and (
+                not bounds or _within_bounds(data, bounds)):
+            return
         if not any(_is_type(data, t) for t in types):
             raise SchemaViolation((), f"must be {words}; got {shown(data)}")
         if numeric and _is_type(data, "number"):
             _number(data, schema, ())
     return check_type
+
+
+def _within_bounds(x: float, bounds: list[tuple[str, Any]]) -> bool:
+    """Whether ``x`` passes every range keyword (the violation itself is :func:`_number`'s)."""
+    for key, b in bounds:
+        if (key == "minimum" and x < b) or (key == "maximum" and x > b) or \
+                (key == "exclusiveMinimum" and x <= b) or (key == "exclusiveMaximum" and x >= b):
+            return False
+    return True
 
 
 #: types whose test is one isinstance (bool is not an int here: it has its own type name)
