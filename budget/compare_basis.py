@@ -29,8 +29,6 @@ import math
 from dataclasses import dataclass
 from typing import Any
 
-import pandas as pd
-
 from .result import Budget, Term
 
 __all__ = ["Identity", "SharedTerm", "TermBasis", "identity", "cross_correlation", "term_bases",
@@ -145,6 +143,8 @@ def cross_correlation(a: Budget, b: Budget, name_a: str, ident: Identity) -> tup
     fa, fb = _fit_of(a, name_a), _fit_of(b, name_a)
     if fa is None or fb is None:
         return 1.0, ""
+    import pandas as pd  # here: most commands that import this module never need it
+
     days = float((pd.Timestamp(fb["at"]) - pd.Timestamp(fa["at"])) / pd.Timedelta(days=1))
     c = fa["cov"]
     if fa["model"] != "line" or days == 0:
