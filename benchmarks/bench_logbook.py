@@ -16,7 +16,9 @@ Three ways of adding, alternated in every round, a fresh book for each add:
 * one process (``workers=1``: what the default picks on a busy machine);
 * the same with the former JSON reader and compressor (the standard library's ``json`` and
   ``zlib`` at level 1) in place of msgspec and ISA-L — the same work otherwise;
-* two worker processes (what the default picks on an idle 2-core machine).
+* two worker processes (what the default picks on an idle 2-core machine);
+* the command, ``budget logbook add --book B FILE…`` in a new process (its start-up, imports
+  and the unit registry included; the default number of workers for the load at the time).
 
 Then, per record, the steps of an add timed alone on 1 000 of the files (min of 5 passes), the
 former reader and compressor beside the present ones (each pair checked to give the same
@@ -119,10 +121,16 @@ def load() -> str:
     return " ".join(f"{x:.2f}" for x in os.getloadavg())
 
 
+def command(book: Path, files: list[Path]) -> None:
+    subprocess.run([sys.executable, "-m", "budget", "logbook", "add", "--book", str(book),
+                    *map(str, files)], check=True, capture_output=True, cwd=ROOT)
+
+
 ADDS = {
     "add, one process": (1, ExitStack),
     "add, one process, former json + zlib": (1, former),
     "add, 2 worker processes (CPU summed over all processes)": (2, ExitStack),
+    "budget logbook add, the command (CPU of its process)": (None, ExitStack),
 }
 
 
@@ -134,7 +142,8 @@ def bench(files: list[Path], tmp: Path, label: str, repeats: int) -> list[str]:
         for name, (workers, ctx) in ADDS.items():
             book = next(books)
             with ctx():
-                w, c = timed(lambda: add_files(book, files, workers=workers), 1)
+                w, c = timed(lambda: add_files(book, files, workers=workers) if workers
+                             else command(book, files), 1)
             times[name][0].extend(w)
             times[name][1].extend(c)
             sizes[name] = book.stat().st_size / 1e6
@@ -147,8 +156,7 @@ def bench(files: list[Path], tmp: Path, label: str, repeats: int) -> list[str]:
     avg = sum(p.stat().st_size for p in files) / len(files) / 1e3
     n = len(files)
     out = [f"{label}: {n} records of {avg:.1f} kB on average; book "
-           + ", ".join(f"{s:.1f} MB ({k.split(', ', 1)[1].split(' (')[0]})"
-                       for k, s in sizes.items()),
+           + ", ".join(f"{s:.1f} MB ({k.split(' (')[0]})" for k, s in sizes.items()),
            "| what | wall min / median / max | CPU min / median / max | target |",
            "|---|---|---|---|"]
     for name in ADDS:
