@@ -189,3 +189,22 @@ def test_effect_is_stated_unknown_when_too_few_cycles_remain(tmp_path, capsys):
     (w,) = [w for w in rec["warnings"] if w["code"] == "cycles.glitch"]
     assert "cannot be stated (only 1 cycle difference(s) would remain" in w["message"]
     assert "unknown" in w["message"] and "cycles.glitch" in err
+
+
+def test_screen_blind_when_most_differences_are_equal(tmp_path, capsys):
+    # Noise-free readings (levels exactly 0 and 1 mV, invented): every cycle difference is
+    # the same float except the glitched one, so the median absolute deviation is 0 and no
+    # distance can be formed (σ_MAD = 0, derivation) — the screen must say it is blind rather
+    # than pass the glitch silently.
+    t = np.arange(0, 21 * 120.0)
+    on = (t // 120).astype(int) % 2 == 1
+    y = np.where(on, 1e-3, 0.0)
+    start = 9 * 120.0                                     # on segment 9 (odd index: on)
+    y[(t >= start + 70) & (t < start + 110)] += 2e-7
+    rc, rec, err = run(write(tmp_path, t, y, on, settle_s=10), capsys)
+    assert rc == 0
+    g = cycles_diag(rec)["glitches"]
+    assert g["sigma_mad"] == 0 and g["flagged"] == 0
+    (w,) = [w for w in rec["warnings"] if w["code"] == "cycles.glitch_screen_blind"]
+    assert "1 difference(s) depart from the median" in w["message"]
+    assert "none is flagged" in w["message"] and "cycles.glitch_screen_blind" in err

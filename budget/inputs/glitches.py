@@ -148,6 +148,18 @@ def findings(records: Sequence[Any], names: list[str], pooled: onoff.Differences
                            scores[i][used])]) if len(used) else j)})
     diag: dict[str, Any] = {**scr.to_dict(), "cycles": listed[:100], "if_rejected": None}
     ws = []
+    spread = float(np.max(np.abs(pooled.d - scr.median))) if pooled.n else 0.0
+    if scr.sigma_mad == 0 and spread > 0:
+        # more than half the differences equal: every distance is 0, nothing can be flagged
+        odd = int(np.count_nonzero(pooled.d != scr.median))
+        ws.append(warn("cycles.glitch_screen_blind",
+                       f"more than half of the {pooled.n} cycle differences are exactly equal "
+                       f"(σ_MAD = 0: readings quantized coarser than their noise, or a "
+                       f"synthetic record), so the robust screen cannot judge outliers: {odd} "
+                       f"difference(s) depart from the median by up to {spread:.3g} "
+                       f"{o['unit']} and none is flagged"
+                       + (" or rejected" if o["rejection"] != "none" else "")
+                       + "; look at the cycle differences before relying on the result"))
     if listed and o["rejection"] == "none":
         unit = o["unit"]
         head = (f"{len(listed)} cycle difference(s) beyond {o['rejection_limit']:g} robust "
