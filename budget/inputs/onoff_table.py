@@ -6,12 +6,15 @@ falls back to text for a column that did not parse, to find the offending row. T
 is read by :mod:`budget.inputs.onoff_parse` (straight to float64, in pieces side by side), which
 declines anything this general reading could treat differently. Row numbers
 follow :mod:`budget.inputs.tables`: 1-based data rows, header excluded, blank lines and lines
-starting with ``#`` not counted.
+starting with ``#`` not counted, counted as pandas reads the file (lines end at ``\\n``,
+``\\r\\n`` or ``\\r``; a quoted field may span lines). A ``#`` after blanks, or a blank line
+holding a form feed or vertical tab, is refused with its line: pandas would read it as data.
 """
 
 from __future__ import annotations
 
 import io
+import re
 import warnings
 from dataclasses import dataclass
 from pathlib import Path
@@ -67,7 +70,7 @@ def _head_text(raw: bytes, shown: str) -> str:
         return decode_text(raw, shown)
     cut = head.rfind(b"\n") + 1                  # whole lines only: no split character
     text = decode_text(head[:cut], shown)
-    if not any(ln.strip() and not ln.lstrip().startswith("#") for ln in text.splitlines()):
+    if not any(ln.strip() and not ln.lstrip().startswith("#") for ln in text.split("\n")):
         return decode_text(raw, shown)
     return text
 
@@ -92,12 +95,85 @@ def _check_columns(cols: list[str], shown: str) -> None:
             raise DataError(f"missing column{did_you_mean(c, cols)}", file=shown, field=c)
 
 
+#: lines a reader takes for a comment or a blank line but pandas reads as a data row (or as the
+#: header): ``#`` after blanks, or blanks that include a form feed or vertical tab
+_MISREAD = re.compile(rb"^[ \t\f\v]+#|^[ \t\f\v]*[\f\v][ \t\f\v]*\r?$", re.MULTILINE)
+
+
+def _check_layout(raw: bytes, shown: str) -> None:
+    """Refuse a line that pandas (``comment='#'`` acts only on a ``#`` in column 1 or after a
+    field) would read differently from a person: an indented comment, or a line of blanks
+    holding a form feed or vertical tab. The line is 1-based, counted at ``\\n``."""
+    m = _MISREAD.search(raw)
+    if m is None:
+        return
+    line = raw.count(b"\n", 0, m.start()) + 1
+    if raw[m.end() - 1:m.end()] == b"#":
+        what = "a comment must start in column 1 (this line has blanks before '#')"
+    else:
+        what = "a line of blanks holds a form feed or vertical tab; make it empty"
+    raise DataError(what, file=shown, line=line)
+
+
+def _field_counts(text: str):
+    """The number of fields of each record (header first) as pandas' C tokenizer counts them
+    with ``comment='#'``, ``quotechar='"'`` and ``skipinitialspace``: lines end at ``\\n``,
+    ``\\r\\n`` or ``\\r`` (not at the other breaks of :meth:`str.splitlines`); a line of
+    spaces and tabs or starting with ``#`` is skipped; ``#`` outside quotes ends the record;
+    a quoted field may hold commas, ``#`` and line breaks."""
+    state = None                     # None: at the start of a record
+    k = 0
+    for ln in io.StringIO(text, newline=""):
+        ln = ln.rstrip("\r\n")
+        if state is None:
+            if not ln.strip(" \t") or ln.startswith("#"):
+                continue
+            if '"' not in ln:                        # the common line: no character loop
+                yield ln.split("#", 1)[0].count(",") + 1
+                continue
+            state, k = "start", 0
+        for c in ln:
+            if state == "start":                     # at a field's start
+                if c == " ":
+                    continue
+                if c == '"':
+                    state = "quoted"
+                elif c == ",":
+                    k += 1
+                elif c == "#":
+                    break
+                else:
+                    state = "field"
+            elif state == "field":
+                if c == ",":
+                    k, state = k + 1, "start"
+                elif c == "#":
+                    break
+            elif state == "quoted":
+                if c == '"':
+                    state = "quote"
+            else:                                    # just after a quote inside quotes
+                if c == '"':
+                    state = "quoted"
+                elif c == ",":
+                    k, state = k + 1, "start"
+                elif c == "#":
+                    break
+                else:
+                    state = "field"
+        if state == "quoted":                        # the line break belongs to the field
+            continue
+        yield k + 1
+        state = None
+
+
 def _bad_field_count(text: str, ncols: int, shown: str) -> DataError:
-    """Locate the first data row whose number of fields differs from the header's."""
-    rows = [ln for ln in text.splitlines() if ln.strip() and not ln.lstrip().startswith("#")]
-    for i, ln in enumerate(rows[1:], start=1):
-        k = len(ln.split(","))
-        if k != ncols:
+    """Locate the first data row with more fields than the header (pandas fills a short row
+    and refuses only a long one), counting rows as :func:`_field_counts` does."""
+    counts = _field_counts(text)
+    next(counts, None)                               # the header
+    for i, k in enumerate(counts, start=1):
+        if k > ncols:
             return DataError(f"has {k} fields; the header has {ncols}", file=shown, row=i)
     return DataError("cannot read as CSV", file=shown)
 
@@ -130,6 +206,7 @@ def _pump(df: pd.DataFrame, shown: str) -> np.ndarray:
 def _read_general(raw: bytes, cols: list[str], shown: str) -> pd.DataFrame:
     """The reference reading: pandas infers each column (text where a value does not parse,
     so that :func:`_numeric` can name the row); every problem a located DataError."""
+    _check_layout(raw, shown)
     try:
         with warnings.catch_warnings():
             # pandas only warns (and drops the field) when the first data row is too long
