@@ -6,6 +6,7 @@ from __future__ import annotations
 import math
 from collections.abc import Sequence
 from dataclasses import dataclass
+from functools import cached_property
 from typing import Any
 
 import numpy as np
@@ -107,7 +108,7 @@ class ChainRuns:
     cals: ChainCals
     pts: list[Any]                     # the trend's points (trend.Point)
 
-    @property
+    @cached_property
     def starts(self) -> list[str]:
         return [self.pts[i].date_start for i in self.idx]
 

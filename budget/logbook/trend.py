@@ -415,6 +415,7 @@ def _run_checks(chains, members, pts, x, d, b, data, results) -> list[dict[str, 
         tests, accepted = results[c]
         recals = sorted(((ch.starts[t.event.first], j) for j, t in tests.items()))
         cuts = [r[0] for r in recals]
+        recs = {j: recalibration_of(ch, t) for j, t in tests.items()}
         counts, k = [], 0
         for i in members[c]:          # runs of the other chains ended before this one began
             while k < len(ends) and ends[k] <= pts[i].date_start:
@@ -430,8 +431,7 @@ def _run_checks(chains, members, pts, x, d, b, data, results) -> list[dict[str, 
             nb = bisect_right(cuts, p.date_start)
             flagged = [e for _, e in recals[:nb] if e in accepted]
             pick = flagged[-1] if flagged else (recals[nb - 1][1] if nb else None)
-            recal = (None, False) if pick is None else (
-                recalibration_of(ch, tests[pick]), bool(flagged))
+            recal = (None, False) if pick is None else (recs[pick], bool(flagged))
             rec = {"id": p.id, "chain": c, "against": " + ".join(others),
                    "against_chains": list(others), "runs_in_mean": int(n),
                    "en": None, "difference": None, "expanded_uncertainty": None,
