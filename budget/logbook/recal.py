@@ -78,9 +78,10 @@ def chain_calibrations(chain: str, run_ids: list[int],
     canon_runs: list[dict[Slot, list[dict[str, Any]]]] = []
     prev: set[Slot] | None = None
     seen: set[Slot] = set()
+    last_keys: set[Slot] | None = None
     for pos, rid in enumerate(run_ids):
         raw = cals_by_run.get(rid, {})
-        if prev is not None:
+        if prev is not None and raw.keys() != last_keys:   # the same inputs: nothing to pair
             appeared = sorted(s for s in raw if s not in alias and s not in seen)
             cur = {alias.get(s, s) for s in raw}
             vanished = sorted(prev - cur)
@@ -97,20 +98,25 @@ def chain_calibrations(chain: str, run_ids: list[int],
                                      f"and {_name(a)} (from run #{rid}) taken as one input "
                                      f"({o[1]}{', ' + o[2] if o[2] else ''}): one replaced "
                                      "the other between consecutive runs")
-        canon = {}
-        for s, rows in raw.items():
-            canon.setdefault(alias.get(s, s), []).extend(rows)
-        seen.update(raw)
+        if alias:
+            canon: dict[Slot, list[dict[str, Any]]] = {}
+            for s, rows in raw.items():
+                canon.setdefault(alias.get(s, s), []).extend(rows)
+        else:
+            canon = raw                  # read only from here on
+        if raw.keys() != last_keys:
+            seen.update(raw)
+            last_keys = set(raw)
+            prev = set(canon)
         canon_runs.append(canon)
-        prev = set(canon)
     slots = tuple(sorted({s for c in canon_runs for s in c}))
     ident: dict[Slot, list[tuple[str, ...] | None]] = {}
     epoch: dict[Slot, list[int]] = {}
     first_cal: dict[tuple[Slot, tuple[str, ...] | None], list[dict[str, Any]]] = {}
     by_first: dict[int, list[tuple[Slot, int]]] = {}
     for s in slots:
-        seq = [tuple(sorted({r["identifier"] for r in c[s]})) if s in c else None
-               for c in canon_runs]
+        seq = [None if s not in c else (c[s][0]["identifier"],) if len(c[s]) == 1 else
+               tuple(sorted({r["identifier"] for r in c[s]})) for c in canon_runs]
         rank: dict[tuple[str, ...] | None, int] = {}
         ep = []
         returns = 0
