@@ -340,7 +340,7 @@ def test_chi2_is_invariant_under_exact_offset_and_scale(vectorised):
     # with I0 = 1.52e-10 A (950 MHz · e, rounded): |I|/u(I) ≈ 5e6. χ², u and p must be the
     # same (GLS is affine-equivariant: Aitken; common practice) — to 1e-9 relative
     rng = np.random.default_rng(16)
-    n, k = 24, 2
+    n = 24
     dev = rng.normal(0.05, 0.25, n)
     d = np.full(n, 0.2 ** 2)
     b = np.column_stack([np.full(n, 0.05), np.where(np.arange(n) < 12, 0.08, 0.0)])
